@@ -1,0 +1,312 @@
+package core
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"fmt"
+	"os"
+	"strings"
+	"sync"
+	"unicode/utf8"
+
+	"fovea/modelio"
+	"fovea/modelio/infer"
+	"fovea/modelio/prep"
+)
+
+// Where labels and preprocessing settings came from, as shown to the user.
+const (
+	FromModel   = "model metadata"
+	FromGuess   = "guessed from the model"
+	FromSaved   = "saved settings"
+	FromChosen  = "chosen"
+	FromNowhere = "none (class numbers)"
+)
+
+// Workspace is one open model and what is needed to run it. Create it with
+// [OpenModel] or [OpenDemo]; Close it when done. Model is shared, read-only:
+// only [Workspace.ObserveShapes] refines its layer shapes, under the
+// workspace's lock.
+type Workspace struct {
+	Model *modelio.Model
+	Demo  string // "" for a user's file; "healthy" or "unhealthy" for the embedded demo
+
+	mu         sync.Mutex
+	cfg        prep.Config
+	cfgFrom    string
+	labels     []string
+	labelsFrom string
+	plain      *infer.Session // model outputs only: classification, occlusion
+	capture    *infer.Session // model outputs plus every activation layer
+	observed   bool
+}
+
+// OpenModel reads and checks the ONNX file at path and proposes
+// preprocessing settings from it (prep.Guess) and labels from its metadata.
+// Nothing runs yet: sessions are created on first use, after [Start].
+func OpenModel(path string) (*Workspace, error) {
+	m, err := modelio.Open(path)
+	if err != nil {
+		return nil, inputErr(path, err)
+	}
+	return newWorkspace(m, "")
+}
+
+func newWorkspace(m *modelio.Model, demo string) (*Workspace, error) {
+	if len(m.Outputs) == 0 {
+		return nil, inputf(m.Name, "the model has no outputs")
+	}
+	w := &Workspace{Model: m, Demo: demo}
+	w.cfg = prep.Guess(m)
+	w.cfgFrom = FromGuess
+	if len(m.Labels) > 0 {
+		w.labels = append([]string(nil), m.Labels...)
+		w.labelsFrom = FromModel
+	} else {
+		w.labelsFrom = FromNowhere
+	}
+	return w, nil
+}
+
+// Close releases the sessions. Cancel running jobs and wait for them first.
+func (w *Workspace) Close() error {
+	w.mu.Lock()
+	defer w.mu.Unlock()
+	var first error
+	for _, s := range []**infer.Session{&w.plain, &w.capture} {
+		if *s != nil {
+			if err := (*s).Close(); err != nil && first == nil {
+				first = err
+			}
+			*s = nil
+		}
+	}
+	return first
+}
+
+// Name is the model's file name, or the demo's name.
+func (w *Workspace) Name() string { return w.Model.Name }
+
+// Prep returns the preprocessing settings in force and where they came from
+// ([FromGuess], [FromSaved] or [FromChosen]).
+func (w *Workspace) Prep() (prep.Config, string) {
+	w.mu.Lock()
+	defer w.mu.Unlock()
+	return w.cfg, w.cfgFrom
+}
+
+// SetPrep checks c against the model's image input and puts it in force for
+// the jobs started from now on. It does not save it: see [Workspace.Remember].
+func (w *Workspace) SetPrep(c prep.Config) error {
+	if err := CheckPrep(w.Model, c); err != nil {
+		return err
+	}
+	w.mu.Lock()
+	w.cfg = c
+	w.cfgFrom = FromChosen
+	w.mu.Unlock()
+	return nil
+}
+
+// Labels returns the class labels in force (nil when there are none) and
+// where they came from: [FromModel], [FromNowhere], [FromSaved] or the label
+// file's path.
+func (w *Workspace) Labels() ([]string, string) {
+	w.mu.Lock()
+	defer w.mu.Unlock()
+	return append([]string(nil), w.labels...), w.labelsFrom
+}
+
+// Classes is the number of classes the model scores, from the last dimension
+// of its first output; 0 when that dimension is not fixed.
+func (w *Workspace) Classes() int {
+	sh := w.Model.Outputs[0].Shape
+	if len(sh) == 0 || sh[len(sh)-1].Size <= 0 {
+		return 0
+	}
+	return int(sh[len(sh)-1].Size)
+}
+
+// maxLabelFile bounds the size of a label file read into memory.
+const maxLabelFile = 4 << 20
+
+// LoadLabels reads class labels from path and puts them in force. The file is
+// UTF-8 text with one label per line (blank lines at the end ignored), or a
+// JSON array of strings. The count must equal the model's number of classes
+// when that is known.
+func (w *Workspace) LoadLabels(path string) error {
+	labels, err := ReadLabels(path)
+	if err != nil {
+		return err
+	}
+	if n := w.Classes(); n > 0 && len(labels) != n {
+		return inputf(path, "%d labels, but model %s has %d classes", len(labels), w.Model.Name, n)
+	}
+	w.mu.Lock()
+	w.labels = labels
+	w.labelsFrom = path
+	w.mu.Unlock()
+	return nil
+}
+
+// ReadLabels reads a label file (see [Workspace.LoadLabels]) without checking
+// it against a model.
+func ReadLabels(path string) ([]string, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, inputErr(path, err)
+	}
+	defer f.Close()
+	st, err := f.Stat()
+	if err != nil {
+		return nil, inputErr(path, err)
+	}
+	if st.IsDir() {
+		return nil, inputf(path, "is a folder, not a label file")
+	}
+	if st.Size() > maxLabelFile {
+		return nil, inputf(path, "label file of %d bytes is over the limit of %d", st.Size(), maxLabelFile)
+	}
+	data := make([]byte, st.Size())
+	if _, err := f.ReadAt(data, 0); err != nil && st.Size() > 0 {
+		return nil, inputErr(path, err)
+	}
+	data = bytes.TrimPrefix(data, []byte("\xef\xbb\xbf"))
+	if !utf8.Valid(data) {
+		return nil, inputf(path, "label file is not UTF-8 text")
+	}
+	var labels []string
+	if t := bytes.TrimSpace(data); len(t) > 0 && t[0] == '[' {
+		if err := json.Unmarshal(t, &labels); err != nil {
+			return nil, inputf(path, "label file looks like JSON but is not an array of strings: %v", err)
+		}
+	} else {
+		text := strings.TrimRight(strings.ReplaceAll(string(data), "\r\n", "\n"), "\n \t")
+		if text != "" {
+			labels = strings.Split(text, "\n")
+		}
+		for i := range labels {
+			labels[i] = strings.TrimSpace(labels[i])
+		}
+	}
+	if len(labels) == 0 {
+		return nil, inputf(path, "label file has no labels")
+	}
+	return labels, nil
+}
+
+// Largest input side accepted in settings: far above any classifier's input,
+// small enough that one image tensor stays under a few hundred megabytes.
+const maxSide = 8192
+
+// CheckPrep reports whether c can feed m's image input: known values for
+// every choice, positive sizes within limits, no zero std, and the sizes the
+// model fixes respected.
+func CheckPrep(m *modelio.Model, c prep.Config) error {
+	bad := func(format string, args ...any) error { return inputf("", format, args...) }
+	switch {
+	case c.Width <= 0 || c.Height <= 0 || c.Width > maxSide || c.Height > maxSide:
+		return bad("input size %d×%d is outside 1…%d pixels", c.Width, c.Height, maxSide)
+	case c.Channels != 1 && c.Channels != 3:
+		return bad("%d channels: only 1 (grey) and 3 (colour) are supported", c.Channels)
+	case c.Resize != "stretch" && c.Resize != "crop":
+		return bad("resize %q: use stretch or crop", c.Resize)
+	case c.Range != "0-1" && c.Range != "0-255" && c.Range != "-1-1":
+		return bad("range %q: use 0-1, 0-255 or -1-1", c.Range)
+	case c.Layout != "nchw" && c.Layout != "nhwc":
+		return bad("layout %q: use nchw or nhwc", c.Layout)
+	}
+	for i, s := range c.Std {
+		if s == 0 || s != s {
+			return bad("std of channel %d is %v: it divides, so it must be a non-zero number", i, s)
+		}
+		if c.Mean[i] != c.Mean[i] {
+			return bad("mean of channel %d is not a number", i)
+		}
+	}
+	if im := m.Image; im != nil {
+		if im.Width > 0 && im.Width != c.Width || im.Height > 0 && im.Height != c.Height {
+			return bad("input size %d×%d, but model %s takes %d×%d", c.Width, c.Height, m.Name, im.Width, im.Height)
+		}
+		if im.Channels > 0 && im.Channels != c.Channels {
+			return bad("%d channels, but model %s takes %d", c.Channels, m.Name, im.Channels)
+		}
+		if im.Layout != "" && im.Layout != c.Layout && im.Channels > 0 && im.Width > 0 && im.Height > 0 {
+			return bad("layout %s, but model %s takes %s", c.Layout, m.Name, im.Layout)
+		}
+	}
+	return nil
+}
+
+// session returns the plain or the capturing session, creating it on first use.
+func (w *Workspace) session(capture bool) (*infer.Session, error) {
+	w.mu.Lock()
+	defer w.mu.Unlock()
+	return w.sessionLocked(capture)
+}
+
+func (w *Workspace) sessionLocked(capture bool) (*infer.Session, error) {
+	if !infer.Initialized() {
+		return nil, fmt.Errorf("core: ONNX Runtime is not loaded (call core.Start first)")
+	}
+	slot := &w.plain
+	var opt infer.Options
+	if capture {
+		slot = &w.capture
+		for _, l := range w.Model.ActivationLayers() {
+			opt.Capture = append(opt.Capture, l.Output)
+		}
+	}
+	if *slot == nil {
+		s, err := infer.NewSession(w.Model, opt)
+		if err != nil {
+			return nil, inputErr(w.Model.Name, err)
+		}
+		*slot = s
+	}
+	return *slot, nil
+}
+
+// ObserveShapes runs the model once on a blank image when some layer's shape
+// could not be inferred statically, and fills those shapes in from the run
+// (modelio.Model.Observe). It does nothing when every shape is known or it
+// already ran. Call it before handing w.Model to code on other goroutines.
+func (w *Workspace) ObserveShapes(ctx context.Context) error {
+	w.mu.Lock()
+	defer w.mu.Unlock()
+	if w.observed {
+		return nil
+	}
+	unknown := false
+	for _, l := range w.Model.Layers {
+		if l.ShapeSource != "static" {
+			unknown = true
+		}
+	}
+	if !unknown {
+		w.observed = true
+		return nil
+	}
+	s, err := w.sessionLocked(true)
+	if err != nil {
+		return err
+	}
+	c := w.cfg
+	in := make([]float32, c.Channels*c.Width*c.Height)
+	c.Tensor(prep.Planes(blank(c.Width, c.Height)), in)
+	res, err := s.Run(ctx, in, 1)
+	if err != nil {
+		return fmt.Errorf("core: %s: a run to observe layer shapes failed: %w", w.Model.Name, err)
+	}
+	shapes := make(map[string][]int64)
+	for name, t := range res.Maps {
+		shapes[name] = t.Shape
+	}
+	for _, t := range res.Outputs {
+		shapes[t.Name] = t.Shape
+	}
+	w.Model.Observe(shapes)
+	w.observed = true
+	return nil
+}
