@@ -1,0 +1,170 @@
+package prep
+
+import (
+	"fmt"
+	"image"
+	"image/color"
+
+	"github.com/disintegration/imaging"
+)
+
+// resample is the filter of [Fit]: imaging.Linear is a triangle filter that imaging
+// widens by the scale factor when shrinking, i.e. an antialiased bilinear resize, which
+// is how training pipelines commonly resize (common practice). Sharper filters
+// (Lanczos, CatmullRom) overshoot at edges, which a model never saw in training.
+var resample = imaging.Linear
+
+// Fit returns img as an opaque Width×Height picture ready for [Planes]:
+//
+//   - transparent pixels are composited over c.Background (straight or premultiplied
+//     alpha, as the image's colour model says);
+//   - Resize "stretch" scales the whole picture to Width×Height, ignoring its aspect ratio;
+//     Resize "crop" keeps the largest centred part with the aspect ratio Width:Height
+//     (the shorter side scaled to size, the longer one centre-cropped) and scales that.
+//
+// Cropping comes first, so a 10000×20 strip costs a 20×20 crop, not a 112000×224 resize;
+// no side ever rounds to 0. The result's Rect starts at (0, 0); img is not modified.
+// Fit panics when c's size is outside 1..MaxSide or img is empty: both are mistakes of
+// the caller ([Load] never returns an empty image, [Config.Validate] checks the size).
+func Fit(img image.Image, c Config) *image.NRGBA {
+	if c.Width < 1 || c.Height < 1 || c.Width > MaxSide || c.Height > MaxSide {
+		panic(fmt.Sprintf("prep: Fit to %dx%d: size must be 1..%d (call Config.Validate first)", c.Width, c.Height, MaxSide))
+	}
+	b := img.Bounds()
+	if b.Empty() {
+		panic(fmt.Sprintf("prep: Fit of an empty image (bounds %v)", b))
+	}
+	r := b
+	if c.Resize == ResizeCrop {
+		r = cropRect(b, c.Width, c.Height)
+	}
+	flat := flatten(img, r, c.Background)
+	if r.Dx() == c.Width && r.Dy() == c.Height {
+		return flat
+	}
+	return imaging.Resize(flat, c.Width, c.Height, resample)
+}
+
+// cropRect is the largest rectangle centred in b with the aspect ratio w:h, each side
+// rounded to the nearest pixel and at least 1.
+func cropRect(b image.Rectangle, w, h int) image.Rectangle {
+	sw, sh := int64(b.Dx()), int64(b.Dy())
+	cw, ch := sw, sh
+	if sw*int64(h) > sh*int64(w) { // wider than wanted: keep the full height
+		cw = min(max((2*sh*int64(w)+int64(h))/(2*int64(h)), 1), sw)
+	} else { // taller than (or as) wanted: keep the full width
+		ch = min(max((2*sw*int64(h)+int64(w))/(2*int64(w)), 1), sh)
+	}
+	x0 := b.Min.X + int((sw-cw)/2)
+	y0 := b.Min.Y + int((sh-ch)/2)
+	return image.Rect(x0, y0, x0+int(cw), y0+int(ch))
+}
+
+// flatten copies the part r of img into a new opaque NRGBA with origin (0, 0),
+// compositing every pixel over bg. All paths compute the same thing: take the colour as
+// 16-bit premultiplied RGBA (the colour model's own RGBA method, which knows whether the
+// format stores straight or premultiplied alpha), composite
+//
+//	out = c + bg × (1 - α)      (Porter & Duff 1984, "over", premultiplied)
+//
+// and round to 8 bits (out + 128) / 257. The type switches only avoid an interface call
+// per pixel; a test checks each against the generic At path.
+func flatten(img image.Image, r image.Rectangle, bg color.NRGBA) *image.NRGBA {
+	w, h := r.Dx(), r.Dy()
+	dst := image.NewNRGBA(image.Rect(0, 0, w, h))
+	o := compositor{uint32(bg.R) * 0x101, uint32(bg.G) * 0x101, uint32(bg.B) * 0x101}
+	put := func(i int, cr, cg, cb, ca uint32) {
+		dst.Pix[i+0], dst.Pix[i+1], dst.Pix[i+2] = o.over(cr, cg, cb, ca)
+		dst.Pix[i+3] = 0xff
+	}
+	switch src := img.(type) {
+	case *image.NRGBA:
+		for y := range h {
+			s := src.PixOffset(r.Min.X, r.Min.Y+y)
+			d := y * dst.Stride
+			for x := range w {
+				p := src.Pix[s+4*x : s+4*x+4 : s+4*x+4]
+				cr, cg, cb, ca := color.NRGBA{p[0], p[1], p[2], p[3]}.RGBA()
+				put(d+4*x, cr, cg, cb, ca)
+			}
+		}
+	case *image.RGBA:
+		for y := range h {
+			s := src.PixOffset(r.Min.X, r.Min.Y+y)
+			d := y * dst.Stride
+			for x := range w {
+				p := src.Pix[s+4*x : s+4*x+4 : s+4*x+4]
+				cr, cg, cb, ca := color.RGBA{p[0], p[1], p[2], p[3]}.RGBA()
+				put(d+4*x, cr, cg, cb, ca)
+			}
+		}
+	case *image.YCbCr:
+		for y := range h {
+			d := y * dst.Stride
+			for x := range w {
+				cr, cg, cb, ca := src.YCbCrAt(r.Min.X+x, r.Min.Y+y).RGBA()
+				put(d+4*x, cr, cg, cb, ca)
+			}
+		}
+	case *image.Gray:
+		for y := range h {
+			s := src.PixOffset(r.Min.X, r.Min.Y+y)
+			d := y * dst.Stride
+			for x := range w {
+				v := src.Pix[s+x]
+				copy(dst.Pix[d+4*x:], []uint8{v, v, v, 0xff})
+			}
+		}
+	case *image.Paletted:
+		// Composite each palette entry once. Indices past the palette (which At would
+		// panic on) and nil entries count as transparent.
+		var table [256][4]uint8
+		for i := range table {
+			var cr, cg, cb, ca uint32
+			if i < len(src.Palette) && src.Palette[i] != nil {
+				cr, cg, cb, ca = src.Palette[i].RGBA()
+			}
+			table[i][0], table[i][1], table[i][2] = o.over(cr, cg, cb, ca)
+			table[i][3] = 0xff
+		}
+		for y := range h {
+			s := src.PixOffset(r.Min.X, r.Min.Y+y)
+			d := y * dst.Stride
+			for x := range w {
+				copy(dst.Pix[d+4*x:], table[src.Pix[s+x]][:])
+			}
+		}
+	case image.RGBA64Image: // Gray16, RGBA64, NRGBA64, CMYK, NYCbCrA, Alpha, ...
+		for y := range h {
+			d := y * dst.Stride
+			for x := range w {
+				c := src.RGBA64At(r.Min.X+x, r.Min.Y+y)
+				put(d+4*x, uint32(c.R), uint32(c.G), uint32(c.B), uint32(c.A))
+			}
+		}
+	default:
+		for y := range h {
+			d := y * dst.Stride
+			for x := range w {
+				var cr, cg, cb, ca uint32
+				if c := img.At(r.Min.X+x, r.Min.Y+y); c != nil {
+					cr, cg, cb, ca = c.RGBA()
+				}
+				put(d+4*x, cr, cg, cb, ca)
+			}
+		}
+	}
+	return dst
+}
+
+// compositor holds a 16-bit background colour for flatten.
+type compositor struct{ r, g, b uint32 }
+
+// over composites a 16-bit premultiplied colour over the background and rounds to 8 bits.
+// Values are clamped, so a colour model that breaks the premultiplied rule (r > a)
+// cannot wrap around.
+func (o compositor) over(cr, cg, cb, ca uint32) (uint8, uint8, uint8) {
+	inv := 0xffff - min(ca, 0xffff)
+	to8 := func(c, bg uint32) uint8 { return uint8((min(c+bg*inv/0xffff, 0xffff) + 128) / 257) }
+	return to8(cr, o.r), to8(cg, o.g), to8(cb, o.b)
+}

@@ -1,0 +1,101 @@
+package prep
+
+import (
+	"fmt"
+	"image"
+)
+
+// Luminance weights of ITU-R BT.601 (Y = 0.299 R + 0.587 G + 0.114 B), used for
+// one-channel models.
+const (
+	lumaR = 0.299
+	lumaG = 0.587
+	lumaB = 0.114
+)
+
+// Planes splits img into three planes, red, green and blue, each Height×Width, row-major,
+// with values sample/255 in 0..1: planes[c*H*W + y*W + x]. Alpha is ignored: [Fit]'s
+// output is opaque.
+func Planes(img *image.NRGBA) []float32 {
+	w, h := img.Rect.Dx(), img.Rect.Dy()
+	n := w * h
+	out := make([]float32, 3*n)
+	for y := range h {
+		row := img.Pix[y*img.Stride:]
+		for x := range w {
+			i := y*w + x
+			out[i] = float32(row[4*x]) / 255
+			out[n+i] = float32(row[4*x+1]) / 255
+			out[2*n+i] = float32(row[4*x+2]) / 255
+		}
+	}
+	return out
+}
+
+// Tensor writes one image, given as [Planes] of size c.Height×c.Width, into dst
+// (len c.Len()) in c.Layout, applying channel order, value range and mean/std as the
+// package documentation says. It panics when c is invalid or a length is wrong: call
+// [Config.Validate] first; both are the caller's mistakes, not conditions of a file.
+func (c Config) Tensor(planes, dst []float32) {
+	if err := c.Validate(); err != nil {
+		panic(fmt.Sprintf("prep: Tensor with %v", err))
+	}
+	hw := c.Height * c.Width
+	if len(planes) != 3*hw {
+		panic(fmt.Sprintf("prep: Tensor: %d plane values, want 3×%d×%d = %d", len(planes), c.Height, c.Width, 3*hw))
+	}
+	if len(dst) != c.Len() {
+		panic(fmt.Sprintf("prep: Tensor: dst has %d values, want %d×%d×%d = %d", len(dst), c.Channels, c.Height, c.Width, c.Len()))
+	}
+	var k, off float32 // v = k p + off
+	switch c.Range {
+	case RangeUnit:
+		k, off = 1, 0
+	case RangeByte:
+		k, off = 255, 0
+	case RangeSigned:
+		k, off = 2, -1
+	}
+	r, g, b := planes[:hw], planes[hw:2*hw], planes[2*hw:]
+	for ch := range c.Channels {
+		var src []float32
+		switch {
+		case c.Channels == 1:
+			src = nil // luminance, computed below
+		case c.BGR:
+			src = planes[(2-ch)*hw : (3-ch)*hw]
+		default:
+			src = planes[ch*hw : (ch+1)*hw]
+		}
+		mean, std := c.Mean[ch], c.Std[ch]
+		for i := range hw {
+			var p float32
+			if src == nil {
+				p = lumaR*r[i] + lumaG*g[i] + lumaB*b[i]
+			} else {
+				p = src[i]
+			}
+			v := (k*p + off - mean) / std
+			if c.Layout == LayoutNHWC {
+				dst[i*c.Channels+ch] = v
+			} else {
+				dst[ch*hw+i] = v
+			}
+		}
+	}
+}
+
+// Batch fits each image ([Fit], [Planes], [Config.Tensor]) into one tensor of shape
+// c.Shape(len(imgs)), the images one after the other. It returns c.Validate's error
+// when c is not usable.
+func (c Config) Batch(imgs []image.Image) ([]float32, []int64, error) {
+	if err := c.Validate(); err != nil {
+		return nil, nil, err
+	}
+	n := c.Len()
+	out := make([]float32, len(imgs)*n)
+	for i, img := range imgs {
+		c.Tensor(Planes(Fit(img, c)), out[i*n:(i+1)*n])
+	}
+	return out, c.Shape(len(imgs)), nil
+}
