@@ -120,7 +120,7 @@ func decode(r io.ReaderAt, size int64, name string, maxPixels int) (img image.Im
 	}()
 	cfg, format, err := image.DecodeConfig(io.NewSectionReader(r, 0, size))
 	if err != nil {
-		return nil, classify(name, "", r, size, err)
+		return nil, classify(name, sniff(r), false, r, size, err)
 	}
 	if cfg.Width <= 0 || cfg.Height <= 0 {
 		return nil, &FileError{File: name, Class: ErrCorrupt, Detail: fmt.Sprintf("%s header gives a size of %d×%d pixels", formatName(format), cfg.Width, cfg.Height)}
@@ -131,7 +131,7 @@ func decode(r io.ReaderAt, size int64, name string, maxPixels int) (img image.Im
 	}
 	img, _, err = image.Decode(io.NewSectionReader(r, 0, size))
 	if err != nil {
-		return nil, classify(name, format, r, size, err)
+		return nil, classify(name, format, true, r, size, err)
 	}
 	b := img.Bounds()
 	if b.Empty() || int64(b.Dx())*int64(b.Dy()) > int64(maxPixels) {
@@ -153,7 +153,9 @@ func decode(r io.ReaderAt, size int64, name string, maxPixels int) (img image.Im
 }
 
 // classify turns a decoder error into a FileError with a class and a readable detail.
-func classify(name, format string, r io.ReaderAt, size int64, err error) error {
+// format is the format's name as image.RegisterFormat has it, or "" when unknown;
+// pixels says whether the header had been read.
+func classify(name, format string, pixels bool, r io.ReaderAt, size int64, err error) error {
 	if errors.Is(err, image.ErrFormat) {
 		var head [8]byte
 		n, _ := r.ReadAt(head[:], 0)
@@ -168,7 +170,7 @@ func classify(name, format string, r io.ReaderAt, size int64, err error) error {
 		return &FileError{File: name, Err: err}
 	}
 	stage := "header"
-	if format != "" {
+	if pixels {
 		stage = "pixel data"
 	}
 	detail := fmt.Sprintf("%s %s unreadable (%d bytes)", formatName(format), stage, size)
@@ -176,6 +178,29 @@ func classify(name, format string, r io.ReaderAt, size int64, err error) error {
 		detail = fmt.Sprintf("%s %s ends early after %d bytes (truncated file?)", formatName(format), stage, size)
 	}
 	return &FileError{File: name, Class: ErrCorrupt, Detail: detail, Err: err}
+}
+
+// sniff names the format by the signatures the decoders register, for messages about
+// files whose header cannot be read; "" when none matches.
+func sniff(r io.ReaderAt) string {
+	var head [12]byte
+	n, _ := r.ReadAt(head[:], 0)
+	h := string(head[:n])
+	switch {
+	case strings.HasPrefix(h, "\x89PNG\r\n\x1a\n"):
+		return "png"
+	case strings.HasPrefix(h, "\xff\xd8"):
+		return "jpeg"
+	case strings.HasPrefix(h, "GIF8"):
+		return "gif"
+	case strings.HasPrefix(h, "BM"):
+		return "bmp"
+	case strings.HasPrefix(h, "II*\x00"), strings.HasPrefix(h, "MM\x00*"):
+		return "tiff"
+	case len(h) == 12 && h[:4] == "RIFF" && h[8:] == "WEBP":
+		return "webp"
+	}
+	return ""
 }
 
 func formatName(format string) string {
