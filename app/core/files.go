@@ -8,8 +8,8 @@ import (
 	"io"
 	"os"
 	"path/filepath"
-	"slices"
-	"strings"
+
+	"fovea/viz"
 )
 
 // WriteFile writes the file at path atomically: write fills a temporary file
@@ -63,20 +63,8 @@ func SavePNG(path string, img image.Image) error {
 	return WriteFile(path, func(w io.Writer) error { return png.Encode(w, img) })
 }
 
-// imageExts are the file name extensions of the formats prep.Load decodes.
-var imageExts = []string{".png", ".jpg", ".jpeg", ".gif", ".bmp", ".tif", ".tiff", ".webp"}
-
-// IsImageName reports whether the file name has an image extension.
-func IsImageName(name string) bool {
-	return slices.Contains(imageExts, strings.ToLower(filepath.Ext(name)))
-}
-
-// maxProbeFiles bounds a probe folder: a scan over more images than this is
-// better done on a sample.
-const maxProbeFiles = 100000
-
-// ProbeFiles lists the image files directly inside dir (by extension, hidden
-// files skipped), sorted by name.
+// ProbeFiles lists the image files directly inside dir (viz.ProbeFiles: by
+// extension, hidden files skipped, sorted by name).
 func ProbeFiles(dir string) ([]string, error) {
 	st, err := os.Stat(dir)
 	if err != nil {
@@ -85,23 +73,9 @@ func ProbeFiles(dir string) ([]string, error) {
 	if !st.IsDir() {
 		return nil, inputf(dir, "is not a folder")
 	}
-	entries, err := os.ReadDir(dir)
+	files, err := viz.ProbeFiles(dir)
 	if err != nil {
-		return nil, inputErr(dir, unwrapPath(err))
+		return nil, inputErr(dir, err)
 	}
-	var files []string
-	for _, e := range entries {
-		if e.IsDir() || strings.HasPrefix(e.Name(), ".") || !IsImageName(e.Name()) {
-			continue
-		}
-		files = append(files, filepath.Join(dir, e.Name()))
-		if len(files) > maxProbeFiles {
-			return nil, inputf(dir, "more than %d images; scan a sample", maxProbeFiles)
-		}
-	}
-	if len(files) == 0 {
-		return nil, inputf(dir, "has no image files (%s)", strings.Join(imageExts, " "))
-	}
-	slices.Sort(files)
 	return files, nil
 }

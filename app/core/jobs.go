@@ -52,10 +52,10 @@ type Classification struct {
 
 // classification reads the first output of a run for one image.
 func classification(res *infer.Result, labels []string, k int, fit *image.NRGBA) (*Classification, error) {
-	if len(res.Outputs) == 0 || len(res.Outputs[0].Data) == 0 {
+	scores := res.Scores(0)
+	if len(scores) == 0 {
 		return nil, fmt.Errorf("core: the model returned no scores")
 	}
-	scores := res.Outputs[0].Data
 	p, already := infer.Probabilities(scores)
 	return &Classification{
 		Top:       infer.TopK(p, labels, k),
@@ -136,17 +136,17 @@ func CheckOcclusion(set viz.OcclusionSettings, width, height int) error {
 	bad := func(format string, args ...any) error { return inputf("", format, args...) }
 	switch {
 	case set.Patch < 1 || set.Patch > width || set.Patch > height:
-		return bad("patch %d is outside 1…%d (the model's input is %d×%d)", set.Patch, min(width, height), width, height)
+		return bad("patch %d is outside 1…%d (the model's input is %dx%d)", set.Patch, min(width, height), width, height)
 	case set.Stride < 1 || set.Stride > max(width, height):
 		return bad("stride %d is outside 1…%d", set.Stride, max(width, height))
 	}
 	switch set.Fill {
-	case "grey", "mean", "blur", "zero":
+	case "", viz.FillGrey, viz.FillMean, viz.FillBlur, viz.FillZero:
 	default:
 		return bad("fill %q: use grey, mean, blur or zero", set.Fill)
 	}
 	switch set.Score {
-	case "probability", "logit":
+	case "", viz.ScoreProbability, viz.ScoreLogit:
 	default:
 		return bad("score %q: use probability or logit", set.Score)
 	}
@@ -246,9 +246,10 @@ func (w *Workspace) Kernels(layer string) (*modelio.Kernels, error) {
 }
 
 // Tiles draws the filters of a convolution ("" = the first layer) as tiles
-// (viz.Tiles), flagged with zero and duplicate kernels (viz.KernelFlags) and,
-// when scan is not nil, with the scan's findings for the channels that
-// convolution feeds. Flags already in o are kept.
+// (viz.Tiles, which flags zero and duplicate kernels itself) and, when scan is
+// not nil, marks them with the scan's findings for the channels that
+// convolution feeds. Flags already in o are kept; o.BGR follows the
+// preprocessing in force.
 func (w *Workspace) Tiles(layer string, o viz.TileOptions, scan *viz.ScanReport) (*image.NRGBA, []viz.TileInfo, error) {
 	k, err := w.Kernels(layer)
 	if err != nil {
@@ -265,9 +266,10 @@ func (w *Workspace) Tiles(layer string, o viz.TileOptions, scan *viz.ScanReport)
 		}
 	}
 	add(o.Flags)
-	add(viz.KernelFlags(k))
 	add(ScanFlags(scan, k.Node))
 	o.Flags = flags
+	c, _ := w.snapshot()
+	o.BGR = c.BGR
 	img, info, err := viz.Tiles(k, o)
 	if err != nil {
 		return nil, nil, fmt.Errorf("core: %s: filters of %s: %w", w.Model.Name, k.Node, err)

@@ -6,6 +6,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"os"
+	"path/filepath"
 	"strings"
 	"sync"
 	"unicode/utf8"
@@ -13,6 +14,7 @@ import (
 	"fovea/modelio"
 	"fovea/modelio/infer"
 	"fovea/modelio/prep"
+	"fovea/viz"
 )
 
 // Where labels and preprocessing settings came from, as shown to the user.
@@ -31,6 +33,9 @@ const (
 type Workspace struct {
 	Model *modelio.Model
 	Demo  string // "" for a user's file; "healthy" or "unhealthy" for the embedded demo
+	// Hash is the hex SHA-256 of the model file's content: the key of the
+	// per-model settings (prep.Settings).
+	Hash string
 
 	mu         sync.Mutex
 	cfg        prep.Config
@@ -50,14 +55,18 @@ func OpenModel(path string) (*Workspace, error) {
 	if err != nil {
 		return nil, inputErr(path, err)
 	}
-	return newWorkspace(m, "")
+	hash, err := prep.HashFile(path)
+	if err != nil {
+		return nil, inputErr(path, err)
+	}
+	return newWorkspace(m, "", hash)
 }
 
-func newWorkspace(m *modelio.Model, demo string) (*Workspace, error) {
+func newWorkspace(m *modelio.Model, demo, hash string) (*Workspace, error) {
 	if len(m.Outputs) == 0 {
 		return nil, inputf(m.Name, "the model has no outputs")
 	}
-	w := &Workspace{Model: m, Demo: demo}
+	w := &Workspace{Model: m, Demo: demo, Hash: hash}
 	w.cfg = prep.Guess(m)
 	w.cfgFrom = FromGuess
 	if len(m.Labels) > 0 {
@@ -107,6 +116,54 @@ func (w *Workspace) SetPrep(c prep.Config) error {
 	w.cfgFrom = FromChosen
 	w.mu.Unlock()
 	return nil
+}
+
+// Restore puts in force the settings the user saved for this model
+// ([Workspace.Remember]; prep.LoadSettings, keyed by the file's content),
+// and reports whether there were any. A saved label file that is gone or no
+// longer fits is reported as an error after the preprocessing was restored.
+func (w *Workspace) Restore() (bool, error) {
+	dir, err := prep.SettingsDir()
+	if err != nil {
+		return false, err
+	}
+	s, found, err := prep.LoadSettings(dir, w.Hash)
+	if err != nil || !found {
+		return false, err
+	}
+	if err := CheckPrep(w.Model, s.Prep); err != nil {
+		return false, fmt.Errorf("core: saved settings for %s no longer fit: %w", w.Model.Name, err)
+	}
+	w.mu.Lock()
+	w.cfg, w.cfgFrom = s.Prep, FromSaved
+	w.mu.Unlock()
+	if s.Labels != "" {
+		if err := w.LoadLabels(s.Labels); err != nil {
+			return true, err
+		}
+	}
+	return true, nil
+}
+
+// Remember saves the preprocessing in force and the label file (when labels
+// came from one) as this model's settings, in the user's config folder
+// (prep.SettingsDir), never beside the model.
+func (w *Workspace) Remember() error {
+	dir, err := prep.SettingsDir()
+	if err != nil {
+		return err
+	}
+	w.mu.Lock()
+	s := prep.Settings{Hash: w.Hash, Model: w.Model.Path, Prep: w.cfg}
+	switch w.labelsFrom {
+	case FromModel, FromNowhere, FromSaved:
+	default:
+		if abs, err := filepath.Abs(w.labelsFrom); err == nil {
+			s.Labels = abs
+		}
+	}
+	w.mu.Unlock()
+	return prep.SaveSettings(dir, &s)
 }
 
 // Labels returns the class labels in force (nil when there are none) and
@@ -196,43 +253,21 @@ func ReadLabels(path string) ([]string, error) {
 	return labels, nil
 }
 
-// Largest input side accepted in settings: far above any classifier's input,
-// small enough that one image tensor stays under a few hundred megabytes.
-const maxSide = 8192
-
-// CheckPrep reports whether c can feed m's image input: known values for
-// every choice, positive sizes within limits, no zero std, and the sizes the
-// model fixes respected.
+// CheckPrep reports whether c can feed m's image input: c.Validate, and the
+// sizes, channels and layout the model fixes respected.
 func CheckPrep(m *modelio.Model, c prep.Config) error {
+	if err := c.Validate(); err != nil {
+		return &InputError{Err: err}
+	}
 	bad := func(format string, args ...any) error { return inputf("", format, args...) }
-	switch {
-	case c.Width <= 0 || c.Height <= 0 || c.Width > maxSide || c.Height > maxSide:
-		return bad("input size %d×%d is outside 1…%d pixels", c.Width, c.Height, maxSide)
-	case c.Channels != 1 && c.Channels != 3:
-		return bad("%d channels: only 1 (grey) and 3 (colour) are supported", c.Channels)
-	case c.Resize != "stretch" && c.Resize != "crop":
-		return bad("resize %q: use stretch or crop", c.Resize)
-	case c.Range != "0-1" && c.Range != "0-255" && c.Range != "-1-1":
-		return bad("range %q: use 0-1, 0-255 or -1-1", c.Range)
-	case c.Layout != "nchw" && c.Layout != "nhwc":
-		return bad("layout %q: use nchw or nhwc", c.Layout)
-	}
-	for i, s := range c.Std {
-		if s == 0 || s != s {
-			return bad("std of channel %d is %v: it divides, so it must be a non-zero number", i, s)
-		}
-		if c.Mean[i] != c.Mean[i] {
-			return bad("mean of channel %d is not a number", i)
-		}
-	}
 	if im := m.Image; im != nil {
 		if im.Width > 0 && im.Width != c.Width || im.Height > 0 && im.Height != c.Height {
-			return bad("input size %d×%d, but model %s takes %d×%d", c.Width, c.Height, m.Name, im.Width, im.Height)
+			return bad("input size %dx%d, but model %s takes %dx%d", c.Width, c.Height, m.Name, im.Width, im.Height)
 		}
 		if im.Channels > 0 && im.Channels != c.Channels {
 			return bad("%d channels, but model %s takes %d", c.Channels, m.Name, im.Channels)
 		}
-		if im.Layout != "" && im.Layout != c.Layout && im.Channels > 0 && im.Width > 0 && im.Height > 0 {
+		if im.Layout != "" && im.Layout != c.Layout && im.Channels > 0 && im.Width > 0 && im.Height > 0 && im.Width != im.Channels {
 			return bad("layout %s, but model %s takes %s", c.Layout, m.Name, im.Layout)
 		}
 	}
@@ -254,9 +289,7 @@ func (w *Workspace) sessionLocked(capture bool) (*infer.Session, error) {
 	var opt infer.Options
 	if capture {
 		slot = &w.capture
-		for _, l := range w.Model.ActivationLayers() {
-			opt.Capture = append(opt.Capture, l.Output)
-		}
+		opt.Capture = captureNames(w.Model)
 	}
 	if *slot == nil {
 		s, err := infer.NewSession(w.Model, opt)
@@ -293,8 +326,7 @@ func (w *Workspace) ObserveShapes(ctx context.Context) error {
 		return err
 	}
 	c := w.cfg
-	in := make([]float32, c.Channels*c.Width*c.Height)
-	c.Tensor(prep.Planes(blank(c.Width, c.Height)), in)
+	_, in := tensor(blank(c.Width, c.Height), c)
 	res, err := s.Run(ctx, in, 1)
 	if err != nil {
 		return fmt.Errorf("core: %s: a run to observe layer shapes failed: %w", w.Model.Name, err)
@@ -309,4 +341,24 @@ func (w *Workspace) ObserveShapes(ctx context.Context) error {
 	w.Model.Observe(shapes)
 	w.observed = true
 	return nil
+}
+
+// captureNames are the tensors the capturing session returns: every
+// activation layer the window shows and every layer a scan reads.
+func captureNames(m *modelio.Model) []string {
+	var names []string
+	seen := map[string]bool{}
+	for _, l := range m.ActivationLayers() {
+		if !seen[l.Output] {
+			seen[l.Output] = true
+			names = append(names, l.Output)
+		}
+	}
+	for _, n := range viz.ScanCapture(m) {
+		if !seen[n] {
+			seen[n] = true
+			names = append(names, n)
+		}
+	}
+	return names
 }

@@ -1,0 +1,87 @@
+package main
+
+import (
+	"flag"
+	"fmt"
+
+	"fovea/viz"
+)
+
+var filtersCommand = &command{
+	name:    "filters",
+	args:    "--out FILE [--layer NAME] [--json]",
+	summary: "draw the filters (kernels) of the first layer or of --layer as a PNG",
+	about: `Draws every filter of a convolution as a tile: for a first layer reading a colour
+image the three input channels become red, green and blue with zero at mid-grey;
+otherwise one input channel (--slice) is drawn with a diverging colour map.
+Filters whose kernel is all zeros or nearly parallel to another get a frame.`,
+	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
+		out := fs.String("out", "", "write the PNG to `FILE` (required; - for stdout)")
+		layer := fs.String("layer", "", "the convolution's node `NAME` (default: the first layer)")
+		cell := fs.Int("cell", 0, "`PIXELS` per weight (default: about 48 pixels per tile)")
+		sortNorm := fs.Bool("sort", false, "order tiles by decreasing L2 norm")
+		perFilter := fs.Bool("per-filter", false, "scale each filter by its own largest weight (default: one scale for all)")
+		slice := fs.Int("slice", -1, "input `CHANNEL` to draw; -1 draws 3-channel kernels as RGB")
+		columns := fs.Int("columns", 0, "tiles per row (default: about square)")
+		captions := fs.Bool("captions", false, "write index, norm and flag letters under each tile")
+		asJSON := fs.Bool("json", false, "print each tile's index, norm, place and flags as JSON")
+		return func(j *job) int {
+			if *out == "" {
+				return j.usageErr("--out FILE is required")
+			}
+			if *out == "-" && *asJSON {
+				return j.usageErr("--out - and --json would both write to stdout")
+			}
+			o := viz.TileOptions{Cell: *cell, PerFilter: *perFilter, SortByNorm: *sortNorm,
+				Slice: *slice, Columns: *columns, Labels: *captions}
+			k, err := j.ws.Kernels(*layer)
+			if err != nil {
+				return j.fail(err)
+			}
+			img, info, err := j.ws.Tiles(*layer, o, nil)
+			if err != nil {
+				return j.fail(err)
+			}
+			if code := j.writePNG(*out, img); code != exitOK {
+				return code
+			}
+			if *asJSON {
+				d := filtersDoc{Model: j.ws.Name(), Layer: k.Node, Filters: k.M, Channels: k.C,
+					Height: k.KH, Width: k.KW, Tiles: []tileDoc{}}
+				for _, t := range info {
+					d.Tiles = append(d.Tiles, tileDoc{t.Index, t.Norm,
+						[4]int{t.Rect.Min.X, t.Rect.Min.Y, t.Rect.Dx(), t.Rect.Dy()}, nonNil(t.Flags)})
+				}
+				return j.writeJSON(d)
+			}
+			if *out != "-" {
+				fmt.Fprintf(j.stdout, "wrote %s: %d filters of %s (%d×%d×%d)\n", *out, k.M, k.Node, k.C, k.KH, k.KW)
+			}
+			return exitOK
+		}
+	},
+}
+
+type filtersDoc struct {
+	Model    string    `json:"model"`
+	Layer    string    `json:"layer"`
+	Filters  int       `json:"filters"`
+	Channels int       `json:"channels"`
+	Height   int       `json:"kernel_height"`
+	Width    int       `json:"kernel_width"`
+	Tiles    []tileDoc `json:"tiles"`
+}
+
+type tileDoc struct {
+	Index int      `json:"index"`
+	Norm  float64  `json:"norm"`
+	Rect  [4]int   `json:"rect"` // x, y, width, height in the PNG
+	Flags []string `json:"flags"`
+}
+
+func nonNil(s []string) []string {
+	if s == nil {
+		return []string{}
+	}
+	return s
+}

@@ -1,0 +1,193 @@
+package main
+
+import (
+	"flag"
+	"fmt"
+	"image"
+
+	"fovea/app/core"
+	"fovea/viz"
+)
+
+var occludeCommand = &command{
+	name:    "occlude",
+	args:    "--image FILE (--out FILE | --json) [--class CLASS] [--versus CLASS]",
+	summary: "occlusion sensitivity: which parts of the image the score depends on (PNG or JSON)",
+	about: `Hides one square patch of the image at a time and measures how much the score of
+the target class drops (Zeiler & Fergus 2014). The heatmap is drawn over the image
+as the model saw it (after resizing); red: hiding the patch lowered the score,
+blue: it raised it. With --versus the second class's map is drawn beside the first
+on the same scale.
+
+The map is evidence about this model on this image, not proof of what it looks at.`,
+	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
+		var o occlusionFlags
+		o.declare(fs)
+		out := fs.String("out", "", "write the heatmap overlay PNG to `FILE` (- for stdout)")
+		asJSON := fs.Bool("json", false, "print the scores as JSON")
+		return func(j *job) int {
+			if *out == "" && !*asJSON {
+				return j.usageErr("give --out FILE for the picture, --json for the scores, or both")
+			}
+			if *out == "-" && *asJSON {
+				return j.usageErr("--out - and --json would both write to stdout")
+			}
+			res, code := o.run(j)
+			if res == nil {
+				return code
+			}
+			if *out != "" {
+				img := viz.RenderOcclusion(res.fit, res.occ, viz.HeatOptions{})
+				if code := j.writePNG(*out, img); code != exitOK {
+					return code
+				}
+			}
+			if *asJSON {
+				return j.writeJSON(occlusionJSON(j, res))
+			}
+			if *out != "-" {
+				for _, oc := range res.occ {
+					fmt.Fprintf(j.stdout, "%s (class %d): probability %.2f%%, largest drop %.4g (%s)\n",
+						oc.Label, oc.Target, 100*oc.Probability, largest(oc.Scores), oc.Unit())
+				}
+				fmt.Fprintf(j.stdout, "wrote %s\n", *out)
+			}
+			return exitOK
+		}
+	},
+}
+
+// occlusionFlags are the flags of occlude and report.
+type occlusionFlags struct {
+	image, class, versus string
+	patch, stride        int
+	fill, score          string
+}
+
+func (o *occlusionFlags) declare(fs *flag.FlagSet) {
+	fs.StringVar(&o.image, "image", "", "image `FILE` (required)")
+	fs.StringVar(&o.class, "class", "", "target `CLASS`, a label or a number (default: the predicted class)")
+	fs.StringVar(&o.versus, "versus", "", "a second `CLASS` to compare with, e.g. the one the image should have been")
+	fs.IntVar(&o.patch, "patch", 0, "side of the hidden square in input `PIXELS` (default: a sixth of the shorter side)")
+	fs.IntVar(&o.stride, "stride", 0, "step between patch positions in `PIXELS` (default: half the patch)")
+	fs.StringVar(&o.fill, "fill", viz.FillGrey, "what hides the patch: `FILL` grey (0.5 before normalisation), mean, blur or zero")
+	fs.StringVar(&o.score, "score", viz.ScoreProbability, "the score compared: `SCORE` probability or logit")
+}
+
+// occlusionResult is what occlude and report share.
+type occlusionResult struct {
+	occ   []*viz.Occlusion
+	fit   *image.NRGBA
+	image string
+	set   viz.OcclusionSettings
+}
+
+// run loads the image, resolves the classes and runs the occlusion.
+func (o *occlusionFlags) run(j *job) (*occlusionResult, int) {
+	if o.image == "" {
+		return nil, j.usageErr("--image FILE is required")
+	}
+	cfg, _ := j.ws.Prep()
+	set := core.DefaultOcclusion(cfg.Width, cfg.Height)
+	if o.patch != 0 {
+		set.Patch = o.patch
+		if o.stride == 0 {
+			set.Stride = max(1, o.patch/2)
+		}
+	}
+	if o.stride != 0 {
+		set.Stride = o.stride
+	}
+	set.Fill, set.Score = o.fill, o.score
+	if err := core.CheckOcclusion(set, cfg.Width, cfg.Height); err != nil {
+		return nil, j.fail(err)
+	}
+	img, err := core.LoadImage(o.image)
+	if err != nil {
+		return nil, j.fail(err)
+	}
+	var targets []int
+	if o.class != "" || o.versus != "" {
+		first := -1
+		if o.class != "" {
+			if first, err = j.ws.ClassIndex(o.class); err != nil {
+				return nil, j.fail(fmt.Errorf("--class: %w", err))
+			}
+		} else {
+			cl, err := j.ws.Classify(j.ctx, img, 1)
+			if err != nil {
+				return nil, j.fail(err)
+			}
+			first = cl.Top[0].Index
+		}
+		targets = append(targets, first)
+		if o.versus != "" {
+			v, err := j.ws.ClassIndex(o.versus)
+			if err != nil {
+				return nil, j.fail(fmt.Errorf("--versus: %w", err))
+			}
+			targets = append(targets, v)
+		}
+	}
+	occ, fit, err := j.ws.Occlude(j.ctx, img, set, targets, j.progressFunc("occluding"))
+	if err != nil {
+		return nil, j.fail(err)
+	}
+	return &occlusionResult{occ: occ, fit: fit, image: o.image, set: set}, exitOK
+}
+
+// The JSON form of `fovea occlude` (issue 8): the first target at the top
+// level, a --versus target under "versus" with the same fields.
+type occlusionDoc struct {
+	Model string `json:"model,omitempty"`
+	Image string `json:"image,omitempty"`
+	occlusionTarget
+	Versus *occlusionTarget `json:"versus,omitempty"`
+}
+
+type occlusionTarget struct {
+	Target predictionDoc `json:"target"`
+	Patch  int           `json:"patch"`
+	Stride int           `json:"stride"`
+	Fill   string        `json:"fill"`
+	Score  string        `json:"score"`
+	// Base is the target's score (per Score) on the unoccluded image.
+	Base float64 `json:"base"`
+	// Unit says what scores[i][j] is: the drop of the score with the patch
+	// at (ys[i], xs[j]); negative where hiding raised it.
+	Unit   string      `json:"unit"`
+	Width  int         `json:"width"`
+	Height int         `json:"height"`
+	Ys     []int       `json:"ys"`
+	Xs     []int       `json:"xs"`
+	Scores [][]float64 `json:"scores"`
+}
+
+func occlusionJSON(j *job, r *occlusionResult) occlusionDoc {
+	t := func(o *viz.Occlusion) occlusionTarget {
+		return occlusionTarget{
+			Target: predictionDoc{o.Target, o.Label, o.Probability},
+			Patch:  o.Patch, Stride: o.Stride, Fill: o.Fill, Score: o.Score, Base: o.Base, Unit: o.Unit(),
+			Width: o.Width, Height: o.Height, Ys: o.Ys, Xs: o.Xs, Scores: o.Scores,
+		}
+	}
+	d := occlusionDoc{Model: j.ws.Name(), Image: r.image, occlusionTarget: t(r.occ[0])}
+	if len(r.occ) > 1 {
+		v := t(r.occ[1])
+		d.Versus = &v
+	}
+	return d
+}
+
+// largest is the largest value of a grid.
+func largest(g [][]float64) float64 {
+	m := 0.0
+	for i, row := range g {
+		for j, v := range row {
+			if i == 0 && j == 0 || v > m {
+				m = v
+			}
+		}
+	}
+	return m
+}

@@ -1,0 +1,89 @@
+package main
+
+import (
+	"flag"
+	"fmt"
+	"os"
+	"path/filepath"
+	"strconv"
+	"time"
+
+	"fovea/app/core"
+)
+
+var reportCommand = &command{
+	name:    "report",
+	args:    "--image FILE --out FILE [--versus CLASS]",
+	summary: "the one-page picture explaining a prediction, to share with a colleague",
+	about: `Composes one PNG page: the image as the model saw it, the top-k predictions, the
+occlusion heatmaps of the predicted class and (with --versus) of the class it should
+have been, side by side on one scale with their legend, the model's name, the
+preprocessing and occlusion settings, the date, and the caution that a heatmap is
+evidence about this model on this image, not proof.`,
+	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
+		var o occlusionFlags
+		o.declare(fs)
+		out := fs.String("out", "", "write the PNG to `FILE` (required; - for stdout)")
+		k := fs.Int("k", 5, "rows of the top-k table")
+		date := fs.String("date", "", "`YYYY-MM-DD` printed on the page (default: today, or $SOURCE_DATE_EPOCH)")
+		return func(j *job) int {
+			if *out == "" {
+				return j.usageErr("--out FILE is required")
+			}
+			if *k < 1 {
+				return j.usageErr("--k %d: give at least 1", *k)
+			}
+			when, err := reportDate(*date)
+			if err != nil {
+				return j.usageErr("%v", err)
+			}
+			res, code := o.run(j)
+			if res == nil {
+				return code
+			}
+			versus := -1
+			if len(res.occ) > 1 {
+				versus = res.occ[1].Target
+			}
+			img, err := core.LoadImage(o.image)
+			if err != nil {
+				return j.fail(err)
+			}
+			page, err := j.ws.Report(j.ctx, core.ReportInput{
+				Image: img, ImageName: filepath.Base(o.image), K: *k, Versus: versus,
+				Occlusion: res.set, Occlusions: res.occ, Date: when,
+			}, nil)
+			if err != nil {
+				return j.fail(err)
+			}
+			if code := j.writePNG(*out, page); code != exitOK {
+				return code
+			}
+			if *out != "-" {
+				fmt.Fprintf(j.stdout, "wrote %s (%d×%d)\n", *out, page.Bounds().Dx(), page.Bounds().Dy())
+			}
+			return exitOK
+		}
+	},
+}
+
+// reportDate is the date printed on a report: the flag, else
+// $SOURCE_DATE_EPOCH (the reproducible-builds convention, seconds since
+// 1970), else now.
+func reportDate(flagValue string) (time.Time, error) {
+	if flagValue != "" {
+		t, err := time.ParseInLocation("2006-01-02", flagValue, time.Local)
+		if err != nil {
+			return time.Time{}, fmt.Errorf("--date %q: want YYYY-MM-DD", flagValue)
+		}
+		return t, nil
+	}
+	if s := os.Getenv("SOURCE_DATE_EPOCH"); s != "" {
+		sec, err := strconv.ParseInt(s, 10, 64)
+		if err != nil {
+			return time.Time{}, fmt.Errorf("$SOURCE_DATE_EPOCH %q: want seconds since 1970", s)
+		}
+		return time.Unix(sec, 0).UTC(), nil
+	}
+	return time.Now(), nil
+}

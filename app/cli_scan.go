@@ -1,0 +1,142 @@
+package main
+
+import (
+	"flag"
+	"fmt"
+	"strconv"
+	"strings"
+
+	"fovea/app/core"
+	"fovea/viz"
+)
+
+var scanCommand = &command{
+	name:    "scan",
+	args:    "--probe DIR [--csv | --json] [--max-dead N]",
+	summary: "find dead, rare and constant filters over a folder of probe images",
+	about: `Runs the model on every image in the probe folder and records, for each channel
+of each ReLU-like activation layer, on what fraction of the images it fired
+(any value above zero), its largest and its mean value. Flags: dead (never fired),
+rare (fired on fewer than --rare of the images), constant (one value everywhere),
+zero_kernel and duplicate (from the weights of the convolution feeding it).
+
+With --max-dead N the exit status is 3 when more than N channels are dead, so a
+training pipeline can stop a bad run.`,
+	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
+		probe := fs.String("probe", "", "folder `DIR` of probe images (default for the demo: its own probe images)")
+		asCSV := fs.Bool("csv", false, "print every channel as CSV")
+		asJSON := fs.Bool("json", false, "print the report as JSON")
+		maxDead := fs.Int("max-dead", -1, "exit with status 3 when more than `N` channels are dead (-1: no limit)")
+		rare := fs.Float64("rare", viz.DefaultRare, "`FRACTION` of images under which a firing channel is rare")
+		skip := fs.Bool("skip-unreadable", false, "pass over probe files that cannot be read (listed in the report) instead of stopping")
+		all := fs.Bool("all", false, "list every channel in the table, not only flagged ones")
+		return func(j *job) int {
+			if *asCSV && *asJSON {
+				return j.usageErr("give --csv or --json, not both")
+			}
+			if !(*rare > 0 && *rare <= 1) {
+				return j.usageErr("--rare %g: give a fraction above 0 and at most 1", *rare)
+			}
+			if *maxDead < -1 {
+				return j.usageErr("--max-dead %d: give 0 or more (or -1 for no limit)", *maxDead)
+			}
+			dir := *probe
+			if dir == "" {
+				if j.ws.Demo == "" {
+					return j.usageErr("--probe DIR is required for your own model")
+				}
+				var err error
+				if dir, err = core.DemoProbeDir(); err != nil {
+					return j.fail(err)
+				}
+			}
+			files, err := core.ProbeFiles(dir)
+			if err != nil {
+				return j.fail(err)
+			}
+			r, err := j.ws.Scan(j.ctx, files, viz.ScanOptions{Rare: *rare, SkipUnreadable: *skip}, j.progressFunc("scanning"))
+			if err != nil {
+				return j.fail(err)
+			}
+			code := exitOK
+			switch {
+			case *asJSON:
+				if err := r.WriteJSON(j.stdout); err != nil {
+					code = j.fail(err)
+				}
+			case *asCSV:
+				if err := r.WriteCSV(j.stdout); err != nil {
+					code = j.fail(err)
+				}
+			default:
+				writeScanTable(j, r, *all)
+			}
+			if code != exitOK {
+				return code
+			}
+			if dead := r.Count(viz.FlagDead); *maxDead >= 0 && dead > *maxDead {
+				fmt.Fprintf(j.stderr, "fovea scan: %d dead channels, more than --max-dead %d\n", dead, *maxDead)
+				return exitGate
+			}
+			return exitOK
+		}
+	},
+}
+
+// writeScanTable prints the flagged channels (or all) and a summary per layer.
+func writeScanTable(j *job, r *viz.ScanReport, all bool) {
+	w := j.stdout
+	fmt.Fprintf(w, "%s: %d probe images, rare below %g of them\n", j.ws.Name(), r.Images, r.Rare)
+	for _, s := range r.Skipped {
+		fmt.Fprintf(w, "skipped (unreadable): %s\n", s)
+	}
+	fmt.Fprintln(w)
+	t := table{right: []bool{false, true, true, true, true, false}}
+	t.add("layer", "channel", "fires", "max", "mean", "flags")
+	rows := 0
+	for _, row := range r.Rows() {
+		if !all && len(row.Flags) == 0 {
+			continue
+		}
+		rows++
+		t.add(row.Layer, strconv.Itoa(row.Index), fmt.Sprintf("%.1f%%", 100*row.Fires), num(row.Max), num(row.Mean), strings.Join(row.Flags, " "))
+	}
+	if rows == 0 {
+		fmt.Fprintln(w, "no channel is flagged")
+	} else {
+		t.write(w)
+	}
+	fmt.Fprintln(w)
+	s := table{right: []bool{false, true, true, true, true, true, true}}
+	s.add("layer", "channels", viz.FlagDead, viz.FlagRare, viz.FlagConstant, viz.FlagZeroKernel, viz.FlagDuplicate)
+	var total [6]int
+	for _, l := range r.Layers {
+		var n [6]int
+		n[0] = len(l.Channels)
+		for _, ch := range l.Channels {
+			for i, f := range []string{viz.FlagDead, viz.FlagRare, viz.FlagConstant, viz.FlagZeroKernel, viz.FlagDuplicate} {
+				for _, g := range ch.Flags {
+					if g == f {
+						n[i+1]++
+					}
+				}
+			}
+		}
+		cells := []string{l.Name}
+		for i, v := range n {
+			cells = append(cells, strconv.Itoa(v))
+			total[i] += v
+		}
+		s.add(cells...)
+	}
+	s.rule()
+	cells := []string{"total"}
+	for _, v := range total {
+		cells = append(cells, strconv.Itoa(v))
+	}
+	s.add(cells...)
+	s.write(w)
+}
+
+// num prints a measured value with 4 significant digits.
+func num(v float64) string { return strconv.FormatFloat(v, 'g', 4, 64) }

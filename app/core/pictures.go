@@ -1,0 +1,96 @@
+package core
+
+import (
+	"fmt"
+	"image"
+	"image/color"
+	"image/draw"
+	"strings"
+
+	"fovea/modelio"
+	"fovea/modelio/infer"
+	"fovea/viz"
+)
+
+// MapLayer returns the captured activation layer named name (node or output
+// tensor name; "" = the first), with its map from a.
+func (a *Activations) MapLayer(name string) (modelio.Layer, infer.Tensor, error) {
+	var names []string
+	for _, l := range a.Layers {
+		if name == "" || l.Name == name || l.Output == name {
+			t, ok := a.Maps[l.Output]
+			if !ok {
+				return l, infer.Tensor{}, fmt.Errorf("core: layer %s: its activation map was not captured", l.Name)
+			}
+			return l, t, nil
+		}
+		names = append(names, l.Name)
+	}
+	if name == "" {
+		return modelio.Layer{}, infer.Tensor{}, inputf("", "the model has no activation layer to show")
+	}
+	return modelio.Layer{}, infer.Tensor{}, inputf("", "no activation layer %q (layers: %s)", name, strings.Join(names, ", "))
+}
+
+// MapPicture draws the activation-map grid of one layer (viz.MapGrid) with
+// its colour legend under it, on a light page.
+func (a *Activations) MapPicture(layer string, o viz.GridOptions) (*image.NRGBA, []viz.ChannelStats, error) {
+	l, t, err := a.MapLayer(layer)
+	if err != nil {
+		return nil, nil, err
+	}
+	grid, stats, err := viz.MapGrid(t, MapLayout, o)
+	if err != nil {
+		return nil, nil, fmt.Errorf("core: activation maps of %s: %w", l.Name, err)
+	}
+	lo, hi := viz.MapRange(stats)
+	cmap := viz.Sequential
+	if lo < 0 {
+		cmap = viz.Diverging
+	}
+	if !(lo < hi) { // every value the same (often all zero): give the legend a range
+		hi = lo + 1
+	}
+	unit := "activation"
+	if o.PerTile {
+		unit = "activation (each tile scaled to its own range)"
+	}
+	return withLegend(grid, lo, hi, unit, cmap), stats, nil
+}
+
+// legendHeight is the height of a horizontal colour bar with its labels.
+const legendHeight = 56
+
+// withLegend puts pic on a light page with a horizontal colour bar under it.
+func withLegend(pic *image.NRGBA, lo, hi float64, unit string, cmap func(float64) color.NRGBA) *image.NRGBA {
+	const margin = 8
+	pw, ph := pic.Bounds().Dx(), pic.Bounds().Dy()
+	barW := max(240, min(pw, 480))
+	w := max(pw, barW) + 2*margin
+	h := ph + legendHeight + 3*margin
+	page := image.NewNRGBA(image.Rect(0, 0, w, h))
+	draw.Draw(page, page.Rect, &image.Uniform{viz.Light}, image.Point{}, draw.Src)
+	draw.Draw(page, image.Rect(margin, margin, margin+pw, margin+ph), pic, pic.Bounds().Min, draw.Src)
+	bar := viz.ColorBar(barW, legendHeight, lo, hi, unit, cmap)
+	y := margin*2 + ph
+	draw.Draw(page, image.Rect(margin, y, margin+barW, y+legendHeight), bar, image.Point{}, draw.Src)
+	return page
+}
+
+// Enlarge scales img up by an integer factor with nearest-neighbour
+// sampling, so that every input pixel stays a crisp square.
+func Enlarge(img image.Image, factor int) *image.NRGBA {
+	b := img.Bounds()
+	if factor <= 1 {
+		out := image.NewNRGBA(image.Rect(0, 0, b.Dx(), b.Dy()))
+		draw.Draw(out, out.Rect, img, b.Min, draw.Src)
+		return out
+	}
+	out := image.NewNRGBA(image.Rect(0, 0, b.Dx()*factor, b.Dy()*factor))
+	for y := 0; y < out.Rect.Dy(); y++ {
+		for x := 0; x < out.Rect.Dx(); x++ {
+			out.Set(x, y, img.At(b.Min.X+x/factor, b.Min.Y+y/factor))
+		}
+	}
+	return out
+}
