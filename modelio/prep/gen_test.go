@@ -107,9 +107,9 @@ func partialGIF(t testing.TB) []byte {
 
 func palettePNG(t testing.TB) []byte {
 	img := image.NewPaletted(image.Rect(0, 0, 3, 1), palette.WebSafe)
-	img.SetColorIndex(0, 0, 0)    // WebSafe[0] = #000000
-	img.SetColorIndex(1, 0, 5)    // WebSafe[5] = #0000ff
-	img.SetColorIndex(2, 0, 215)  // WebSafe[215] = #ffffff
+	img.SetColorIndex(0, 0, 0)   // WebSafe[0] = #000000
+	img.SetColorIndex(1, 0, 5)   // WebSafe[5] = #0000ff
+	img.SetColorIndex(2, 0, 215) // WebSafe[215] = #ffffff
 	return encPNG(t, img)
 }
 
