@@ -1,0 +1,144 @@
+package infer
+
+import (
+	"context"
+	"os"
+	"testing"
+	"time"
+
+	"fovea/modelio"
+	"fovea/modelio/onnxpb"
+)
+
+// demoModel is the demo classifier (assets/make_demo.py): 64×64×3 NCHW.
+const demoModel = "../../assets/demo/parts.onnx"
+
+// partsLikeCNN is a stand-in of the demo's size when the demo file is not
+// there: 64×64×3 NCHW, three Conv+Relu+MaxPool stages (16, 32, 64 filters),
+// a hidden fully connected layer with Relu and 8 classes.
+func partsLikeCNN() *onnxpb.GraphProto {
+	conv := func(i int, in, w string, m, c int) []*onnxpb.NodeProto {
+		s := string(rune('0' + i))
+		return []*onnxpb.NodeProto{
+			node("Conv", "conv"+s, []string{in, w, "b" + s}, []string{"c" + s}, ints("pads", 1, 1, 1, 1), ints("kernel_shape", 3, 3)),
+			node("Relu", "relu"+s, []string{"c" + s}, []string{"r" + s}),
+			node("MaxPool", "pool"+s, []string{"r" + s}, []string{"p" + s}, ints("kernel_shape", 2, 2), ints("strides", 2, 2)),
+		}
+	}
+	g := &onnxpb.GraphProto{
+		Name:  "partslike",
+		Input: []*onnxpb.ValueInfoProto{vi("image", onnxpb.TensorProto_FLOAT, "N", 3, 64, 64)},
+		Initializer: []*onnxpb.TensorProto{
+			f32("w1", []int64{16, 3, 3, 3}, randn(1, 16*27, 0.3)), f32("b1", []int64{16}, randn(2, 16, 0.1)),
+			f32("w2", []int64{32, 16, 3, 3}, randn(3, 32*144, 0.1)), f32("b2", []int64{32}, randn(4, 32, 0.1)),
+			f32("w3", []int64{64, 32, 3, 3}, randn(5, 64*288, 0.08)), f32("b3", []int64{64}, randn(6, 64, 0.1)),
+			f32("wh", []int64{128, 64 * 8 * 8}, randn(7, 128*4096, 0.02)), f32("bh", []int64{128}, randn(8, 128, 0.1)),
+			f32("wo", []int64{8, 128}, randn(9, 8*128, 0.1)), f32("bo", []int64{8}, randn(10, 8, 0.1)),
+		},
+		Output: []*onnxpb.ValueInfoProto{vi("logits", onnxpb.TensorProto_FLOAT, "N", 8)},
+	}
+	g.Node = append(g.Node, conv(1, "image", "w1", 16, 3)...)
+	g.Node = append(g.Node, conv(2, "p1", "w2", 32, 16)...)
+	g.Node = append(g.Node, conv(3, "p2", "w3", 64, 32)...)
+	g.Node = append(g.Node,
+		node("Flatten", "flat", []string{"p3"}, []string{"f"}, intAttr("axis", 1)),
+		node("Gemm", "fc1", []string{"f", "wh", "bh"}, []string{"h"}, intAttr("transB", 1)),
+		node("Relu", "relu4", []string{"h"}, []string{"hr"}),
+		node("Gemm", "fc2", []string{"hr", "wo", "bo"}, []string{"logits"}, intAttr("transB", 1)),
+	)
+	return g
+}
+
+// benchSessions opens the demo model (or its stand-in) twice: plain, and
+// capturing every activation layer modelio lists.
+func benchSessions(b *testing.B) (plain, all *Session, x []float32, n int) {
+	needORT(b)
+	var m *modelio.Model
+	if _, err := os.Stat(demoModel); err == nil {
+		if m, err = modelio.Open(demoModel); err != nil {
+			b.Fatal(err)
+		}
+	} else {
+		b.Logf("%s not found; using a CNN of the same size built by the test", demoModel)
+		m = writeModel(b, "partslike.onnx", modelBytes(b, partsLikeCNN(), 13, nil))
+	}
+	capture := ActivationOutputs(m)
+	if len(capture) == 0 {
+		b.Fatalf("%s: no activation layers to capture", m.Name)
+	}
+	plain = newSession(b, m, Options{})
+	all = newSession(b, m, Options{Capture: capture})
+	n = plain.BatchSize()
+	dims, err := plain.ImageDims()
+	if err != nil {
+		b.Fatal(err)
+	}
+	per := 1
+	for _, d := range dims {
+		per *= int(d)
+	}
+	x = randn(11, n*per, 1)
+	b.Logf("%s: batch %d, %d activation maps captured", m.Name, n, len(capture))
+	return plain, all, x, n
+}
+
+func BenchmarkRunPlain(b *testing.B) {
+	plain, _, x, n := benchSessions(b)
+	benchRun(b, plain, x, n)
+}
+
+func BenchmarkRunCaptureAll(b *testing.B) {
+	_, all, x, n := benchSessions(b)
+	benchRun(b, all, x, n)
+}
+
+func benchRun(b *testing.B, s *Session, x []float32, n int) {
+	ctx := context.Background()
+	r, err := s.Run(ctx, x, n) // learn the shapes: later runs write in place
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		if r, err = s.RunInto(ctx, x, n, r); err != nil {
+			b.Fatal(err)
+		}
+	}
+}
+
+// BenchmarkCaptureRatio measures, in one run and interleaved so that both
+// see the same machine load, a plain run and a run returning every
+// activation map on the same batch, and reports their ratio. Issue 5 bounds
+// it at 1.3.
+func BenchmarkCaptureRatio(b *testing.B) {
+	plain, all, x, n := benchSessions(b)
+	ctx := context.Background()
+	rp, err := plain.Run(ctx, x, n)
+	if err != nil {
+		b.Fatal(err)
+	}
+	ra, err := all.Run(ctx, x, n)
+	if err != nil {
+		b.Fatal(err)
+	}
+	var tp, ta time.Duration
+	for b.Loop() {
+		t0 := time.Now()
+		if rp, err = plain.RunInto(ctx, x, n, rp); err != nil {
+			b.Fatal(err)
+		}
+		t1 := time.Now()
+		if ra, err = all.RunInto(ctx, x, n, ra); err != nil {
+			b.Fatal(err)
+		}
+		tp += t1.Sub(t0)
+		ta += time.Since(t1)
+	}
+	ratio := float64(ta) / float64(tp)
+	b.ReportMetric(ratio, "capture/plain")
+	b.ReportMetric(float64(tp.Microseconds())/float64(b.N), "plain-µs/op")
+	b.ReportMetric(float64(ta.Microseconds())/float64(b.N), "capture-µs/op")
+	if ratio > 1.3 {
+		b.Logf("capture/plain = %.2f, above the 1.3 bound of issue 5", ratio)
+	}
+}

@@ -1,0 +1,66 @@
+package infer
+
+import (
+	"context"
+	"slices"
+
+	"fovea/modelio"
+)
+
+// ActivationOutputs names the output tensor of every layer of m worth
+// capturing as an activation map (m.ActivationLayers), in execution order:
+// the value for Options.Capture when everything is wanted.
+func ActivationOutputs(m *modelio.Model) []string {
+	var names []string
+	for _, l := range m.ActivationLayers() {
+		if l.Output != "" && !slices.Contains(names, l.Output) {
+			names = append(names, l.Output)
+		}
+	}
+	return names
+}
+
+// ObserveShapes runs m once on a blank image with every layer whose output
+// shape static inference could not resolve captured, and records the shapes
+// the runtime produced with m.Observe (their ShapeSource becomes
+// "observed"). It returns how many layers it observed; 0 when none was
+// unknown (and then it runs nothing). opt.Dims must be set when the image
+// dimensions are symbolic; opt.Capture is ignored. The observed shapes are
+// for one image (or the fixed batch), batch first. m must not be in use by
+// other goroutines meanwhile (Observe writes its layer table).
+func ObserveShapes(ctx context.Context, m *modelio.Model, opt Options) (int, error) {
+	var names []string
+	for _, l := range m.Layers {
+		if l.ShapeSource == modelio.SourceUnknown && l.Output != "" && !slices.Contains(names, l.Output) {
+			names = append(names, l.Output)
+		}
+	}
+	if len(names) == 0 {
+		return 0, nil
+	}
+	opt.Capture = names
+	opt.Batch = 1
+	s, err := NewSession(m, opt)
+	if err != nil {
+		return 0, err
+	}
+	defer s.Close()
+	if s.imageErr != nil {
+		return 0, s.imageErr
+	}
+	s.mu.Lock()
+	c := max(s.fixed, 1)
+	raw, err := s.runAlloc(ctx, make([]float32, c*s.imageLen), c)
+	s.mu.Unlock()
+	if err != nil {
+		return 0, err
+	}
+	defer destroy(raw)
+	shapes := map[string][]int64{}
+	for name, j := range s.capIndex {
+		// Any element type: only the shape is wanted here.
+		shapes[name] = slices.Clone([]int64(raw[j].GetShape()))
+	}
+	m.Observe(shapes)
+	return len(shapes), nil
+}

@@ -1,0 +1,557 @@
+package infer
+
+import (
+	"context"
+	"errors"
+	"math"
+	"os"
+	"path/filepath"
+	"runtime"
+	"slices"
+	"strconv"
+	"strings"
+	"testing"
+	"time"
+
+	"fovea/modelio"
+	"fovea/modelio/internal/refconv"
+	"fovea/modelio/onnxpb"
+)
+
+// images returns n pseudo-random images for tinyCNN.
+func images(n int) []float32 { return randn(99, n*3*16*16, 1) }
+
+// The rewrite that adds activation maps as graph outputs must not change the
+// model's own outputs (issue 5): compared bit for bit, on a batch, with and
+// without every intermediate tensor captured.
+func TestRewriteKeepsOutputs(t *testing.T) {
+	for _, softmax := range []bool{false, true} {
+		m := openTiny(t, 0, softmax)
+		plain := newSession(t, m, Options{})
+		capt := newSession(t, m, Options{Capture: tinyOutputs})
+		x := images(5)
+		a, err := plain.Run(context.Background(), x, 5)
+		if err != nil {
+			t.Fatal(err)
+		}
+		b, err := capt.Run(context.Background(), x, 5)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(a.Outputs) != 1 || len(b.Outputs) != 1 {
+			t.Fatalf("outputs: %d plain, %d with captures; want 1 each", len(a.Outputs), len(b.Outputs))
+		}
+		if !slices.Equal(a.Outputs[0].Shape, b.Outputs[0].Shape) || !bitsEqual(a.Outputs[0].Data, b.Outputs[0].Data) {
+			t.Errorf("softmax=%v: model output differs with the rewrite:\n plain %v\n capt  %v", softmax, a.Outputs[0].Data[:5], b.Outputs[0].Data[:5])
+		}
+		if len(a.Maps) != 0 || len(b.Maps) != len(tinyOutputs) {
+			t.Errorf("maps: %d plain, %d captured; want 0 and %d", len(a.Maps), len(b.Maps), len(tinyOutputs))
+		}
+		// shapes of the maps, batch first (by hand from the graph: 16×16
+		// convolved with padding 1 stays 16×16, each pooling halves it)
+		want := map[string][]int64{"c1": {5, 8, 16, 16}, "r1": {5, 8, 16, 16}, "p1": {5, 8, 8, 8}, "c2": {5, 16, 8, 8},
+			"r2": {5, 16, 8, 8}, "p2": {5, 16, 4, 4}, "f": {5, 256}}
+		for name, sh := range want {
+			if got := b.Maps[name].Shape; !slices.Equal(got, sh) {
+				t.Errorf("map %s: shape %v, want %v", name, got, sh)
+			}
+		}
+	}
+}
+
+func bitsEqual(a, b []float32) bool {
+	if len(a) != len(b) {
+		return false
+	}
+	for i := range a {
+		if math.Float32bits(a[i]) != math.Float32bits(b[i]) {
+			return false
+		}
+	}
+	return true
+}
+
+// Every intermediate activation ONNX Runtime returns is reproduced by the
+// direct reference (package refconv, Operators.md formulas) from the
+// runtime's own input to that node, to 1e-4 (|a-b| <= 1e-4·max(1,|b|);
+// float32 sums of a few hundred products differ from float64 ones by about
+// 1e-6). Also end to end: the reference chained from the image gives the
+// same logits.
+func TestActivationsMatchReference(t *testing.T) {
+	m := openTiny(t, 0, true)
+	s := newSession(t, m, Options{Capture: append([]string{"logits"}, tinyOutputs...), Batch: 2})
+	x := images(3)
+	r, err := s.Run(context.Background(), x, 3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	g := tinyCNN(0, true)
+	got := map[string]refconv.Tensor{"image": {Shape: []int64{3, 3, 16, 16}, Data: x}}
+	for name, tt := range r.Maps {
+		got[name] = refconv.Tensor{Shape: tt.Shape, Data: tt.Data}
+	}
+	got["probs"] = refconv.Tensor{Shape: r.Outputs[0].Shape, Data: r.Outputs[0].Data}
+	compared := checkLayers(t, "tiny.onnx", g, 13, got)
+	if compared != len(g.Node) {
+		t.Errorf("compared %d of %d nodes", compared, len(g.Node))
+	}
+	// chained from the image alone
+	chain := map[string]refconv.Tensor{"image": got["image"]}
+	for _, n := range g.Node {
+		out, err := evalNode(g, n, 13, chain)
+		if err != nil {
+			t.Fatal(err)
+		}
+		chain[n.GetOutput()[0]] = out
+	}
+	if i := closeTo(chain["probs"].Data, r.Outputs[0].Data, 1e-4); i >= 0 {
+		t.Errorf("chained reference probs[%d] = %v, runtime %v", i, chain["probs"].Data[i], r.Outputs[0].Data[i])
+	}
+}
+
+// checkLayers recomputes every node of g with refconv from the tensors in
+// vals (runtime captures by name) and compares with the runtime's output. It
+// returns how many nodes it compared.
+func checkLayers(t *testing.T, file string, g *onnxpb.GraphProto, opset int64, vals map[string]refconv.Tensor) int {
+	t.Helper()
+	n := 0
+	for _, nd := range g.GetNode() {
+		out := nd.GetOutput()[0]
+		want, ok := vals[out]
+		if !ok {
+			continue
+		}
+		ref, err := evalNode(g, nd, opset, vals)
+		if errors.Is(err, refconv.ErrUnsupported) {
+			continue
+		}
+		if err != nil {
+			t.Errorf("%s: node %q: %v", file, nd.GetName(), err)
+			continue
+		}
+		if !slices.Equal(ref.Shape, want.Shape) {
+			t.Errorf("%s: node %q (%s): runtime shape %v, reference %v", file, nd.GetName(), nd.GetOpType(), want.Shape, ref.Shape)
+			continue
+		}
+		if i := closeTo(ref.Data, want.Data, 1e-4); i >= 0 {
+			t.Errorf("%s: node %q (%s): element %d: runtime %v, reference %v", file, nd.GetName(), nd.GetOpType(), i, want.Data[i], ref.Data[i])
+		}
+		n++
+	}
+	return n
+}
+
+// evalNode runs one node with refconv, taking its inputs from vals or from
+// the graph's initializers.
+func evalNode(g *onnxpb.GraphProto, nd *onnxpb.NodeProto, opset int64, vals map[string]refconv.Tensor) (refconv.Tensor, error) {
+	var in []refconv.Tensor
+	for _, name := range nd.GetInput() {
+		v, ok := vals[name]
+		if !ok && name != "" {
+			for _, ini := range g.GetInitializer() {
+				if ini.GetName() == name {
+					var err error
+					if v, err = refconv.FromProto(ini); err != nil {
+						return v, err
+					}
+					ok = true
+				}
+			}
+			if !ok {
+				return v, errors.New("input " + name + " not available")
+			}
+		}
+		in = append(in, v)
+	}
+	out, err := refconv.Eval(nd, opset, in)
+	if err != nil {
+		return refconv.Tensor{}, err
+	}
+	return out[0], nil
+}
+
+// closeTo returns the first index where |a-b| > tol·max(1,|b|), or -1.
+func closeTo(a, b []float32, tol float64) int {
+	if len(a) != len(b) {
+		return 0
+	}
+	for i := range a {
+		if !(math.Abs(float64(a[i])-float64(b[i])) <= tol*math.Max(1, math.Abs(float64(b[i])))) {
+			return i
+		}
+	}
+	return -1
+}
+
+// Batching: a symbolic batch splits n images into chunks (here of 3, leaving
+// a remainder of 1); a batch fixed at 1 loops; a batch fixed at 2 pads the
+// last chunk. All give, per image, what a run of that image alone gives.
+func TestBatchingMatchesSingleRuns(t *testing.T) {
+	const n = 7
+	x := images(n)
+	single := newSession(t, openTiny(t, 0, false), Options{Batch: 1})
+	var want []float32
+	for i := range n {
+		r, err := single.Run(context.Background(), x[i*768:(i+1)*768], 1)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !slices.Equal(r.Outputs[0].Shape, []int64{1, 5}) {
+			t.Fatalf("single image: shape %v, want [1 5]", r.Outputs[0].Shape)
+		}
+		want = append(want, r.Outputs[0].Data...)
+	}
+	cases := []struct {
+		name      string
+		fixed     int
+		opt       Options
+		wantBatch int
+	}{
+		{"symbolic, chunks of 3", 0, Options{Batch: 3}, 3},
+		{"symbolic, automatic chunks", 0, Options{}, 0},
+		{"fixed at 1: loop", 1, Options{}, 1},
+		{"fixed at 2: padded", 2, Options{}, 2},
+	}
+	for _, c := range cases {
+		s := newSession(t, openTiny(t, c.fixed, false), c.opt)
+		if c.wantBatch > 0 && s.BatchSize() != c.wantBatch {
+			t.Errorf("%s: BatchSize %d, want %d", c.name, s.BatchSize(), c.wantBatch)
+		}
+		for pass := range 2 { // the second pass writes into preallocated outputs
+			r, err := s.Run(context.Background(), x, n)
+			if err != nil {
+				t.Fatalf("%s: %v", c.name, err)
+			}
+			if r.N != n || !slices.Equal(r.Outputs[0].Shape, []int64{n, 5}) {
+				t.Fatalf("%s: N %d shape %v, want %d [%d 5]", c.name, r.N, r.Outputs[0].Shape, n, n)
+			}
+			// Different batch sizes may take different kernel paths; 1e-5
+			// relative is float32 rounding of sums of ~1000 terms.
+			if i := closeTo(r.Outputs[0].Data, want, 1e-5); i >= 0 {
+				t.Errorf("%s pass %d: logit %d = %v, single run %v", c.name, pass, i, r.Outputs[0].Data[i], want[i])
+			}
+			for i := range n {
+				if got := r.Scores(i); !slices.Equal(got, r.Outputs[0].Data[i*5:(i+1)*5]) {
+					t.Errorf("%s: Scores(%d) = %v", c.name, i, got)
+				}
+			}
+		}
+	}
+}
+
+// RunInto reuses the slices of a previous Result.
+func TestRunIntoReuses(t *testing.T) {
+	s := newSession(t, openTiny(t, 0, false), Options{Capture: []string{"r1"}, Batch: 4})
+	x := images(4)
+	r, err := s.Run(context.Background(), x, 4)
+	if err != nil {
+		t.Fatal(err)
+	}
+	first := slices.Clone(r.Maps["r1"].Data)
+	p := &r.Maps["r1"].Data[0]
+	x2 := images(5)[768:]
+	r2, err := s.RunInto(context.Background(), x2, 4, r)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if &r2.Maps["r1"].Data[0] != p {
+		t.Error("RunInto allocated a new map instead of reusing the old one")
+	}
+	if slices.Equal(first, r2.Maps["r1"].Data) {
+		t.Error("RunInto did not overwrite the map with the new images")
+	}
+}
+
+// An output whose first dimension is not the batch (Flatten with axis 0
+// folds the batch away) makes the session fall back to one image at a time,
+// and the Result still has one row per image.
+func TestOutputWithoutBatchDimension(t *testing.T) {
+	g := &onnxpb.GraphProto{
+		Name:   "fold",
+		Input:  []*onnxpb.ValueInfoProto{vi("x", onnxpb.TensorProto_FLOAT, "N", 3)},
+		Node:   []*onnxpb.NodeProto{node("Flatten", "fold", []string{"x"}, []string{"y"}, intAttr("axis", 0))},
+		Output: []*onnxpb.ValueInfoProto{vi("y", onnxpb.TensorProto_FLOAT, 1, nil)},
+	}
+	s := newSession(t, writeModel(t, "fold.onnx", modelBytes(t, g, 13, nil)), Options{Batch: 4})
+	x := []float32{1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12}
+	r, err := s.Run(context.Background(), x, 4)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !slices.Equal(r.Outputs[0].Shape, []int64{4, 3}) || !slices.Equal(r.Outputs[0].Data, x) {
+		t.Errorf("got %v %v, want [4 3] %v", r.Outputs[0].Shape, r.Outputs[0].Data, x)
+	}
+	if s.BatchSize() != 1 {
+		t.Errorf("BatchSize %d after the fallback, want 1", s.BatchSize())
+	}
+}
+
+// Input the Go side can check never reaches the runtime: wrong lengths, no
+// images, non-float inputs, symbolic image sizes without Options.Dims.
+func TestInputChecks(t *testing.T) {
+	s := newSession(t, openTiny(t, 0, false), Options{})
+	ctx := context.Background()
+	for _, c := range []struct {
+		n    int
+		len  int
+		want string
+	}{
+		{1, 10, "input has 10 values; 1 images of [3 16 16] need 768"},
+		{2, 768, "need 1536"},
+		{0, 0, "Run with 0 images"},
+	} {
+		_, err := s.Run(ctx, make([]float32, c.len), c.n)
+		if err == nil || !strings.Contains(err.Error(), c.want) || !strings.HasPrefix(err.Error(), "infer: tiny.onnx: ") {
+			t.Errorf("n=%d len=%d: got %v, want an error with %q", c.n, c.len, err, c.want)
+		}
+	}
+
+	intIn := &onnxpb.GraphProto{
+		Name:   "ints",
+		Input:  []*onnxpb.ValueInfoProto{vi("x", onnxpb.TensorProto_INT64, "N", 4)},
+		Node:   []*onnxpb.NodeProto{node("Cast", "c", []string{"x"}, []string{"y"}, intAttr("to", 1))},
+		Output: []*onnxpb.ValueInfoProto{vi("y", onnxpb.TensorProto_FLOAT, "N", 4)},
+	}
+	needORT(t)
+	_, err := NewSession(writeModel(t, "ints.onnx", modelBytes(t, intIn, 13, nil)), Options{})
+	if err == nil || !strings.Contains(err.Error(), `infer: ints.onnx: input "x" is int64; only float32`) {
+		t.Errorf("int64 input: got %v", err)
+	}
+
+	sym := tinyCNN(0, false)
+	sym.Input[0] = vi("image", onnxpb.TensorProto_FLOAT, "N", 3, "H", "W")
+	m := writeModel(t, "sym.onnx", modelBytes(t, sym, 13, nil))
+	s2 := newSession(t, m, Options{})
+	if _, err := s2.Run(ctx, make([]float32, 768), 1); err == nil || !strings.Contains(err.Error(), "Options.Dims") {
+		t.Errorf("symbolic H, W without Dims: got %v", err)
+	}
+	s3 := newSession(t, m, Options{Dims: []int64{3, 16, 16}})
+	if _, err := s3.Run(ctx, images(2), 2); err != nil {
+		t.Errorf("symbolic H, W with Dims: %v", err)
+	}
+	if _, err := NewSession(m, Options{Dims: []int64{4, 16, 16}}); err == nil {
+		// NewSession keeps the session usable for RunTensors; Run refuses.
+	} else {
+		t.Errorf("NewSession with contradicting Dims failed early: %v", err)
+	}
+	s4 := newSession(t, m, Options{Dims: []int64{4, 16, 16}})
+	if _, err := s4.Run(ctx, make([]float32, 4*256), 1); err == nil || !strings.Contains(err.Error(), "disagrees") {
+		t.Errorf("Dims contradicting the fixed channels: got %v", err)
+	}
+}
+
+// Failures inside ONNX Runtime come back as *RuntimeError naming the node and
+// operator: an operator nobody implements (at session creation) and a shape
+// that only turns out wrong at run time (a Gemm fed 5 features for a 3×4
+// weight matrix).
+func TestRuntimeErrorsNameNode(t *testing.T) {
+	needORT(t)
+	bad := &onnxpb.GraphProto{
+		Name:   "bad",
+		Input:  []*onnxpb.ValueInfoProto{vi("x", onnxpb.TensorProto_FLOAT, "N", 4)},
+		Node:   []*onnxpb.NodeProto{node("Relu", "ok", []string{"x"}, []string{"a"}), node("NoSuchOp", "mystery", []string{"a"}, []string{"y"})},
+		Output: []*onnxpb.ValueInfoProto{vi("y", onnxpb.TensorProto_FLOAT, "N", 4)},
+	}
+	_, err := NewSession(writeModel(t, "bad.onnx", modelBytes(t, bad, 13, nil)), Options{})
+	var re *RuntimeError
+	if !errors.As(err, &re) || re.Node != "mystery" || re.Op != "NoSuchOp" || re.File != "bad.onnx" {
+		t.Errorf("unknown op: got %#v (%v), want RuntimeError for node mystery (NoSuchOp) in bad.onnx", re, err)
+	}
+
+	gemm := &onnxpb.GraphProto{
+		Name:        "gemm",
+		Input:       []*onnxpb.ValueInfoProto{vi("x", onnxpb.TensorProto_FLOAT, "N", "K")},
+		Initializer: []*onnxpb.TensorProto{f32("w", []int64{3, 4}, randn(7, 12, 1))},
+		Node:        []*onnxpb.NodeProto{node("Gemm", "fc", []string{"x", "w"}, []string{"y"})},
+		Output:      []*onnxpb.ValueInfoProto{vi("y", onnxpb.TensorProto_FLOAT, "N", 4)},
+	}
+	s := newSession(t, writeModel(t, "gemm.onnx", modelBytes(t, gemm, 13, nil)), Options{Dims: []int64{5}})
+	_, err = s.Run(context.Background(), make([]float32, 5), 1)
+	re = nil
+	if !errors.As(err, &re) || re.Node != "fc" || re.Op != "Gemm" {
+		t.Errorf("shape mismatch: got %v, want RuntimeError for node fc (Gemm)", err)
+	} else if !strings.HasPrefix(err.Error(), `infer: gemm.onnx: node "fc" (Gemm): `) {
+		t.Errorf("message %q does not start with the file, node and op", err)
+	}
+	// the session stays usable after a failed run
+	if _, err := s.Run(context.Background(), make([]float32, 5), 1); err == nil {
+		t.Error("second bad run succeeded")
+	}
+}
+
+// The message parser on messages of the shapes ONNX Runtime 1.24 produces
+// (from the runtime's source: onnxruntime/core/framework/sequential_executor.cc,
+// session_state.cc, graph.cc).
+func TestRuntimeErrorParsing(t *testing.T) {
+	for _, c := range []struct{ msg, node, op string }{
+		{"Error running network: [ONNXRuntimeError] : 2 : INVALID_ARGUMENT : Non-zero status code returned while running Conv node. Name:'conv 1' Status Message: bad", "conv 1", "Conv"},
+		{"Error creating C session: [ONNXRuntimeError] : 9 : NOT_IMPLEMENTED : Could not find an implementation for Foo(13) node with name 'n/1'", "n/1", "Foo"},
+		{"[ONNXRuntimeError] : 1 : FAIL : Node (c2) Op (Conv) [ShapeInferenceError] Attribute dilations has incorrect size", "c2", "Conv"},
+		{`[ONNXRuntimeError] : 10 : INVALID_GRAPH : This is an invalid model. In Node, ("x", NoSuchOp, "", -1) : ("a": tensor(float),) -> ("y",) , Error No Op registered for NoSuchOp`, "x", "NoSuchOp"},
+		{"something else entirely", "", ""},
+	} {
+		var re *RuntimeError
+		if !errors.As(runtimeError("m.onnx", errors.New(c.msg)), &re) || re.Node != c.node || re.Op != c.op {
+			t.Errorf("%q: got node %q op %q, want %q %q", c.msg, re.Node, re.Op, c.node, c.op)
+		}
+		if strings.Contains(re.Error(), "[ONNXRuntimeError]") || !strings.HasPrefix(re.Error(), "infer: m.onnx: ") {
+			t.Errorf("message %q keeps the status prefix or lacks the file", re.Error())
+		}
+	}
+}
+
+// Cancellation: a cancelled context gives ctx.Err() before anything runs;
+// a cancel during a long run (400 images of 64×64, a few seconds of work)
+// stops it and returns ctx.Err(), both between chunks (chunks of 2) and
+// inside one chunk (all 400 in one call: only the runtime's terminate flag
+// can stop that); afterwards no goroutine is left behind and the session
+// still works.
+func TestCancellation(t *testing.T) {
+	m := writeModel(t, "partslike.onnx", modelBytes(t, partsLikeCNN(), 13, nil))
+	const n = 400
+	big := randn(5, n*3*64*64, 1)
+	x := big[:3*64*64]
+	for _, batch := range []int{2, n} {
+		s := newSession(t, m, Options{Batch: batch, Capture: []string{"r1"}})
+		if _, err := s.Run(context.Background(), x, 1); err != nil {
+			t.Fatal(err)
+		}
+		base := runtime.NumGoroutine()
+		ctx, cancel := context.WithCancel(context.Background())
+		cancel()
+		if _, err := s.Run(ctx, x, 1); !errors.Is(err, context.Canceled) {
+			t.Errorf("batch %d, cancelled context: got %v, want context.Canceled", batch, err)
+		}
+		ctx, cancel = context.WithCancel(context.Background())
+		timer := time.AfterFunc(20*time.Millisecond, cancel)
+		if _, err := s.Run(ctx, big, n); !errors.Is(err, context.Canceled) {
+			t.Errorf("batch %d, cancel during the run: got %v, want context.Canceled", batch, err)
+		}
+		timer.Stop()
+		ctx, cancel = context.WithTimeout(context.Background(), 20*time.Millisecond)
+		if _, err := s.Run(ctx, big, n); !errors.Is(err, context.DeadlineExceeded) {
+			t.Errorf("batch %d, deadline during the run: got %v, want context.DeadlineExceeded", batch, err)
+		}
+		cancel()
+		// Goroutines of the timers end right after firing; give the
+		// scheduler a moment (this bounds the wait, it times nothing).
+		deadline := time.Now().Add(2 * time.Second)
+		for runtime.NumGoroutine() > base && time.Now().Before(deadline) {
+			time.Sleep(10 * time.Millisecond)
+		}
+		if g := runtime.NumGoroutine(); g > base {
+			buf := make([]byte, 1<<16)
+			t.Errorf("batch %d: %d goroutines after the cancelled runs, %d before:\n%s", batch, g, base, buf[:runtime.Stack(buf, true)])
+		}
+		if _, err := s.Run(context.Background(), x, 1); err != nil {
+			t.Errorf("batch %d: run after the cancelled ones: %v", batch, err)
+		}
+	}
+}
+
+// A run whose result cannot fit in memory is refused before anything is
+// allocated for it.
+func TestMemoryCheck(t *testing.T) {
+	s := newSession(t, openTiny(t, 0, false), Options{Capture: tinyOutputs})
+	if avail := availableMemory(); avail <= 0 {
+		t.Fatalf("available memory unknown (%d); /proc/meminfo is expected on Linux", avail)
+	}
+	var me *MemoryError
+	if err := s.checkMemory(1 << 40); !errors.As(err, &me) || !strings.Contains(err.Error(), "infer: tiny.onnx: ") {
+		t.Errorf("2^40 images: got %v, want *MemoryError", err)
+	}
+	if err := s.checkMemory(8); err != nil {
+		t.Errorf("8 images: %v", err)
+	}
+}
+
+// External data: the weights live in a file beside the model. Loading from
+// bytes (a rewrite is needed for the captures) must still find them in the
+// model's folder, give the same outputs as the model with embedded weights,
+// and write nothing into that folder.
+func TestExternalData(t *testing.T) {
+	g := tinyCNN(0, false)
+	embedded := writeModel(t, "tiny.onnx", modelBytes(t, g, 13, nil))
+
+	dir := t.TempDir()
+	var blob []byte
+	for _, ini := range g.Initializer {
+		off := len(blob)
+		blob = append(blob, ini.RawData...)
+		ini.RawData = nil
+		ini.DataLocation = onnxpb.TensorProto_EXTERNAL
+		ini.ExternalData = []*onnxpb.StringStringEntryProto{
+			{Key: "location", Value: "tiny.weights"},
+			{Key: "offset", Value: strconv.Itoa(off)},
+			{Key: "length", Value: strconv.Itoa(len(blob) - off)},
+		}
+	}
+	if err := os.WriteFile(filepath.Join(dir, "tiny.weights"), blob, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	p := filepath.Join(dir, "ext.onnx")
+	if err := os.WriteFile(p, modelBytes(t, g, 13, nil), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	ext, err := modelio.Open(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !ext.HasExternalData() {
+		t.Fatal("test model has no external data")
+	}
+	before, _ := os.ReadDir(dir)
+	x := images(3)
+	a, err := newSession(t, embedded, Options{}).Run(context.Background(), x, 3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, opt := range []Options{{}, {Capture: []string{"r2"}}} {
+		b, err := newSession(t, ext, opt).Run(context.Background(), x, 3)
+		if err != nil {
+			t.Fatalf("external data, capture %v: %v", opt.Capture, err)
+		}
+		if !bitsEqual(a.Outputs[0].Data, b.Outputs[0].Data) {
+			t.Errorf("external data, capture %v: outputs differ from the embedded model", opt.Capture)
+		}
+	}
+	after, _ := os.ReadDir(dir)
+	if len(after) != len(before) {
+		t.Errorf("the model's folder had %d entries, now %d", len(before), len(after))
+	}
+}
+
+// Threads: the session runs with an explicit thread count too.
+func TestThreadsOption(t *testing.T) {
+	m := openTiny(t, 0, false)
+	x := images(2)
+	a, err := newSession(t, m, Options{Threads: 1}).Run(context.Background(), x, 2)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := newSession(t, m, Options{}).Run(context.Background(), x, 2)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if i := closeTo(a.Outputs[0].Data, b.Outputs[0].Data, 1e-5); i >= 0 {
+		t.Errorf("1 thread vs default: logit %d %v vs %v", i, a.Outputs[0].Data[i], b.Outputs[0].Data[i])
+	}
+}
+
+// Close: later runs report ErrClosed; closing twice is fine.
+func TestClose(t *testing.T) {
+	needORT(t)
+	s, err := NewSession(openTiny(t, 0, false), Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := s.Close(); err != nil {
+		t.Fatal(err)
+	}
+	if err := s.Close(); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := s.Run(context.Background(), images(1), 1); !errors.Is(err, ErrClosed) {
+		t.Errorf("run after Close: %v", err)
+	}
+}
