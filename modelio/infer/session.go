@@ -73,12 +73,12 @@ type Session struct {
 	// returned tensor. With them the next runs of that size get
 	// preallocated outputs that point into the Result.
 	seen     map[int][][]int64
-	perImage []int    // values per image of each returned tensor (0 = not yet known)
-	noBatch  []bool   // tensor j has no batch dimension (then chunks are 1 image)
+	perImage []int     // values per image of each returned tensor (0 = not yet known)
+	noBatch  []bool    // tensor j has no batch dimension (then chunks are 1 image)
 	imgShape [][]int64 // per-image shape of each returned tensor
-	single   bool     // outputs do not carry the batch: run one image at a time
-	estBytes int64    // estimated result bytes per image before the first run
-	work     int64    // estimated working bytes per image inside the runtime
+	single   bool      // outputs do not carry the batch: run one image at a time
+	estBytes int64     // estimated result bytes per image before the first run
+	work     int64     // estimated working bytes per image inside the runtime
 	pad      []float32 // zero-padded input chunk for a batch fixed above 1
 }
 
