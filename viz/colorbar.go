@@ -1,0 +1,151 @@
+package viz
+
+import (
+	"fmt"
+	"image"
+	"image/color"
+	"math"
+)
+
+// ColorBar draws a legend for a colour map: a bar running from min to max
+// with tick marks at round values ({1, 2, 5}·10^k steps) labelled in the
+// data's units, and the unit written beside it. A bar wider than high runs
+// left to right with the labels under it and the unit below them; otherwise
+// it runs bottom to top with the labels to its right and the unit above.
+//
+// The value v is given to cmap the way the pictures of this package do: when
+// min < 0 as cmap(v / max(|min|, |max|)), the convention of [Diverging] and
+// of [OverlayScores] with scale = max; otherwise as cmap((v − min)/(max − min)),
+// the convention of [Sequential] and of [MapGrid] (whose range starts at 0
+// for non-negative maps). So the legend of an occlusion picture drawn with
+// scale s is ColorBar(w, h, -s, s, unit, Diverging), and that of an
+// activation grid is ColorBar(w, h, lo, hi, unit, cmap) with lo, hi from
+// [MapRange] and cmap Sequential when lo = 0, Diverging otherwise.
+//
+// The picture has a white background and is exactly w×h; its text size
+// follows the bar's size (a fifth of the height of a horizontal bar, 11 to 22
+// pixels), so draw it at the size it will be seen. It panics, naming
+// the problem, when w or h is too small to hold a bar and its labels (40×40
+// at least, 200 pixels along the bar for a horizontal one), when min ≥ max or
+// either is not finite, or when cmap is nil.
+func ColorBar(w, h int, min, max float64, unit string, cmap func(float64) color.NRGBA) *image.NRGBA {
+	if cmap == nil {
+		panic("viz: ColorBar: nil colour map")
+	}
+	if math.IsNaN(min) || math.IsNaN(max) || math.IsInf(min, 0) || math.IsInf(max, 0) || !(min < max) {
+		panic(fmt.Sprintf("viz: ColorBar: range %v..%v is empty or not finite", min, max))
+	}
+	horizontal := w >= h
+	if w < 40 || h < 40 || (horizontal && w < 200) || (!horizontal && h < 200) {
+		panic(fmt.Sprintf("viz: ColorBar: %d×%d is too small for a bar with labels", w, h))
+	}
+	img := mustCanvas("colour bar", w, h, Light)
+	// Text grows with the bar: a fifth of the height of a horizontal bar, a
+	// sixth of the width of a vertical one, 11 to 22 px, Go Regular.
+	size := float64(h) / 5
+	if !horizontal {
+		size = float64(w) / 6
+	}
+	barText := TextStyle{Size: math.Round(math.Max(11, math.Min(22, size)))}
+	norm := func(v float64) float64 {
+		if min < 0 {
+			return v / math.Max(-min, max)
+		}
+		return (v - min) / (max - min)
+	}
+	_, lineH := TextSize("0", barText)
+	along := w
+	if !horizontal {
+		along = h
+	}
+	step := niceStep(max-min, clampInt(along/90, 2, 10)) // a tick every 90 pixels or so
+	dec := stepDecimals(step)
+	first := math.Ceil(min/step-1e-9) * step
+	edge := color.NRGBA{0x8a, 0x90, 0x96, 0xff} // the bar's outline and ticks
+	const tick = 5
+
+	// ticks calls f for each tick value and its position t in [0, 1] along the bar.
+	ticks := func(f func(v, t float64)) {
+		for i := 0; ; i++ {
+			v := first + float64(i)*step
+			if v > max+step*1e-9 {
+				return
+			}
+			f(v, (v-min)/(max-min))
+		}
+	}
+	label := func(v float64) string { return formatFixed(v, dec) }
+
+	if horizontal {
+		// Leave room for half a label at each end.
+		wMin, _ := TextSize(label(first), barText)
+		last := first
+		ticks(func(v, _ float64) { last = v })
+		wMax, _ := TextSize(label(last), barText)
+		x0 := 1 + wMin/2
+		x1 := w - 1 - wMax/2
+		barH := h - 2*lineH - tick - 8
+		if unit == "" {
+			barH += lineH
+		}
+		barH = clampInt(barH, 8, 28)
+		y0, y1 := 1, 1+barH
+		for x := x0; x < x1; x++ {
+			c := cmap(norm(min + (max-min)*(float64(x-x0)+0.5)/float64(x1-x0)))
+			fill(img, image.Rect(x, y0, x+1, y1), c)
+		}
+		frame(img, image.Rect(x0-1, y0-1, x1+1, y1+1), 1, edge, false)
+		ticks(func(v, t float64) {
+			x := x0 + int(math.Round(t*float64(x1-x0-1)))
+			fill(img, image.Rect(x, y1+1, x+1, y1+1+tick), edge)
+			drawTextCentered(img, x, y1+tick+2, label(v), barText)
+		})
+		if unit != "" {
+			drawTextCentered(img, w/2, y1+tick+2+lineH+2, fitText(unit, w-2, barText), barText)
+		}
+		return img
+	}
+
+	// Vertical: unit on top, bar on the left, labels to its right.
+	top := 1 + lineH/2
+	if unit != "" {
+		DrawText(img, 1, 1, fitText(unit, w-2, barText), barText)
+		top += lineH + 4
+	}
+	bottom := h - 1 - lineH/2
+	wLab := 0
+	ticks(func(v, _ float64) {
+		lw, _ := TextSize(label(v), barText)
+		wLab = maxInt(wLab, lw)
+	})
+	barW := clampInt(w-wLab-tick-6, 8, 28)
+	x0, x1 := 1, 1+barW
+	for y := top; y < bottom; y++ {
+		c := cmap(norm(max - (max-min)*(float64(y-top)+0.5)/float64(bottom-top)))
+		fill(img, image.Rect(x0, y, x1, y+1), c)
+	}
+	frame(img, image.Rect(x0-1, top-1, x1+1, bottom+1), 1, edge, false)
+	ticks(func(v, t float64) {
+		y := bottom - 1 - int(math.Round(t*float64(bottom-top-1)))
+		fill(img, image.Rect(x1+1, y, x1+1+tick, y+1), edge)
+		DrawText(img, x1+tick+3, y-lineH/2, label(v), barText)
+	})
+	return img
+}
+
+func clampInt(v, lo, hi int) int {
+	if v < lo {
+		return lo
+	}
+	if v > hi {
+		return hi
+	}
+	return v
+}
+
+func maxInt(a, b int) int {
+	if a > b {
+		return a
+	}
+	return b
+}

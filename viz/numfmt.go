@@ -1,0 +1,67 @@
+package viz
+
+import (
+	"math"
+	"strconv"
+	"strings"
+)
+
+// formatFixed formats v with the given number of decimals and drops trailing
+// zeros ("0.250" -> "0.25", "2.00" -> "2"); "-0" becomes "0".
+func formatFixed(v float64, decimals int) string {
+	s := strconv.FormatFloat(v, 'f', decimals, 64)
+	if strings.Contains(s, ".") {
+		s = strings.TrimRight(strings.TrimRight(s, "0"), ".")
+	}
+	if s == "-0" {
+		s = "0"
+	}
+	return s
+}
+
+// trimExp formats v in short scientific notation: "1.2e-4", "3e+06" -> "3e6".
+func trimExp(v float64) string {
+	s := strconv.FormatFloat(v, 'e', 1, 64)
+	mant, exp, _ := strings.Cut(s, "e")
+	if strings.Contains(mant, ".") {
+		mant = strings.TrimRight(strings.TrimRight(mant, "0"), ".")
+	}
+	sign := ""
+	if exp[0] == '-' {
+		sign = "-"
+	}
+	exp = strings.TrimLeft(exp[1:], "0")
+	if exp == "" {
+		exp = "0"
+	}
+	return mant + "e" + sign + exp
+}
+
+// niceStep returns a step of the form {1, 2, 5}·10^k close to span/target,
+// the usual choice for axis ticks (common practice, e.g. Heckbert, "Nice
+// numbers for graph labels", Graphics Gems, 1990).
+func niceStep(span float64, target int) float64 {
+	if !(span > 0) || target < 1 {
+		return 1
+	}
+	raw := span / float64(target)
+	p := math.Pow(10, math.Floor(math.Log10(raw)))
+	switch f := raw / p; {
+	case f < 1.5:
+		return p
+	case f < 3.5:
+		return 2 * p
+	case f < 7.5:
+		return 5 * p
+	}
+	return 10 * p
+}
+
+// stepDecimals is the number of decimals that shows every multiple of step.
+func stepDecimals(step float64) int {
+	d := 0
+	for d < 12 && math.Abs(step*math.Pow(10, float64(d))-math.Round(step*math.Pow(10, float64(d)))) > 1e-9 {
+		d++
+	}
+	return d
+}
