@@ -30,15 +30,16 @@ type ival struct {
 
 // tinfo is what static analysis knows about one tensor.
 type tinfo struct {
-	shape  Shape // nil when even the rank is unknown
-	elem   int32
-	why    string    // why (part of) the shape is unknown
-	ints   []ival    // folded integer value, nil when not known
-	floats []float64 // small constant float value, nil when not known
-	act    bool      // computed from a model input: an activation
-	rf     rfInfo
-	src    string // SourceStatic, SourceObserved, or "" (unknown)
-	note   string
+	shape    Shape // nil when even the rank is unknown
+	elem     int32
+	why      string    // why (part of) the shape is unknown
+	ints     []ival    // folded integer value, nil when not known
+	floats   []float64 // small constant float value, nil when not known
+	act      bool      // computed from a model input: an activation
+	rf       rfInfo
+	src      string // SourceStatic, SourceObserved, or "" (unknown)
+	declared bool   // shape taken from the file's value_info, not inferred
+	note     string
 }
 
 func unknownInfo(why string) *tinfo { return &tinfo{why: why} }
@@ -501,8 +502,16 @@ func (m *Model) ruleUnary(n *onnxpb.NodeProto, in []*tinfo) ([]*tinfo, error) {
 	if op == "Dropout" {
 		return []*tinfo{out, {shape: cloneShape(x.shape), why: x.why, elem: dtBool}}, nil
 	}
-	if op == "BatchNormalization" || op == "LayerNormalization" {
-		return []*tinfo{out}, nil // other outputs: training statistics
+	if op == "BatchNormalization" {
+		// Training mode also outputs the running mean and variance (and,
+		// before opset 14, the saved batch statistics), all of shape [C].
+		res := []*tinfo{out}
+		for k := 1; k < len(n.GetOutput()); k++ {
+			if c := input(in, 1); c != nil {
+				res = append(res, &tinfo{shape: cloneShape(c.shape), elem: c.elem})
+			}
+		}
+		return res, nil
 	}
 	return []*tinfo{out}, nil
 }

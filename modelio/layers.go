@@ -147,7 +147,7 @@ func (m *Model) override(name string, o *tinfo) {
 						}
 					}
 					o.note = "shape declared in the file (value_info), not inferred: " + shortWhy(o.why)
-					o.shape, o.src = s, SourceStatic
+					o.shape, o.src, o.declared = s, SourceStatic, true
 					if o.elem == 0 {
 						o.elem = tt.GetElemType()
 					}
