@@ -190,17 +190,25 @@ func trimPrefix(err error) error {
 func (j *job) describe() {
 	w := j.stderr
 	m := j.ws.Model
-	what := m.Path
-	if j.ws.Demo != "" {
-		what = "embedded demo (" + j.ws.Demo + ")"
+	switch {
+	case j.ws.Demo != "":
+		fmt.Fprintf(w, "model:         %s (embedded demo, %s)\n", m.Name, j.ws.Demo)
+	case m.Path != m.Name:
+		fmt.Fprintf(w, "model:         %s (%s)\n", m.Name, m.Path)
+	default:
+		fmt.Fprintf(w, "model:         %s\n", m.Name)
 	}
-	fmt.Fprintf(w, "model:         %s, %s\n", m.Name, what)
 	fmt.Fprintf(w, "ONNX Runtime:  %s (%s)\n", core.Library(), infer.Version())
 	cfg, from := j.ws.Prep()
 	if j.set["size"] || j.set["resize"] || j.set["range"] || j.set["mean"] || j.set["std"] || j.set["layout"] || j.set["bgr"] {
 		from = "guessed from the model, changed by flags"
 	}
 	fmt.Fprintf(w, "preprocessing: %s (%s)\n", cfg, from)
+	if from == core.FromGuess {
+		for _, n := range j.ws.GuessNotes() {
+			fmt.Fprintf(w, "               note: %s\n", n)
+		}
+	}
 	labels, lfrom := j.ws.Labels()
 	if len(labels) > 0 {
 		fmt.Fprintf(w, "labels:        %d from %s\n", len(labels), lfrom)
@@ -235,7 +243,8 @@ func oneLine(err error) string {
 
 // flagError rewords the flag package's parse errors in our terms.
 func flagError(err error) string {
-	msg := err.Error()
+	// The flag package names flags with one dash; our help uses two.
+	msg := strings.ReplaceAll(err.Error(), " -", " --")
 	if name, ok := strings.CutPrefix(msg, "flag provided but not defined: "); ok {
 		return "unknown flag " + name
 	}

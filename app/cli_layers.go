@@ -114,8 +114,8 @@ func layersJSON(m *modelio.Model) layersDoc {
 // writeLayerTable prints the aligned text table of `fovea layers`.
 func writeLayerTable(w io.Writer, m *modelio.Model) {
 	fmt.Fprintf(w, "model %s", m.Name)
-	if m.Producer != "" {
-		fmt.Fprintf(w, " (from %s %s)", m.Producer, m.ProducerVersion)
+	if p := strings.TrimSpace(m.Producer + " " + m.ProducerVersion); p != "" {
+		fmt.Fprintf(w, " (made by %s)", p)
 	}
 	fmt.Fprintln(w)
 	for _, in := range m.Inputs {

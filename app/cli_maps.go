@@ -54,15 +54,11 @@ channel's map over the image as the model saw it.`,
 			}
 			var stats []viz.ChannelStats
 			if *channel >= 0 {
-				ov, err := viz.MapOverlay(a.Input, t, core.MapLayout, *channel, l, *opacity)
+				ov, err := a.OverlayPicture(l.Output, *channel, *opacity, *scale)
 				if err != nil {
-					return j.fail(&core.InputError{Err: err})
+					return j.fail(err)
 				}
-				f := *scale
-				if f == 0 {
-					f = max(1, 256/max(1, ov.Bounds().Dx()))
-				}
-				if code := j.writePNG(*out, core.Enlarge(ov, f)); code != exitOK {
+				if code := j.writePNG(*out, ov); code != exitOK {
 					return code
 				}
 			} else {

@@ -4,8 +4,6 @@ import (
 	"context"
 	"fmt"
 	"image"
-	"image/color"
-	"image/draw"
 	"slices"
 
 	"fovea/modelio"
@@ -22,13 +20,6 @@ func LoadImage(path string) (image.Image, error) {
 		return nil, inputErr(path, err)
 	}
 	return img, nil
-}
-
-// blank is a mid-grey w×h picture.
-func blank(w, h int) *image.NRGBA {
-	img := image.NewNRGBA(image.Rect(0, 0, w, h))
-	draw.Draw(img, img.Rect, &image.Uniform{color.NRGBA{128, 128, 128, 255}}, image.Point{}, draw.Src)
-	return img
 }
 
 // tensor turns img into the model's input tensor for one image, with c.

@@ -94,3 +94,35 @@ func Enlarge(img image.Image, factor int) *image.NRGBA {
 	}
 	return out
 }
+
+// OverlayPicture draws one channel of a layer's activation map over the
+// image the model saw (viz.MapOverlay), enlarged by factor (0: to about 256
+// pixels) with nearest-neighbour sampling, with the channel's colour legend
+// under it.
+func (a *Activations) OverlayPicture(layer string, channel int, opacity float64, factor int) (*image.NRGBA, error) {
+	l, t, err := a.MapLayer(layer)
+	if err != nil {
+		return nil, err
+	}
+	ov, err := viz.MapOverlay(a.Input, t, MapLayout, channel, l, opacity)
+	if err != nil {
+		return nil, inputErr("", fmt.Errorf("activation map of %s: %w", l.Name, err))
+	}
+	_, stats, err := viz.MapGrid(t, MapLayout, viz.GridOptions{Channels: []int{channel}})
+	if err != nil {
+		return nil, fmt.Errorf("core: activation map of %s: %w", l.Name, err)
+	}
+	// MapOverlay colours with the channel's own range (viz.MapColor).
+	lo, hi := viz.MapRange(stats)
+	cmap := viz.Sequential
+	if lo < 0 {
+		cmap = viz.Diverging
+	}
+	if !(lo < hi) {
+		hi = lo + 1
+	}
+	if factor <= 0 {
+		factor = max(1, 256/max(1, ov.Bounds().Dx()))
+	}
+	return withLegend(Enlarge(ov, factor), lo, hi, fmt.Sprintf("activation of channel %d of %s", channel, l.Name), cmap), nil
+}

@@ -1,15 +1,11 @@
 package core
 
 import (
-	"bytes"
 	"context"
-	"encoding/json"
 	"fmt"
-	"os"
 	"path/filepath"
-	"strings"
+	"slices"
 	"sync"
-	"unicode/utf8"
 
 	"fovea/modelio"
 	"fovea/modelio/infer"
@@ -40,10 +36,12 @@ type Workspace struct {
 	mu         sync.Mutex
 	cfg        prep.Config
 	cfgFrom    string
+	notes      []string // what the guess assumed and why
 	labels     []string
 	labelsFrom string
-	plain      *infer.Session // model outputs only: classification, occlusion
-	capture    *infer.Session // model outputs plus every activation layer
+	plain      *infer.Session   // model outputs only: classification, occlusion
+	capture    *infer.Session   // model outputs plus every activation layer
+	retired    []*infer.Session // replaced after a change of input size; closed by Close
 	observed   bool
 }
 
@@ -67,13 +65,22 @@ func newWorkspace(m *modelio.Model, demo, hash string) (*Workspace, error) {
 		return nil, inputf(m.Name, "the model has no outputs")
 	}
 	w := &Workspace{Model: m, Demo: demo, Hash: hash}
-	w.cfg = prep.Guess(m)
+	w.cfg, w.notes = guess(m)
 	w.cfgFrom = FromGuess
-	if len(m.Labels) > 0 {
-		w.labels = append([]string(nil), m.Labels...)
-		w.labelsFrom = FromModel
-	} else {
+	// Labels from the metadata, else a labels file beside the model
+	// (infer.Labels), else none.
+	labels, source, path, err := infer.Labels(m, "")
+	switch {
+	case err != nil || len(labels) == 0:
 		w.labelsFrom = FromNowhere
+	case source == infer.LabelsMetadata:
+		w.labels, w.labelsFrom = slices.Clone(labels), FromModel
+	default:
+		w.labels, w.labelsFrom = slices.Clone(labels), path
+	}
+	if n := w.Classes(); n > 0 && len(w.labels) != 0 && len(w.labels) != n {
+		// Labels that do not fit would name the wrong classes.
+		w.labels, w.labelsFrom = nil, FromNowhere
 	}
 	return w, nil
 }
@@ -83,14 +90,14 @@ func (w *Workspace) Close() error {
 	w.mu.Lock()
 	defer w.mu.Unlock()
 	var first error
-	for _, s := range []**infer.Session{&w.plain, &w.capture} {
-		if *s != nil {
-			if err := (*s).Close(); err != nil && first == nil {
+	for _, s := range append(w.retired, w.plain, w.capture) {
+		if s != nil {
+			if err := s.Close(); err != nil && first == nil {
 				first = err
 			}
-			*s = nil
 		}
 	}
+	w.plain, w.capture, w.retired = nil, nil, nil
 	return first
 }
 
@@ -112,10 +119,51 @@ func (w *Workspace) SetPrep(c prep.Config) error {
 		return err
 	}
 	w.mu.Lock()
+	if !slices.Equal(dims(w.Model, w.cfg), dims(w.Model, c)) {
+		// Sessions of a model with symbolic input sizes are made for one
+		// size. Jobs still running keep theirs; they are closed with w.
+		for _, s := range []**infer.Session{&w.plain, &w.capture} {
+			if *s != nil {
+				w.retired = append(w.retired, *s)
+				*s = nil
+			}
+		}
+	}
 	w.cfg = c
 	w.cfgFrom = FromChosen
 	w.mu.Unlock()
 	return nil
+}
+
+// dims are the per-image input dimensions for c in the model's layout
+// (infer.Options.Dims).
+func dims(m *modelio.Model, c prep.Config) []int64 {
+	layout := c.Layout
+	if m.Image != nil && m.Image.Layout != "" {
+		layout = m.Image.Layout
+	}
+	if layout == prep.LayoutNHWC {
+		return []int64{int64(c.Height), int64(c.Width), int64(c.Channels)}
+	}
+	return []int64{int64(c.Channels), int64(c.Height), int64(c.Width)}
+}
+
+// guess proposes preprocessing from the model's image input and metadata
+// (prep.GuessFrom), with notes on what it assumed.
+func guess(m *modelio.Model) (prep.Config, []string) {
+	var in *prep.Input
+	if im := m.Image; im != nil {
+		in = &prep.Input{Layout: im.Layout, Channels: im.Channels, Height: im.Height, Width: im.Width}
+	}
+	return prep.GuessFrom(in, m.Metadata)
+}
+
+// GuessNotes says what the guessed preprocessing assumed and why (for
+// example that the model's metadata says nothing about mean and std).
+func (w *Workspace) GuessNotes() []string {
+	w.mu.Lock()
+	defer w.mu.Unlock()
+	return slices.Clone(w.notes)
 }
 
 // Restore puts in force the settings the user saved for this model
@@ -185,17 +233,13 @@ func (w *Workspace) Classes() int {
 	return int(sh[len(sh)-1].Size)
 }
 
-// maxLabelFile bounds the size of a label file read into memory.
-const maxLabelFile = 4 << 20
-
-// LoadLabels reads class labels from path and puts them in force. The file is
-// UTF-8 text with one label per line (blank lines at the end ignored), or a
-// JSON array of strings. The count must equal the model's number of classes
-// when that is known.
+// LoadLabels reads class labels from path (infer.ReadLabels: one per line,
+// or a JSON array of strings) and puts them in force. The count must equal
+// the model's number of classes when that is known.
 func (w *Workspace) LoadLabels(path string) error {
-	labels, err := ReadLabels(path)
+	labels, err := infer.ReadLabels(path)
 	if err != nil {
-		return err
+		return inputErr(path, err)
 	}
 	if n := w.Classes(); n > 0 && len(labels) != n {
 		return inputf(path, "%d labels, but model %s has %d classes", len(labels), w.Model.Name, n)
@@ -205,52 +249,6 @@ func (w *Workspace) LoadLabels(path string) error {
 	w.labelsFrom = path
 	w.mu.Unlock()
 	return nil
-}
-
-// ReadLabels reads a label file (see [Workspace.LoadLabels]) without checking
-// it against a model.
-func ReadLabels(path string) ([]string, error) {
-	f, err := os.Open(path)
-	if err != nil {
-		return nil, inputErr(path, err)
-	}
-	defer f.Close()
-	st, err := f.Stat()
-	if err != nil {
-		return nil, inputErr(path, err)
-	}
-	if st.IsDir() {
-		return nil, inputf(path, "is a folder, not a label file")
-	}
-	if st.Size() > maxLabelFile {
-		return nil, inputf(path, "label file of %d bytes is over the limit of %d", st.Size(), maxLabelFile)
-	}
-	data := make([]byte, st.Size())
-	if _, err := f.ReadAt(data, 0); err != nil && st.Size() > 0 {
-		return nil, inputErr(path, err)
-	}
-	data = bytes.TrimPrefix(data, []byte("\xef\xbb\xbf"))
-	if !utf8.Valid(data) {
-		return nil, inputf(path, "label file is not UTF-8 text")
-	}
-	var labels []string
-	if t := bytes.TrimSpace(data); len(t) > 0 && t[0] == '[' {
-		if err := json.Unmarshal(t, &labels); err != nil {
-			return nil, inputf(path, "label file looks like JSON but is not an array of strings: %v", err)
-		}
-	} else {
-		text := strings.TrimRight(strings.ReplaceAll(string(data), "\r\n", "\n"), "\n \t")
-		if text != "" {
-			labels = strings.Split(text, "\n")
-		}
-		for i := range labels {
-			labels[i] = strings.TrimSpace(labels[i])
-		}
-	}
-	if len(labels) == 0 {
-		return nil, inputf(path, "label file has no labels")
-	}
-	return labels, nil
 }
 
 // CheckPrep reports whether c can feed m's image input: c.Validate, and the
@@ -286,7 +284,7 @@ func (w *Workspace) sessionLocked(capture bool) (*infer.Session, error) {
 		return nil, fmt.Errorf("core: ONNX Runtime is not loaded (call core.Start first)")
 	}
 	slot := &w.plain
-	var opt infer.Options
+	opt := infer.Options{Dims: dims(w.Model, w.cfg)}
 	if capture {
 		slot = &w.capture
 		opt.Capture = captureNames(w.Model)
@@ -303,42 +301,21 @@ func (w *Workspace) sessionLocked(capture bool) (*infer.Session, error) {
 
 // ObserveShapes runs the model once on a blank image when some layer's shape
 // could not be inferred statically, and fills those shapes in from the run
-// (modelio.Model.Observe). It does nothing when every shape is known or it
-// already ran. Call it before handing w.Model to code on other goroutines.
+// (infer.ObserveShapes). It does nothing when every shape is known or it
+// already ran. It writes w.Model's layer table: call it before handing
+// w.Model to code on other goroutines.
 func (w *Workspace) ObserveShapes(ctx context.Context) error {
 	w.mu.Lock()
 	defer w.mu.Unlock()
 	if w.observed {
 		return nil
 	}
-	unknown := false
-	for _, l := range w.Model.Layers {
-		if l.ShapeSource != "static" {
-			unknown = true
-		}
+	if !infer.Initialized() {
+		return fmt.Errorf("core: ONNX Runtime is not loaded (call core.Start first)")
 	}
-	if !unknown {
-		w.observed = true
-		return nil
-	}
-	s, err := w.sessionLocked(true)
-	if err != nil {
-		return err
-	}
-	c := w.cfg
-	_, in := tensor(blank(c.Width, c.Height), c)
-	res, err := s.Run(ctx, in, 1)
-	if err != nil {
+	if _, err := infer.ObserveShapes(ctx, w.Model, infer.Options{Dims: dims(w.Model, w.cfg)}); err != nil {
 		return fmt.Errorf("core: %s: a run to observe layer shapes failed: %w", w.Model.Name, err)
 	}
-	shapes := make(map[string][]int64)
-	for name, t := range res.Maps {
-		shapes[name] = t.Shape
-	}
-	for _, t := range res.Outputs {
-		shapes[t.Name] = t.Shape
-	}
-	w.Model.Observe(shapes)
 	w.observed = true
 	return nil
 }
@@ -346,17 +323,9 @@ func (w *Workspace) ObserveShapes(ctx context.Context) error {
 // captureNames are the tensors the capturing session returns: every
 // activation layer the window shows and every layer a scan reads.
 func captureNames(m *modelio.Model) []string {
-	var names []string
-	seen := map[string]bool{}
-	for _, l := range m.ActivationLayers() {
-		if !seen[l.Output] {
-			seen[l.Output] = true
-			names = append(names, l.Output)
-		}
-	}
+	names := infer.ActivationOutputs(m)
 	for _, n := range viz.ScanCapture(m) {
-		if !seen[n] {
-			seen[n] = true
+		if !slices.Contains(names, n) {
 			names = append(names, n)
 		}
 	}
