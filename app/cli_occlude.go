@@ -37,7 +37,7 @@ The map is evidence about this model on this image, not proof of what it looks a
 				return code
 			}
 			if *out != "" {
-				img := viz.RenderOcclusion(res.fit, res.occ, viz.HeatOptions{})
+				img := viz.RenderOcclusion(res.fit, res.occ, viz.HeatOptions{Captions: true})
 				if code := j.writePNG(*out, img); code != exitOK {
 					return code
 				}

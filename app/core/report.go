@@ -2,10 +2,11 @@ package core
 
 import (
 	"context"
-	"errors"
+	"fmt"
 	"image"
 	"time"
 
+	"fovea/modelio/infer"
 	"fovea/viz"
 )
 
@@ -19,17 +20,121 @@ type ReportInput struct {
 	// page then shows the predicted class's heatmap alone.
 	Versus    int
 	Occlusion viz.OcclusionSettings
-	// Occlusions already computed for this image and settings (the window has
-	// them); nil = computed here for the predicted class and Versus.
+	// Occlusions already computed for this image with the settings in force
+	// (the window has them): the first is drawn as the prediction's, a
+	// second as Versus's. nil = computed here for the predicted class and
+	// Versus.
 	Occlusions []*viz.Occlusion
 	Date       time.Time // printed on the page; zero = now
 }
 
-// Report composes the one-page picture (viz.Report): the image, the top-k
-// predictions, the occlusion heatmaps of the predicted and the expected
-// class side by side on a shared scale with their legend, the model's name,
-// the preprocessing and occlusion settings, the date and the caution that a
-// heatmap is evidence about one model on one image, not proof.
+// Report composes the one-page picture (viz.Report): the image as the model
+// saw it, the top-k predictions, the occlusion heatmaps of the predicted and
+// the expected class side by side on a shared scale with their legend, the
+// model's name, the preprocessing and occlusion settings, the date and the
+// caution that a heatmap is evidence about one model on one image, not
+// proof. progress follows the occlusion run when one is needed.
 func (w *Workspace) Report(ctx context.Context, in ReportInput, progress func(done, total int)) (*image.NRGBA, error) {
-	return nil, errors.New("core: report is not wired yet (waiting for viz.Report)")
+	if in.Image == nil {
+		return nil, inputf(in.ImageName, "no image for the report")
+	}
+	k := in.K
+	if k <= 0 {
+		k = 5
+	}
+	cfg, labels := w.snapshot()
+	_, labelsFrom := w.Labels()
+	cl, err := w.Classify(ctx, in.Image, k)
+	if err != nil {
+		return nil, err
+	}
+	occ := in.Occlusions
+	if len(occ) == 0 {
+		targets := []int{cl.Top[0].Index}
+		if in.Versus >= 0 && in.Versus != targets[0] {
+			targets = append(targets, in.Versus)
+		}
+		if occ, _, err = w.Occlude(ctx, in.Image, in.Occlusion, targets, progress); err != nil {
+			return nil, err
+		}
+	}
+	set := occ[0].OcclusionSettings
+
+	// Heatmaps on one scale, enlarged so the model's pixels stay visible.
+	grids := make([][][]float64, len(occ))
+	for i, o := range occ {
+		grids[i] = o.Scores
+	}
+	scale := viz.ScoreScale(grids...)
+	factor := max(1, 256/max(1, max(cl.Input.Bounds().Dx(), cl.Input.Bounds().Dy())))
+	panels := make([]viz.Panel, len(occ))
+	for i, o := range occ {
+		heat := viz.OverlayScores(cl.Input, o.Scores, o.Ys, o.Xs, o.Patch, scale, 0.6)
+		role := "class asked for"
+		switch {
+		case o.Target == cl.Top[0].Index:
+			role = "predicted"
+		case in.Versus >= 0 && o.Target == in.Versus:
+			role = "expected"
+		}
+		panels[i] = viz.Panel{Image: Enlarge(heat, factor),
+			Caption: fmt.Sprintf("%s (%s), probability %.1f%%", className(labels, o.Target), role, 100*o.Probability)}
+	}
+	legend := viz.ColorBar(480, 56, -scale, scale, occ[0].Unit(), viz.Diverging)
+
+	expected := ""
+	if in.Versus >= 0 {
+		expected = className(labels, in.Versus)
+	}
+	date := in.Date
+	if date.IsZero() {
+		date = time.Now()
+	}
+	name := in.ImageName
+	if name == "" {
+		name = "(unnamed image)"
+	}
+	return viz.Report(viz.ReportInput{
+		Image:     Enlarge(cl.Input, factor),
+		TopK:      withNames(cl.Top, labels),
+		Expected:  expected,
+		Panels:    panels,
+		Legend:    legend,
+		ModelName: w.Model.Name,
+		Settings: []string{
+			"image          " + name,
+			"preprocessing  " + cfg.String(),
+			"labels         " + labelsFrom,
+			fmt.Sprintf("occlusion      patch %d px, stride %d px, fill %s, score %s", set.Patch, set.Stride, set.Fill, occ[0].Unit()),
+			"softmax        " + softmaxNote(cl),
+			"runtime        ONNX Runtime " + infer.Version(),
+		},
+		Date: date.Format("2006-01-02"),
+	}), nil
+}
+
+// className is the label of class i, or "class i" when there is none.
+func className(labels []string, i int) string {
+	if i >= 0 && i < len(labels) && labels[i] != "" {
+		return labels[i]
+	}
+	return fmt.Sprintf("class %d", i)
+}
+
+// withNames gives unlabelled predictions their class number as a label, so
+// the page never shows an empty name.
+func withNames(top []infer.Prediction, labels []string) []infer.Prediction {
+	out := make([]infer.Prediction, len(top))
+	for i, p := range top {
+		p.Label = className(labels, p.Index)
+		out[i] = p
+	}
+	return out
+}
+
+func softmaxNote(cl *Classification) string {
+	if cl.Softmaxed {
+		return "the model's output is already a probability distribution"
+	}
+	return "applied by Fovea to the model's output"
 }
