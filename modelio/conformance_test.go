@@ -5,6 +5,7 @@ import (
 	"os"
 	"path/filepath"
 	"slices"
+	"strconv"
 	"strings"
 	"testing"
 
@@ -136,7 +137,7 @@ func allKnown(s Shape) bool {
 	return true
 }
 
-func itoa(i int) string { return strings.TrimSpace(strings.Repeat(" ", 0) + string(rune('0'+i))) }
+func itoa(i int) string { return strconv.Itoa(i) }
 
 // TestConformanceNeverGuesses runs every case under node/ and
 // pytorch-converted/: opening never panics, failures are *Error values, and
