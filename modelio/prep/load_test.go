@@ -164,51 +164,57 @@ func TestHostileImages(t *testing.T) {
 			if err := os.WriteFile(path, tc.data(t), 0o644); err != nil {
 				t.Fatal(err)
 			}
-			var img image.Image
-			var err error
-			n := allocated(func() { img, err = Load(path) })
-			if n > tc.maxAlloc {
-				t.Errorf("allocated %d bytes, bound %d", n, tc.maxAlloc)
-			}
-			if tc.class != nil {
-				if err == nil {
-					t.Fatalf("decoded %v, want error %v", img.Bounds(), tc.class)
-				}
-				if !errors.Is(err, tc.class) {
-					t.Errorf("error %q is not %q", err, tc.class)
-				}
-				msg := err.Error()
-				if !strings.HasPrefix(msg, "prep: "+path+": ") {
-					t.Errorf("message %q does not start with prep: <file>:", msg)
-				}
-				for _, w := range tc.words {
-					if !strings.Contains(msg, w) {
-						t.Errorf("message %q lacks %q", msg, w)
-					}
-				}
-				return
-			}
-			if err != nil {
-				t.Fatal(err)
-			}
-			if b := img.Bounds(); b.Dx() != tc.w || b.Dy() != tc.h {
-				t.Fatalf("size %dx%d, want %dx%d", b.Dx(), b.Dy(), tc.w, tc.h)
-			}
-			c := Default()
-			c.Width, c.Height = min(tc.w, MaxSide), min(tc.h, MaxSide)
-			if got := colourAt(Fit(img, c), 0, 0); !closeTo(got, tc.want, tc.tolerate) {
-				t.Errorf("colour %v, want %v ± %d", got, tc.want, tc.tolerate)
-			}
-			// Both resize policies survive every shape, down to a 1×1 input and up to 224.
-			for _, size := range [][2]int{{224, 224}, {1, 1}, {3, 500}} {
-				for _, r := range []string{ResizeStretch, ResizeCrop} {
-					c.Width, c.Height, c.Resize = size[0], size[1], r
-					if b := Fit(img, c).Bounds(); b != image.Rect(0, 0, size[0], size[1]) {
-						t.Errorf("Fit %s to %v gave %v", r, size, b)
-					}
-				}
-			}
+			checkHostile(t, tc, path)
 		})
+	}
+}
+
+// checkHostile loads path and checks the outcome tc describes.
+func checkHostile(t *testing.T, tc hostileCase, path string) {
+	t.Helper()
+	var img image.Image
+	var err error
+	n := allocated(func() { img, err = Load(path) })
+	if n > tc.maxAlloc {
+		t.Errorf("allocated %d bytes, bound %d", n, tc.maxAlloc)
+	}
+	if tc.class != nil {
+		if err == nil {
+			t.Fatalf("decoded %v, want error %v", img.Bounds(), tc.class)
+		}
+		if !errors.Is(err, tc.class) {
+			t.Errorf("error %q is not %q", err, tc.class)
+		}
+		msg := err.Error()
+		if !strings.HasPrefix(msg, "prep: "+path+": ") {
+			t.Errorf("message %q does not start with prep: <file>:", msg)
+		}
+		for _, w := range tc.words {
+			if !strings.Contains(msg, w) {
+				t.Errorf("message %q lacks %q", msg, w)
+			}
+		}
+		return
+	}
+	if err != nil {
+		t.Fatal(err)
+	}
+	if b := img.Bounds(); b.Dx() != tc.w || b.Dy() != tc.h {
+		t.Fatalf("size %dx%d, want %dx%d", b.Dx(), b.Dy(), tc.w, tc.h)
+	}
+	c := Default()
+	c.Width, c.Height = min(tc.w, MaxSide), min(tc.h, MaxSide)
+	if got := colourAt(Fit(img, c), 0, 0); !closeTo(got, tc.want, tc.tolerate) {
+		t.Errorf("colour %v, want %v ± %d", got, tc.want, tc.tolerate)
+	}
+	// Both resize policies survive every shape, down to a 1×1 input and up to 224.
+	for _, size := range [][2]int{{224, 224}, {1, 1}, {3, 500}} {
+		for _, r := range []string{ResizeStretch, ResizeCrop} {
+			c.Width, c.Height, c.Resize = size[0], size[1], r
+			if b := Fit(img, c).Bounds(); b != image.Rect(0, 0, size[0], size[1]) {
+				t.Errorf("Fit %s to %v gave %v", r, size, b)
+			}
+		}
 	}
 }
 
