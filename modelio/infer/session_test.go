@@ -555,3 +555,51 @@ func TestClose(t *testing.T) {
 		t.Errorf("run after Close: %v", err)
 	}
 }
+
+// Shapes static inference cannot know (an Einsum, which modelio has no rule
+// for, and the Relu after it) are filled from one real run and marked
+// "observed"; the shapes are the ones the graph implies (by hand: a 3×3
+// convolution with padding 1 keeps 8×8; the identity Einsum and the Relu
+// keep the shape).
+func TestObserveShapes(t *testing.T) {
+	needORT(t)
+	g := &onnxpb.GraphProto{
+		Name:        "einsum",
+		Input:       []*onnxpb.ValueInfoProto{vi("image", onnxpb.TensorProto_FLOAT, "N", 3, 8, 8)},
+		Initializer: []*onnxpb.TensorProto{f32("w", []int64{4, 3, 3, 3}, randn(1, 108, 0.3))},
+		Node: []*onnxpb.NodeProto{
+			node("Conv", "conv", []string{"image", "w"}, []string{"c"}, ints("pads", 1, 1, 1, 1)),
+			node("Einsum", "same", []string{"c"}, []string{"e"}, &onnxpb.AttributeProto{Name: "equation", Type: onnxpb.AttributeProto_STRING, S: []byte("nchw->nchw")}),
+			node("Relu", "relu", []string{"e"}, []string{"r"}),
+		},
+		Output: []*onnxpb.ValueInfoProto{vi("r", onnxpb.TensorProto_FLOAT, "N", 4, 8, 8)},
+	}
+	m := writeModel(t, "einsum.onnx", modelBytes(t, g, 13, nil))
+	unknown := map[string]bool{}
+	for _, l := range m.Layers {
+		if l.ShapeSource == modelio.SourceUnknown {
+			unknown[l.Output] = true
+		}
+	}
+	if !unknown["e"] {
+		t.Fatalf("test premise: modelio infers the Einsum's shape statically; layers: %+v", m.Layers)
+	}
+	n, err := ObserveShapes(context.Background(), m, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if n != len(unknown) {
+		t.Errorf("observed %d layers, %d were unknown", n, len(unknown))
+	}
+	for _, l := range m.Layers {
+		if !unknown[l.Output] {
+			continue
+		}
+		if l.ShapeSource != modelio.SourceObserved || !slices.Equal(l.Shape.Ints(), []int64{1, 4, 8, 8}) {
+			t.Errorf("layer %s: %s %s, want observed 1×4×8×8", l.Name, l.ShapeSource, l.Shape)
+		}
+	}
+	if n, err := ObserveShapes(context.Background(), m, Options{}); err != nil || n != 0 {
+		t.Errorf("second ObserveShapes: %d, %v; want 0 (nothing unknown any more)", n, err)
+	}
+}
