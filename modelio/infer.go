@@ -39,6 +39,7 @@ type tinfo struct {
 	rf       rfInfo
 	src      string // SourceStatic, SourceObserved, or "" (unknown)
 	declared bool   // shape taken from the file's value_info, not inferred
+	fromRun  bool   // shape observed in a run or inferred from one that was
 	note     string
 }
 

@@ -71,7 +71,7 @@ func (m *Model) analyse() {
 			if t != nil && t.act {
 				act = true
 			}
-			if t != nil && t.src == SourceObserved {
+			if t != nil && t.fromRun {
 				fromObserved = true
 			}
 		}
@@ -97,6 +97,7 @@ func (m *Model) analyse() {
 			}
 			if o.static() && fromObserved {
 				o.note = "inferred from shapes observed in a run"
+				o.fromRun = true
 			}
 			m.override(name, o)
 			g.info[name] = o
@@ -133,7 +134,7 @@ func (m *Model) override(name string, o *tinfo) {
 			s[0] = o.shape[0] // keep the symbolic batch
 		}
 		o.note = "static inference: " + shortWhy(o.why)
-		o.shape, o.src = s, SourceObserved
+		o.shape, o.src, o.fromRun = s, SourceObserved, true
 		return
 	}
 	if vi, ok := g.declared[name]; ok {
