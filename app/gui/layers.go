@@ -1,0 +1,158 @@
+package gui
+
+import (
+	"fmt"
+	"strconv"
+
+	"fyne.io/fyne/v2"
+	"fyne.io/fyne/v2/container"
+	"fyne.io/fyne/v2/widget"
+
+	"fovea/modelio"
+)
+
+// layerColumns are the layer panel's columns: title, width, and whether the
+// values are numbers (aligned right).
+var layerColumns = []struct {
+	title string
+	width float32
+	num   bool
+}{
+	{"Layer", 150, false},
+	{"Op", 96, false},
+	{"W × H × D", 104, true},
+	{"Params", 70, true},
+	{"MACs", 74, true},
+	{"Memory", 80, true},
+	{"RF", 48, true},
+}
+
+// layerPanel is the side panel: every layer of the open model with its
+// output volume, parameters, multiply-accumulates, output memory and
+// receptive field. Choosing a row shows that layer's activation maps.
+type layerPanel struct {
+	u       *ui
+	table   *widget.Table
+	totals  *widget.Label
+	content fyne.CanvasObject
+	rows    []modelio.Layer
+	quiet   bool // selection changed by the window, not the user
+}
+
+func newLayerPanel(u *ui) *layerPanel {
+	p := &layerPanel{u: u}
+	p.table = widget.NewTable(
+		func() (int, int) { return len(p.rows), len(layerColumns) },
+		func() fyne.CanvasObject {
+			l := widget.NewLabel("conv_name_long")
+			l.Truncation = fyne.TextTruncateEllipsis
+			return l
+		},
+		func(id widget.TableCellID, o fyne.CanvasObject) {
+			l := o.(*widget.Label)
+			l.SetText(p.cell(id.Row, id.Col))
+			if layerColumns[id.Col].num {
+				l.Alignment = fyne.TextAlignTrailing
+			} else {
+				l.Alignment = fyne.TextAlignLeading
+			}
+			l.Refresh()
+		})
+	p.table.ShowHeaderRow = true
+	p.table.CreateHeader = func() fyne.CanvasObject {
+		return widget.NewLabelWithStyle("", fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
+	}
+	p.table.UpdateHeader = func(id widget.TableCellID, o fyne.CanvasObject) {
+		l := o.(*widget.Label)
+		if id.Col >= 0 {
+			l.SetText(layerColumns[id.Col].title)
+			if layerColumns[id.Col].num {
+				l.Alignment = fyne.TextAlignTrailing
+			} else {
+				l.Alignment = fyne.TextAlignLeading
+			}
+		}
+		l.Refresh()
+	}
+	for i, c := range layerColumns {
+		p.table.SetColumnWidth(i, c.width)
+	}
+	p.table.OnSelected = func(id widget.TableCellID) {
+		if p.quiet || id.Row < 0 || id.Row >= len(p.rows) {
+			return
+		}
+		u.chooseLayer(p.rows[id.Row].Output, true)
+	}
+	p.totals = widget.NewLabel("")
+	p.totals.Wrapping = fyne.TextWrapWord
+	title := widget.NewLabelWithStyle("Layers", fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
+	hint := widget.NewLabel("Choose a row to see its activation maps.")
+	hint.Importance = widget.LowImportance
+	p.content = container.NewBorder(container.NewHBox(title, hint), p.totals, nil, nil, p.table)
+	return p
+}
+
+// cell renders one value of the table.
+func (p *layerPanel) cell(row, col int) string {
+	if row < 0 || row >= len(p.rows) {
+		return ""
+	}
+	l := p.rows[row]
+	switch col {
+	case 0:
+		return l.Name
+	case 1:
+		return l.Op
+	case 2:
+		return l.WHD()
+	case 3:
+		if l.Params == 0 {
+			return "–"
+		}
+		return count(l.Params)
+	case 4:
+		if l.MACs == 0 {
+			return "–"
+		}
+		return count(l.MACs)
+	case 5:
+		return memSize(l.Bytes)
+	case 6:
+		if l.RF <= 0 {
+			return "–"
+		}
+		return strconv.Itoa(l.RF)
+	}
+	return ""
+}
+
+// refresh shows the open model's layers.
+func (p *layerPanel) refresh() {
+	ws := p.u.ws
+	p.rows = nil
+	p.totals.SetText("")
+	if ws != nil {
+		p.rows = ws.Model.Layers
+		t := ws.Model.Total
+		p.totals.SetText(fmt.Sprintf("%d layers · %s parameters · %s MACs per image · %s of outputs per image · RF in pixels of the input",
+			len(p.rows), count(t.Params), count(t.MACs), memSize(t.Bytes)))
+	}
+	p.quiet = true
+	p.table.UnselectAll()
+	p.quiet = false
+	p.table.Refresh()
+	p.table.ScrollToTop()
+}
+
+// show selects the row of the layer with output tensor out, without acting
+// on it.
+func (p *layerPanel) show(out string) {
+	for i, l := range p.rows {
+		if l.Output == out {
+			p.quiet = true
+			p.table.Select(widget.TableCellID{Row: i, Col: 0})
+			p.quiet = false
+			return
+		}
+	}
+}

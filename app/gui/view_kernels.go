@@ -1,0 +1,210 @@
+package gui
+
+import (
+	"fmt"
+	"math"
+	"slices"
+	"strconv"
+	"strings"
+
+	"fyne.io/fyne/v2"
+	"fyne.io/fyne/v2/container"
+	"fyne.io/fyne/v2/widget"
+
+	"fovea/modelio"
+	"fovea/viz"
+)
+
+// kernelView is the "Kernels" tab: the filters of a convolution (the first
+// by default) as tiles, with the filters a weight check or the last scan
+// flagged framed and listed.
+type kernelView struct {
+	u       *ui
+	content fyne.CanvasObject
+
+	layer     *widget.Select
+	slice     *widget.Select
+	perFilter *widget.Check
+	byNorm    *widget.Check
+	numbers   *widget.Check
+	pic       *picture
+	about     *widget.Label
+	flagged   *widget.Label
+
+	convs []modelio.Layer
+	info  []viz.TileInfo // the tiles drawn last (tests read them)
+	quiet bool
+}
+
+// tileTarget is the width in pixels the tile grid is drawn at.
+const tileTarget = 560
+
+// flagNames are the flags as the window words them.
+var flagNames = map[string]string{
+	viz.FlagDead:       "dead",
+	viz.FlagRare:       "rare",
+	viz.FlagConstant:   "constant output",
+	viz.FlagZeroKernel: "all-zero weights",
+	viz.FlagDuplicate:  "near-duplicate",
+}
+
+func flagText(flags []string) string {
+	var out []string
+	for _, f := range flags {
+		if n, ok := flagNames[f]; ok {
+			out = append(out, n)
+		} else {
+			out = append(out, f)
+		}
+	}
+	return strings.Join(out, ", ")
+}
+
+const legendText = "Mid-grey is zero; colours show each filter's weights on one shared scale unless each filter is scaled on its own. " +
+	"Frames: solid red = dead or all-zero weights, dashed amber = rare, constant or near-duplicate. " +
+	"Letters under a tile: X dead, R rare, C constant, Z zero weights, D duplicate."
+
+func newKernelView(u *ui) *kernelView {
+	v := &kernelView{u: u}
+	v.layer = widget.NewSelect(nil, func(string) { v.draw() })
+	v.slice = widget.NewSelect(nil, func(string) { v.draw() })
+	v.perFilter = widget.NewCheck("Scale each filter on its own", func(bool) { v.draw() })
+	v.byNorm = widget.NewCheck("Strongest first", func(bool) { v.draw() })
+	v.numbers = widget.NewCheck("Numbers", func(bool) { v.draw() })
+	v.numbers.Checked = true
+	v.pic = newPicture(fyne.NewSize(320, 320), 4)
+	v.about = widget.NewLabel("")
+	v.about.Wrapping = fyne.TextWrapWord
+	v.flagged = widget.NewLabel("")
+	v.flagged.Wrapping = fyne.TextWrapWord
+	v.flagged.Importance = widget.DangerImportance
+	controls := container.NewHBox(widget.NewLabel("Convolution"), v.layer, v.slice, v.perFilter, v.byNorm, v.numbers)
+	v.content = container.NewBorder(
+		container.NewVBox(controls, v.about),
+		container.NewVBox(v.flagged, hint(legendText)),
+		nil, nil, v.pic.box)
+	return v
+}
+
+// refresh lists the open model's convolutions and draws the chosen one.
+func (v *kernelView) refresh() {
+	ws := v.u.ws
+	v.convs = nil
+	var names []string
+	if ws != nil {
+		v.convs = convLayers(ws.Model)
+		for _, l := range v.convs {
+			names = append(names, l.Name)
+		}
+	}
+	v.quiet = true
+	v.layer.Options = names
+	if !slices.Contains(names, v.layer.Selected) {
+		v.layer.Selected = ""
+		if len(names) > 0 {
+			v.layer.Selected = names[0]
+		}
+	}
+	v.layer.Refresh()
+	v.quiet = false
+	v.draw()
+}
+
+// draw renders the tiles of the chosen convolution with the current
+// options and the flags of the last scan.
+func (v *kernelView) draw() {
+	if v.quiet {
+		return
+	}
+	ws := v.u.ws
+	v.info = nil
+	if ws == nil || v.layer.Selected == "" {
+		v.pic.set(nil)
+		v.about.SetText("This model has no convolution, so there are no filters to draw.")
+		v.flagged.SetText("")
+		v.slice.Hide()
+		return
+	}
+	k, err := ws.Kernels(v.layer.Selected)
+	if err != nil {
+		v.pic.set(nil)
+		v.about.SetText(err.Error())
+		return
+	}
+	// The input-channel choice: RGB for colour first layers, one channel
+	// otherwise (a deeper filter has too many channels to show at once).
+	choices := []string{}
+	if k.C == 3 {
+		choices = append(choices, "as colour")
+	}
+	for c := range k.C {
+		choices = append(choices, "input channel "+strconv.Itoa(c))
+	}
+	v.quiet = true
+	v.slice.Options = choices
+	if !containsStr(choices, v.slice.Selected) {
+		v.slice.Selected = choices[0]
+	}
+	v.slice.Refresh()
+	v.quiet = false
+	if len(choices) > 1 {
+		v.slice.Show()
+	} else {
+		v.slice.Hide()
+	}
+	slice := -1
+	if s, ok := strings.CutPrefix(v.slice.Selected, "input channel "); ok && (k.C != 1) {
+		slice, _ = strconv.Atoi(s)
+	}
+	cols := int(math.Ceil(math.Sqrt(float64(k.M))))
+	cell := max(2, min(40, (tileTarget/max(1, cols)-12)/max(1, k.KW)))
+	c, _ := ws.Prep()
+	img, info, err := ws.Tiles(v.layer.Selected, viz.TileOptions{
+		Cell: cell, PerFilter: v.perFilter.Checked, SortByNorm: v.byNorm.Checked,
+		Slice: slice, BGR: c.BGR, Labels: v.numbers.Checked,
+	}, v.u.scan)
+	if err != nil {
+		v.pic.set(nil)
+		v.about.SetText(err.Error())
+		return
+	}
+	v.info = info
+	v.pic.set(img)
+	what := fmt.Sprintf("%d filters of %d×%d over %d input channel", k.M, k.KH, k.KW, k.C)
+	if k.C != 1 {
+		what += "s"
+	}
+	if v.u.scan != nil {
+		what += fmt.Sprintf(". Marks include the scan of %d probe images.", v.u.scan.Images)
+	} else {
+		what += ". Marks come from the weights only; scan probe images under Filter health to mark dead and rare filters."
+	}
+	v.about.SetText(what)
+	var lines []string
+	for _, t := range info {
+		if len(t.Flags) > 0 {
+			lines = append(lines, fmt.Sprintf("filter %d: %s", t.Index, flagText(t.Flags)))
+		}
+	}
+	if len(lines) == 0 {
+		v.flagged.SetText("No filter is flagged.")
+		v.flagged.Importance = widget.SuccessImportance
+	} else {
+		slicesSortByIndex(lines)
+		v.flagged.SetText(fmt.Sprintf("%d flagged: %s", len(lines), strings.Join(lines, " · ")))
+		v.flagged.Importance = widget.DangerImportance
+	}
+	v.flagged.Refresh()
+}
+
+func containsStr(list []string, s string) bool { return slices.Contains(list, s) }
+
+// slicesSortByIndex orders "filter N: …" lines by N.
+func slicesSortByIndex(lines []string) {
+	num := func(s string) int {
+		s = strings.TrimPrefix(s, "filter ")
+		n, _ := strconv.Atoi(s[:strings.IndexByte(s, ':')])
+		return n
+	}
+	slices.SortFunc(lines, func(a, b string) int { return num(a) - num(b) })
+}

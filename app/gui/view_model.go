@@ -1,0 +1,303 @@
+package gui
+
+import (
+	"fmt"
+	"path/filepath"
+	"slices"
+	"strings"
+
+	"fyne.io/fyne/v2"
+	"fyne.io/fyne/v2/container"
+	"fyne.io/fyne/v2/theme"
+	"fyne.io/fyne/v2/widget"
+
+	"fovea/modelio"
+	"fovea/modelio/prep"
+)
+
+// modelView is the "Model" tab: what the file is (inputs, outputs, classes,
+// size), how images are prepared for it, and its class labels. The
+// preparation and the labels are editable and remembered per model.
+type modelView struct {
+	u       *ui
+	content fyne.CanvasObject
+
+	summary *widget.Form
+	notes   *widget.Label
+
+	prepFrom *widget.Label
+	preset   *widget.Select
+	size     *widget.Entry
+	channels *widget.Select
+	order    *widget.Select
+	vrange   *widget.Select
+	mean     *widget.Entry
+	std      *widget.Entry
+	layout   *widget.Select
+	resize   *widget.Select
+	bg       *widget.Entry
+	apply    *widget.Button
+
+	labelsFrom *widget.Label
+	labels     *widget.List
+	labelList  []string
+}
+
+const presetCustom = "custom"
+
+// Choices of the preparation selects, as shown.
+var (
+	channelChoices = []string{"3 (colour)", "1 (grey)"}
+	orderChoices   = []string{"RGB", "BGR"}
+	rangeChoices   = []string{prep.RangeUnit, prep.RangeByte, prep.RangeSigned}
+	layoutChoices  = []string{"nchw", "nhwc"}
+	resizeChoices  = []string{"stretch", "crop"}
+)
+
+func newModelView(u *ui) *modelView {
+	v := &modelView{u: u}
+	v.summary = widget.NewForm()
+	v.notes = widget.NewLabel("")
+	v.notes.Wrapping = fyne.TextWrapWord
+	v.notes.Importance = widget.WarningImportance
+
+	var presets []string
+	for _, p := range prep.Presets() {
+		presets = append(presets, p.Name)
+	}
+	presets = append(presets, presetCustom)
+	v.preset = widget.NewSelect(presets, func(name string) {
+		p, ok := prep.PresetNamed(name)
+		if !ok {
+			return
+		}
+		v.mean.SetText(triple(p.Mean))
+		v.std.SetText(triple(p.Std))
+		v.vrange.SetSelected(p.Range)
+		v.order.SetSelected(orderChoices[b2i(p.BGR)])
+	})
+	v.size = widget.NewEntry()
+	v.channels = widget.NewSelect(channelChoices, nil)
+	v.order = widget.NewSelect(orderChoices, nil)
+	v.vrange = widget.NewSelect(rangeChoices, nil)
+	v.mean = widget.NewEntry()
+	v.std = widget.NewEntry()
+	v.layout = widget.NewSelect(layoutChoices, nil)
+	v.resize = widget.NewSelect(resizeChoices, nil)
+	v.bg = widget.NewEntry()
+	v.prepFrom = widget.NewLabel("")
+	v.prepFrom.Importance = widget.LowImportance
+	v.apply = widget.NewButtonWithIcon("Apply and remember", theme.ConfirmIcon(), v.applyPrep)
+	v.apply.Importance = widget.HighImportance
+	undo := widget.NewButtonWithIcon("Undo edits", theme.ContentUndoIcon(), v.refresh)
+	prepForm := widget.NewForm(
+		widget.NewFormItem("Preset", v.preset),
+		widget.NewFormItem("Input size", v.size),
+		widget.NewFormItem("Channels", v.channels),
+		widget.NewFormItem("Channel order", v.order),
+		widget.NewFormItem("Value range", v.vrange),
+		widget.NewFormItem("Mean", v.mean),
+		widget.NewFormItem("Std", v.std),
+		widget.NewFormItem("Layout", v.layout),
+		widget.NewFormItem("Resize", v.resize),
+		widget.NewFormItem("Background", v.bg),
+	)
+	v.size.SetPlaceHolder("width x height")
+	v.mean.SetPlaceHolder("r, g, b")
+	v.std.SetPlaceHolder("r, g, b")
+	v.bg.SetPlaceHolder("#rrggbb (shows through transparency)")
+
+	v.labelsFrom = widget.NewLabel("")
+	v.labelsFrom.Importance = widget.LowImportance
+	v.labels = widget.NewList(func() int { return len(v.labelList) },
+		func() fyne.CanvasObject { return widget.NewLabel("label") },
+		func(i widget.ListItemID, o fyne.CanvasObject) { o.(*widget.Label).SetText(v.labelList[i]) })
+	loadLabels := widget.NewButtonWithIcon("Load label file…", theme.FolderOpenIcon(), u.chooseLabels)
+
+	left := container.NewBorder(
+		container.NewVBox(heading("What the file holds"), v.summary, v.notes, widget.NewSeparator(),
+			container.NewBorder(nil, nil, heading("Classes"), loadLabels), v.labelsFrom),
+		nil, nil, nil, v.labels)
+	right := container.NewVScroll(container.NewVBox(
+		heading("How images are prepared"),
+		v.prepFrom,
+		prepForm,
+		container.NewHBox(v.apply, undo),
+		hint("Settings are checked against the model's input and remembered for this model file (by its content), with the label file."),
+	))
+	v.content = container.NewPadded(container.NewGridWithColumns(2, left, right))
+	return v
+}
+
+// heading is a section title inside a view.
+func heading(text string) *widget.Label {
+	return widget.NewLabelWithStyle(text, fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
+}
+
+// hint is a line of secondary, wrapped text.
+func hint(text string) *widget.Label {
+	l := widget.NewLabel(text)
+	l.Wrapping = fyne.TextWrapWord
+	l.Importance = widget.LowImportance
+	return l
+}
+
+func b2i(b bool) int {
+	if b {
+		return 1
+	}
+	return 0
+}
+
+// triple prints three values the way ParseTriple reads them.
+func triple(v [3]float32) string {
+	return fmt.Sprintf("%g, %g, %g", v[0], v[1], v[2])
+}
+
+// refresh shows the open model; it also discards edits not applied.
+func (v *modelView) refresh() {
+	ws := v.u.ws
+	v.summary.Items = nil
+	if ws == nil {
+		v.summary.Refresh()
+		return
+	}
+	m := ws.Model
+	add := func(key, value string) {
+		l := widget.NewLabel(value)
+		l.Wrapping = fyne.TextWrapWord
+		v.summary.Append(key, l)
+	}
+	add("File", m.Name)
+	switch ws.Demo {
+	case "":
+		add("Folder", filepath.Dir(m.Path))
+	default:
+		add("Source", "built-in demo ("+ws.Demo+")")
+	}
+	format := fmt.Sprintf("ONNX IR %d", m.IRVersion)
+	if op, ok := m.Opsets[""]; ok {
+		format += fmt.Sprintf(", opset %d", op)
+	}
+	if m.Producer != "" {
+		format += ", from " + strings.TrimSpace(m.Producer+" "+m.ProducerVersion)
+	}
+	add("Format", format)
+	for _, in := range m.Inputs {
+		if in.Weight {
+			continue
+		}
+		s := fmt.Sprintf("%s: %s %s", in.Name, in.ElemType, in.Shape)
+		if m.Image != nil && m.Image.Name == in.Name {
+			s += " (" + strings.ToUpper(m.Image.Layout) + " image)"
+		}
+		add("Input", s)
+	}
+	for _, out := range m.Outputs {
+		add("Output", fmt.Sprintf("%s: %s %s", out.Name, out.ElemType, out.Shape))
+	}
+	classes := "not fixed by the file"
+	if n := ws.Classes(); n > 0 {
+		classes = fmt.Sprint(n)
+	}
+	add("Classes", classes)
+	convs := 0
+	for _, l := range m.Layers {
+		if l.Op == "Conv" {
+			convs++
+		}
+	}
+	add("Layers", fmt.Sprintf("%d, of which %d convolutions", len(m.Layers), convs))
+	add("Parameters", fmt.Sprintf("%s (%d)", count(m.Total.Params), m.Total.Params))
+	add("MACs per image", count(m.Total.MACs))
+	add("Output memory", memSize(m.Total.Bytes)+" per image (float32)")
+	v.summary.Refresh()
+	notes := slices.Clone(m.Notes)
+	notes = append(notes, ws.GuessNotes()...)
+	v.notes.SetText(strings.Join(notes, "\n"))
+	v.notes.Hidden = len(notes) == 0
+	v.notes.Refresh()
+
+	c, from := ws.Prep()
+	v.prepFrom.SetText("In force: " + from)
+	name := c.Preset()
+	if name == "" {
+		name = presetCustom
+	}
+	v.preset.SetSelected(name)
+	v.size.SetText(fmt.Sprintf("%dx%d", c.Width, c.Height))
+	v.channels.SetSelected(channelChoices[b2i(c.Channels == 1)])
+	v.order.SetSelected(orderChoices[b2i(c.BGR)])
+	v.vrange.SetSelected(c.Range)
+	v.mean.SetText(triple(c.Mean))
+	v.std.SetText(triple(c.Std))
+	v.layout.SetSelected(c.Layout)
+	v.resize.SetSelected(c.Resize)
+	v.bg.SetText(fmt.Sprintf("#%02x%02x%02x", c.Background.R, c.Background.G, c.Background.B))
+
+	labels, lfrom := ws.Labels()
+	v.labelList = v.labelList[:0]
+	for i, l := range labels {
+		v.labelList = append(v.labelList, fmt.Sprintf("%d   %s", i, l))
+	}
+	if len(labels) == 0 {
+		for i := range ws.Classes() {
+			v.labelList = append(v.labelList, fmt.Sprintf("%d   (no label)", i))
+		}
+	}
+	v.labelsFrom.SetText("Labels from: " + lfrom)
+	v.labels.Refresh()
+}
+
+// applyPrep puts the edited preparation in force, remembers it for the
+// model and runs the open image again.
+func (v *modelView) applyPrep() {
+	u := v.u
+	ws := u.ws
+	if ws == nil {
+		return
+	}
+	c, _ := ws.Prep()
+	fields := []struct{ key, value string }{
+		{"size", v.size.Text},
+		{"channels", strings.Fields(v.channels.Selected + " 3")[0]},
+		{"order", strings.ToLower(v.order.Selected)},
+		{"range", v.vrange.Selected},
+		{"mean", v.mean.Text},
+		{"std", v.std.Text},
+		{"layout", v.layout.Selected},
+		{"resize", v.resize.Selected},
+		{"background", v.bg.Text},
+	}
+	for _, f := range fields {
+		if err := c.Set(f.key, f.value); err != nil {
+			u.showError("Changing the input preparation", err)
+			return
+		}
+	}
+	if err := ws.SetPrep(c); err != nil {
+		u.showError("Changing the input preparation", err)
+		return
+	}
+	if ws.Demo == "" {
+		if err := ws.Remember(); err != nil {
+			u.showError("Saving the settings of "+ws.Name(), err)
+		}
+	}
+	v.refresh()
+	u.vOcc.modelChanged()
+	if u.img != nil {
+		u.analyze()
+	}
+}
+
+// convLayers lists the model's convolutions, in execution order.
+func convLayers(m *modelio.Model) []modelio.Layer {
+	var out []modelio.Layer
+	for _, l := range m.Layers {
+		if l.Op == "Conv" {
+			out = append(out, l)
+		}
+	}
+	return out
+}

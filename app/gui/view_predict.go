@@ -1,0 +1,107 @@
+package gui
+
+import (
+	"fmt"
+
+	"fyne.io/fyne/v2"
+	"fyne.io/fyne/v2/container"
+	"fyne.io/fyne/v2/layout"
+	"fyne.io/fyne/v2/theme"
+	"fyne.io/fyne/v2/widget"
+
+	"fovea/app/core"
+)
+
+// predictView is the "Prediction" tab: the picture as the model sees it and
+// its most probable classes.
+type predictView struct {
+	u       *ui
+	content fyne.CanvasObject
+
+	demo    *widget.Select
+	pic     *picture
+	caption *widget.Label
+	rows    *fyne.Container
+	note    *widget.Label
+	quiet   bool
+}
+
+// topK is how many classes the view lists.
+const topK = 5
+
+func newPredictView(u *ui) *predictView {
+	v := &predictView{u: u}
+	v.demo = widget.NewSelect(nil, func(name string) {
+		if !v.quiet && name != "" {
+			u.openDemoImage(name)
+		}
+	})
+	v.demo.PlaceHolder = "Demo images"
+	open := widget.NewButtonWithIcon("Open image…", theme.FileImageIcon(), u.chooseImage)
+	explain := widget.NewButtonWithIcon("Explain with occlusion", theme.NavigateNextIcon(), func() { u.showView(viewOcclusion) })
+	v.pic = newPicture(fyne.NewSize(256, 256), 8)
+	v.caption = widget.NewLabel("")
+	v.caption.Wrapping = fyne.TextWrapWord
+	v.rows = container.NewVBox()
+	v.note = hint("")
+	left := container.NewBorder(heading("What the model sees"), v.caption, nil, nil, v.pic.box)
+	right := container.NewVBox(heading("Most probable classes"), v.rows, v.note, layout.NewSpacer(), container.NewHBox(explain))
+	v.content = container.NewBorder(
+		container.NewHBox(open, v.demo),
+		nil, nil, nil,
+		container.NewGridWithColumns(2, left, container.NewPadded(right)))
+	return v
+}
+
+// refresh shows the model's answer for the open image.
+func (v *predictView) refresh() {
+	u := v.u
+	v.quiet = true
+	v.demo.Options = core.DemoImages()
+	if u.imgPath == "" && u.img != nil {
+		v.demo.Selected = u.imgName
+	} else {
+		v.demo.Selected = ""
+	}
+	v.demo.Refresh()
+	v.quiet = false
+	v.rows.Objects = nil
+	if u.acts == nil {
+		v.pic.set(nil)
+		v.caption.SetText("Open an image (Ctrl+I), drop one on the window, or pick a demo image.")
+		v.note.SetText("")
+		v.rows.Refresh()
+		return
+	}
+	a := u.acts
+	v.pic.set(a.Input)
+	c, _ := u.ws.Prep()
+	v.caption.SetText(fmt.Sprintf("%s, %d×%d after %s resizing; prepared as %s.",
+		u.imgName, a.Input.Bounds().Dx(), a.Input.Bounds().Dy(), c.Resize, c.String()))
+	cl := a.Class
+	for i, p := range cl.Top {
+		if i >= topK {
+			break
+		}
+		name := p.Label
+		if name == "" {
+			name = fmt.Sprintf("class %d", p.Index)
+		}
+		l := widget.NewLabel(fmt.Sprintf("%d. %s", i+1, name))
+		l.Truncation = fyne.TextTruncateEllipsis
+		if i == 0 {
+			l.TextStyle.Bold = true
+		}
+		bar := widget.NewProgressBar()
+		bar.SetValue(p.Probability)
+		prob := p.Probability
+		bar.TextFormatter = func() string { return percent(prob) }
+		v.rows.Add(container.NewGridWithColumns(2, l, bar))
+	}
+	if cl.Softmaxed {
+		v.note.SetText("The model outputs probabilities itself.")
+	} else {
+		v.note.SetText("Probabilities are the softmax of the model's raw scores.")
+	}
+	v.rows.Refresh()
+}
