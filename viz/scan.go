@@ -1,0 +1,371 @@
+package viz
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"sync"
+
+	"fovea/modelio"
+	"fovea/modelio/infer"
+	"fovea/modelio/prep"
+)
+
+// DefaultRare is the fraction of probe images under which a channel that
+// does fire is flagged rare.
+const DefaultRare = 0.01
+
+// ScanOptions are the knobs of a dead-filter scan. The zero value is usable.
+type ScanOptions struct {
+	// Rare: a channel firing on a fraction of the images below this (but
+	// above 0) is flagged rare. 0 means DefaultRare.
+	Rare float64
+	// SkipUnreadable: a probe file that cannot be loaded is recorded in
+	// ScanReport.Skipped and the scan goes on. By default the scan stops with
+	// an error naming the file.
+	SkipUnreadable bool
+}
+
+// ScanReport is the result of a dead-filter scan. Its JSON form is the one
+// the command line documents:
+//
+//	{"images": 200, "layers": [{"name": "relu1", "channels": [{"index": 0,
+//	  "fires": 1, "max": 3.2, "mean": 0.41, "flags": []}, ...]}, ...]}
+type ScanReport struct {
+	Images  int         `json:"images"`            // probe images that went through the model
+	Skipped []string    `json:"skipped,omitempty"` // unreadable files passed over (ScanOptions.SkipUnreadable)
+	Rare    float64     `json:"rare"`              // the rare threshold in force
+	Layers  []ScanLayer `json:"layers"`
+}
+
+// ScanLayer is the scan of one activation layer.
+type ScanLayer struct {
+	Name     string        `json:"name"`           // the activation's node name
+	Output   string        `json:"output"`         // its output tensor
+	Conv     string        `json:"conv,omitempty"` // the Conv whose kernels feed it, when there is one
+	Channels []ChannelScan `json:"channels"`
+}
+
+// ChannelScan is the scan of one channel: Fires is the fraction of images on
+// which any value of the channel's map was > 0, Max and Mean are taken over
+// all positions of all images. Flags, in this order, among:
+//
+//	FlagDead        fired on no image
+//	FlagRare        fired, but on a fraction of the images below ScanOptions.Rare
+//	FlagConstant    fired, and had one and the same value at every position of every image
+//	                (a dead channel is constant too, at 0, but is flagged dead only)
+//	FlagZeroKernel  the feeding Conv's filter is zero (KernelFlags)
+//	FlagDuplicate   the feeding Conv's filter nearly repeats another one (KernelFlags)
+//
+// Flags is never nil, so that JSON shows [] for a healthy channel.
+type ChannelScan struct {
+	Index int      `json:"index"`
+	Fires float64  `json:"fires"`
+	Max   float64  `json:"max"`
+	Mean  float64  `json:"mean"`
+	Flags []string `json:"flags"`
+}
+
+// reluLike are the activation ops the scan looks at: their output is > 0
+// exactly where their input is > 0, so "fires" (any value > 0) means the
+// same for all of them and a channel that never fires passes no signal (or,
+// for the leaky kinds, only the negative slope). Clip is assumed to be the
+// ReLU6 kind (min 0); a Clip with a negative minimum would count values in
+// (min, 0] as not firing, which is what "fires" means anyway.
+var reluLike = map[string]bool{
+	"Relu": true, "LeakyRelu": true, "PRelu": true, "Clip": true, "ThresholdedRelu": true,
+	"Elu": true, "Celu": true, "Selu": true, "Gelu": true, "HardSwish": true,
+}
+
+// ScanLayers returns the layers a scan of m looks at: those whose op is
+// ReLU-like (Relu, LeakyRelu, PRelu, Clip, ThresholdedRelu, Elu, Celu, Selu,
+// Gelu, HardSwish), in execution order.
+func ScanLayers(m *modelio.Model) []modelio.Layer {
+	var out []modelio.Layer
+	for _, l := range m.Layers {
+		if reluLike[l.Op] {
+			out = append(out, l)
+		}
+	}
+	return out
+}
+
+// ScanCapture returns the tensor names a session must capture
+// (infer.Options.Capture) for Scan to read them.
+func ScanCapture(m *modelio.Model) []string {
+	var names []string
+	for _, l := range ScanLayers(m) {
+		names = append(names, l.Output)
+	}
+	return names
+}
+
+// feedingConv returns the Conv whose output reaches layer i of m through at
+// most a BatchNormalization, or -1. Layers are in execution order; a
+// node's immediate predecessor in that order is taken as its input, and the
+// Conv is accepted only when its output channels match.
+func feedingConv(m *modelio.Model, i int) int {
+	for j := i - 1; j >= 0 && j >= i-2; j-- {
+		switch m.Layers[j].Op {
+		case "Conv":
+			return j
+		case "BatchNormalization":
+			continue
+		default:
+			return -1
+		}
+	}
+	return -1
+}
+
+// channelAcc accumulates one channel's statistics over images.
+type channelAcc struct {
+	fires    int
+	min, max float64
+	sum      float64
+}
+
+// layerAcc accumulates one layer: the channel axis is 1 (ONNX's NCHW
+// convention for every op after a Conv), the rest after it are positions.
+type layerAcc struct {
+	layer    modelio.Layer
+	conv     int // index into m.Layers, -1 when none
+	channels []channelAcc
+	spatial  int // positions per channel map, fixed by the first batch
+	values   int // values seen per channel
+}
+
+func (a *layerAcc) add(t infer.Tensor, n int) error {
+	if len(t.Shape) < 2 || t.Shape[0] != int64(n) {
+		return fmt.Errorf("viz: scan: activation %q has shape %v for a batch of %d images; want [N][C]...", a.layer.Output, t.Shape, n)
+	}
+	c := int(t.Shape[1])
+	sp := 1
+	for _, d := range t.Shape[2:] {
+		sp *= int(d)
+	}
+	if c <= 0 || sp <= 0 || len(t.Data) != n*c*sp {
+		return fmt.Errorf("viz: scan: activation %q: shape %v does not match its %d values", a.layer.Output, t.Shape, len(t.Data))
+	}
+	if a.channels == nil {
+		a.channels = make([]channelAcc, c)
+		for i := range a.channels {
+			a.channels[i] = channelAcc{min: math.Inf(1), max: math.Inf(-1)}
+		}
+		a.spatial = sp
+	} else if c != len(a.channels) || sp != a.spatial {
+		return fmt.Errorf("viz: scan: activation %q changed shape between batches (%v)", a.layer.Output, t.Shape)
+	}
+	for img := 0; img < n; img++ {
+		for ch := range a.channels {
+			m := t.Data[(img*c+ch)*sp : (img*c+ch+1)*sp]
+			mn, mx := m[0], m[0]
+			var sum float64
+			for _, v := range m {
+				mx = max(mx, v)
+				mn = min(mn, v)
+				sum += float64(v)
+			}
+			acc := &a.channels[ch]
+			if mx > 0 {
+				acc.fires++
+			}
+			acc.min = math.Min(acc.min, float64(mn))
+			acc.max = math.Max(acc.max, float64(mx))
+			acc.sum += sum
+		}
+	}
+	a.values += n * sp
+	return nil
+}
+
+// scanBatch is a batch of decoded probe images on its way to the model.
+type scanBatch struct {
+	data     []float32
+	n        int      // images in data
+	consumed int      // files consumed so far (read or skipped), for progress
+	skipped  []string // files skipped while filling this batch
+	err      error
+}
+
+// Scan runs the probe files through the model and reports, for each channel
+// of each ReLU-like activation layer (ScanLayers), how often it fires, its
+// largest and mean value, and flags: dead, rare, constant, and from the Conv
+// kernels feeding it (KernelFlags) zero_kernel and duplicate.
+//
+// s must capture the activations: create it with
+// infer.Options{Capture: ScanCapture(m)}. Files are decoded by one
+// goroutine while the model runs on the previous batch; at most three
+// batches of images exist at any time, so memory does not depend on the
+// number of files. progress, when not nil, gets the number of files done and
+// the total. A cancelled ctx makes Scan return ctx.Err() promptly, with its
+// goroutine finished.
+//
+// A file that cannot be loaded stops the scan with an error naming it,
+// unless o.SkipUnreadable is set, in which case it is listed in
+// ScanReport.Skipped and does not count as an image.
+func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config, files []string, o ScanOptions,
+	progress func(done, total int)) (*ScanReport, error) {
+	rare := o.Rare
+	if rare == 0 {
+		rare = DefaultRare
+	}
+	if !(rare > 0 && rare <= 1) {
+		return nil, fmt.Errorf("viz: scan: rare threshold %g: must be in (0, 1]", o.Rare)
+	}
+	if len(files) == 0 {
+		return nil, errors.New("viz: scan: no probe images")
+	}
+	if err := c.Validate(); err != nil {
+		return nil, fmt.Errorf("viz: scan: %w", err)
+	}
+	var accs []*layerAcc
+	for i, l := range m.Layers {
+		if reluLike[l.Op] {
+			accs = append(accs, &layerAcc{layer: l, conv: feedingConv(m, i)})
+		}
+	}
+	if len(accs) == 0 {
+		return nil, fmt.Errorf("viz: scan: %s has no ReLU-like activation layer to scan", m.Name)
+	}
+	if err := ctx.Err(); err != nil {
+		return nil, err
+	}
+
+	size := c.Channels * c.Height * c.Width
+	bs := max(1, min(s.BatchSize(), len(files)))
+	const buffers = 3 // one being filled, one queued, one in the model
+	free := make(chan []float32, buffers)
+	for i := 0; i < buffers; i++ {
+		free <- make([]float32, bs*size)
+	}
+	full := make(chan scanBatch, 1)
+	ctx2, cancel := context.WithCancel(ctx)
+	var wg sync.WaitGroup
+	defer func() {
+		cancel()
+		wg.Wait()
+	}()
+	wg.Add(1)
+	go func() {
+		defer wg.Done()
+		defer close(full)
+		decodeProbes(ctx2, files, c, bs, size, o.SkipUnreadable, free, full)
+	}()
+
+	rep := &ScanReport{Rare: rare}
+	var res *infer.Result
+	if progress != nil {
+		progress(0, len(files))
+	}
+	for b := range full {
+		if b.err != nil {
+			return nil, b.err
+		}
+		rep.Skipped = append(rep.Skipped, b.skipped...)
+		if b.n > 0 {
+			var err error
+			res, err = s.RunInto(ctx, b.data[:b.n*size], b.n, res)
+			if err != nil {
+				if ctx.Err() != nil {
+					return nil, ctx.Err()
+				}
+				return nil, fmt.Errorf("viz: scan: %w", err)
+			}
+			for _, a := range accs {
+				t, ok := res.Maps[a.layer.Output]
+				if !ok {
+					return nil, fmt.Errorf("viz: scan: the session does not capture %q (create it with infer.Options{Capture: viz.ScanCapture(m)})", a.layer.Output)
+				}
+				if err := a.add(t, b.n); err != nil {
+					return nil, err
+				}
+			}
+			rep.Images += b.n
+		}
+		free <- b.data
+		if progress != nil {
+			progress(b.consumed, len(files))
+		}
+	}
+	if err := ctx.Err(); err != nil {
+		return nil, err
+	}
+	if rep.Images == 0 {
+		return nil, fmt.Errorf("viz: scan: none of the %d probe files could be read", len(files))
+	}
+	for _, a := range accs {
+		l := ScanLayer{Name: a.layer.Name, Output: a.layer.Output}
+		var kflags map[int][]string
+		if a.conv >= 0 {
+			cl := m.Layers[a.conv]
+			k, err := m.Kernels(cl.Name)
+			if err == nil && k.M == len(a.channels) {
+				l.Conv = cl.Name
+				kflags = KernelFlags(k)
+			}
+		}
+		for i, ch := range a.channels {
+			cs := ChannelScan{Index: i, Fires: float64(ch.fires) / float64(rep.Images), Max: ch.max,
+				Mean: ch.sum / float64(a.values), Flags: []string{}}
+			switch {
+			case ch.fires == 0:
+				cs.Flags = append(cs.Flags, FlagDead)
+			case cs.Fires < rare:
+				cs.Flags = append(cs.Flags, FlagRare)
+			}
+			if ch.fires > 0 && ch.min == ch.max {
+				cs.Flags = append(cs.Flags, FlagConstant)
+			}
+			cs.Flags = append(cs.Flags, kflags[i]...)
+			l.Channels = append(l.Channels, cs)
+		}
+		rep.Layers = append(rep.Layers, l)
+	}
+	return rep, nil
+}
+
+// decodeProbes loads files into batches of up to bs images and sends them on
+// full, taking buffers from free. It returns when the files are done or ctx
+// is cancelled; an unreadable file ends it with an error batch unless skip.
+func decodeProbes(ctx context.Context, files []string, c prep.Config, bs, size int, skip bool,
+	free <-chan []float32, full chan<- scanBatch) {
+	next := 0
+	for next < len(files) {
+		var buf []float32
+		select {
+		case buf = <-free:
+		case <-ctx.Done():
+			return
+		}
+		b := scanBatch{data: buf}
+		for b.n < bs && next < len(files) {
+			if ctx.Err() != nil {
+				return
+			}
+			f := files[next]
+			next++
+			img, err := prep.Load(f)
+			if err != nil {
+				if skip {
+					b.skipped = append(b.skipped, f)
+					continue
+				}
+				b.err = fmt.Errorf("viz: scan: %w", err)
+				break
+			}
+			c.Tensor(prep.Planes(prep.Fit(img, c)), buf[b.n*size:(b.n+1)*size])
+			b.n++
+		}
+		b.consumed = next
+		select {
+		case full <- b:
+		case <-ctx.Done():
+			return
+		}
+		if b.err != nil {
+			return
+		}
+	}
+}

@@ -1,0 +1,153 @@
+package viz
+
+import (
+	"cmp"
+	"encoding/csv"
+	"encoding/json"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+	"slices"
+	"strconv"
+	"strings"
+)
+
+// ScanRow is one channel of a scan with the layer it belongs to: the flat
+// form tables and sorting work on.
+type ScanRow struct {
+	Layer  string // ScanLayer.Name
+	Output string // ScanLayer.Output
+	Conv   string // ScanLayer.Conv
+	Order  int    // the layer's position in the report (execution order)
+	ChannelScan
+}
+
+// Rows returns every channel of the report as one row, in report order
+// (layers in execution order, channels by index).
+func (r *ScanReport) Rows() []ScanRow {
+	var rows []ScanRow
+	for i, l := range r.Layers {
+		for _, c := range l.Channels {
+			rows = append(rows, ScanRow{Layer: l.Name, Output: l.Output, Conv: l.Conv, Order: i, ChannelScan: c})
+		}
+	}
+	return rows
+}
+
+// Sort keys for SortRows.
+const (
+	SortFires = "fires" // fraction of images fired on
+	SortMax   = "max"   // largest value
+	SortMean  = "mean"  // mean value
+	SortName  = "name"  // layer name, then channel index
+	SortOrder = "order" // report order: layers in execution order, then channel index
+)
+
+// SortRows sorts rows by key (SortFires, SortMax, SortMean, SortName or
+// SortOrder), ascending or, with desc, descending. Ties keep report order,
+// so sorting by fires ascending lists the dead channels first, layer by
+// layer.
+func SortRows(rows []ScanRow, key string, desc bool) error {
+	var f func(a, b ScanRow) int
+	switch key {
+	case SortFires:
+		f = func(a, b ScanRow) int { return cmp.Compare(a.Fires, b.Fires) }
+	case SortMax:
+		f = func(a, b ScanRow) int { return cmp.Compare(a.Max, b.Max) }
+	case SortMean:
+		f = func(a, b ScanRow) int { return cmp.Compare(a.Mean, b.Mean) }
+	case SortName:
+		f = func(a, b ScanRow) int {
+			return cmp.Or(strings.Compare(a.Layer, b.Layer), cmp.Compare(a.Index, b.Index))
+		}
+	case SortOrder:
+		f = func(a, b ScanRow) int { return 0 }
+	default:
+		return fmt.Errorf("viz: scan: unknown sort key %q (want %s, %s, %s, %s or %s)", key, SortFires, SortMax, SortMean, SortName, SortOrder)
+	}
+	slices.SortStableFunc(rows, func(a, b ScanRow) int {
+		c := f(a, b)
+		if desc {
+			c = -c
+		}
+		return cmp.Or(c, cmp.Compare(a.Order, b.Order), cmp.Compare(a.Index, b.Index))
+	})
+	return nil
+}
+
+// WriteCSV writes one row per channel, in report order, under the header
+//
+//	layer,output,conv,channel,fires,max,mean,flags
+//
+// fires is a fraction in [0, 1]; flags are separated by spaces.
+func (r *ScanReport) WriteCSV(w io.Writer) error {
+	cw := csv.NewWriter(w)
+	cw.Write([]string{"layer", "output", "conv", "channel", "fires", "max", "mean", "flags"})
+	g := func(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
+	for _, row := range r.Rows() {
+		cw.Write([]string{row.Layer, row.Output, row.Conv, strconv.Itoa(row.Index), g(row.Fires), g(row.Max), g(row.Mean),
+			strings.Join(row.Flags, " ")})
+	}
+	cw.Flush()
+	if err := cw.Error(); err != nil {
+		return fmt.Errorf("viz: scan: writing CSV: %w", err)
+	}
+	return nil
+}
+
+// WriteJSON writes the report as indented JSON (see ScanReport for the
+// fields).
+func (r *ScanReport) WriteJSON(w io.Writer) error {
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	if err := enc.Encode(r); err != nil {
+		return fmt.Errorf("viz: scan: writing JSON: %w", err)
+	}
+	return nil
+}
+
+// probeExt are the file name extensions ProbeFiles takes for images.
+var probeExt = map[string]bool{
+	".png": true, ".jpg": true, ".jpeg": true, ".gif": true, ".bmp": true,
+	".tif": true, ".tiff": true, ".webp": true,
+}
+
+// ProbeFiles lists the image files directly inside dir (not in its
+// subfolders), recognised by extension (png, jpg, jpeg, gif, bmp, tif, tiff,
+// webp, any case), sorted by name. Hidden files are left out.
+func ProbeFiles(dir string) ([]string, error) {
+	ents, err := os.ReadDir(dir)
+	if err != nil {
+		return nil, fmt.Errorf("viz: probe folder: %w", err)
+	}
+	var files []string
+	for _, e := range ents {
+		name := e.Name()
+		if strings.HasPrefix(name, ".") || !probeExt[strings.ToLower(filepath.Ext(name))] {
+			continue
+		}
+		if !e.Type().IsRegular() && e.Type()&os.ModeSymlink == 0 {
+			continue
+		}
+		files = append(files, filepath.Join(dir, name))
+	}
+	if len(files) == 0 {
+		return nil, fmt.Errorf("viz: probe folder %s: no image files (png, jpg, gif, bmp, tiff, webp)", dir)
+	}
+	return files, nil
+}
+
+// Count returns the number of channels carrying flag (for example FlagDead,
+// for a gate that fails a training run with too many dead filters).
+func (r *ScanReport) Count(flag string) int {
+	n := 0
+	for _, l := range r.Layers {
+		for _, c := range l.Channels {
+			if slices.Contains(c.Flags, flag) {
+				n++
+			}
+		}
+	}
+	return n
+}
