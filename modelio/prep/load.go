@@ -20,8 +20,11 @@ import (
 )
 
 // MaxPixels is the largest image, in pixels, that [Load] and [Decode] decode:
-// 64 Mi pixels (67,108,864), e.g. 8192×8192. Decoding such an image needs up to
-// 512 MiB (16-bit RGBA); a larger claim is refused before any pixel buffer exists.
+// 64 Mi pixels (67,108,864), e.g. 8192×8192, above any camera's still photo. Decoding
+// such an image takes up to 512 MiB (16-bit RGBA TIFF) and [Fit] another 256 MiB for
+// its opaque copy; a larger claim is refused after reading the header, before any
+// pixel buffer exists. Within the limit a decoder may still allocate the full picture
+// before finding that the file is truncated: that cost is bounded by this number.
 const MaxPixels = 1 << 26
 
 // Error classes, for errors.Is on the errors of [Load], [Decode] and [DecodeLimit].
