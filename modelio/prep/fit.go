@@ -38,11 +38,34 @@ func Fit(img image.Image, c Config) *image.NRGBA {
 	if c.Resize == ResizeCrop {
 		r = cropRect(b, c.Width, c.Height)
 	}
+	if r.Dx() > c.Width && r.Dy() > bandRows {
+		// Shrinking a wide picture: flatten and narrow it band by band, so that a
+		// 24-megapixel photo never exists as a whole opaque copy.
+		return imaging.Resize(narrow(img, r, c.Background, c.Width), c.Width, c.Height, resample)
+	}
 	flat := flatten(img, r, c.Background)
 	if r.Dx() == c.Width && r.Dy() == c.Height {
 		return flat
 	}
 	return imaging.Resize(flat, c.Width, c.Height, resample)
+}
+
+// bandRows is the height of the bands narrow works in.
+const bandRows = 64
+
+// narrow flattens the part r of img and resizes it horizontally to width w, bandRows
+// rows at a time. imaging.Resize filters horizontally row by row before it filters
+// vertically, so narrow followed by a vertical resize gives exactly what one Resize of
+// the whole flattened picture gives (a test checks it), with memory for one band and
+// the narrowed picture instead of the full-size copy.
+func narrow(img image.Image, r image.Rectangle, bg color.NRGBA, w int) *image.NRGBA {
+	out := image.NewNRGBA(image.Rect(0, 0, w, r.Dy()))
+	for y0 := r.Min.Y; y0 < r.Max.Y; y0 += bandRows {
+		y1 := min(y0+bandRows, r.Max.Y)
+		band := imaging.Resize(flatten(img, image.Rect(r.Min.X, y0, r.Max.X, y1), bg), w, y1-y0, resample)
+		copy(out.Pix[(y0-r.Min.Y)*out.Stride:], band.Pix)
+	}
+	return out
 }
 
 // cropRect is the largest rectangle centred in b with the aspect ratio w:h, each side
