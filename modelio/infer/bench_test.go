@@ -2,7 +2,9 @@ package infer
 
 import (
 	"context"
+	"math"
 	"os"
+	"strconv"
 	"testing"
 	"time"
 
@@ -13,37 +15,36 @@ import (
 // demoModel is the demo classifier (assets/make_demo.py): 64×64×3 NCHW.
 const demoModel = "../../assets/demo/parts.onnx"
 
-// partsLikeCNN is a stand-in of the demo's size when the demo file is not
-// there: 64×64×3 NCHW, three Conv+Relu+MaxPool stages (16, 32, 64 filters),
-// a hidden fully connected layer with Relu and 8 classes.
+// partsLikeCNN is a stand-in of the demo's architecture (assets/make_demo.py)
+// for when the demo file is not there: 64×64×3 NCHW; Conv 16 5×5 pad 2,
+// Conv 24, 32 and 32 3×3 pad 1, each followed by Relu and 2×2 MaxPool;
+// Flatten, Gemm 512→64, Relu, Gemm 64→7 (logits). Weights pseudo-random.
 func partsLikeCNN() *onnxpb.GraphProto {
-	conv := func(i int, in, w string, m, c int) []*onnxpb.NodeProto {
-		s := string(rune('0' + i))
-		return []*onnxpb.NodeProto{
-			node("Conv", "conv"+s, []string{in, w, "b" + s}, []string{"c" + s}, ints("pads", 1, 1, 1, 1), ints("kernel_shape", 3, 3)),
-			node("Relu", "relu"+s, []string{"c" + s}, []string{"r" + s}),
-			node("MaxPool", "pool"+s, []string{"r" + s}, []string{"p" + s}, ints("kernel_shape", 2, 2), ints("strides", 2, 2)),
-		}
-	}
 	g := &onnxpb.GraphProto{
-		Name:  "partslike",
-		Input: []*onnxpb.ValueInfoProto{vi("image", onnxpb.TensorProto_FLOAT, "N", 3, 64, 64)},
-		Initializer: []*onnxpb.TensorProto{
-			f32("w1", []int64{16, 3, 3, 3}, randn(1, 16*27, 0.3)), f32("b1", []int64{16}, randn(2, 16, 0.1)),
-			f32("w2", []int64{32, 16, 3, 3}, randn(3, 32*144, 0.1)), f32("b2", []int64{32}, randn(4, 32, 0.1)),
-			f32("w3", []int64{64, 32, 3, 3}, randn(5, 64*288, 0.08)), f32("b3", []int64{64}, randn(6, 64, 0.1)),
-			f32("wh", []int64{128, 64 * 8 * 8}, randn(7, 128*4096, 0.02)), f32("bh", []int64{128}, randn(8, 128, 0.1)),
-			f32("wo", []int64{8, 128}, randn(9, 8*128, 0.1)), f32("bo", []int64{8}, randn(10, 8, 0.1)),
-		},
-		Output: []*onnxpb.ValueInfoProto{vi("logits", onnxpb.TensorProto_FLOAT, "N", 8)},
+		Name:   "partslike",
+		Input:  []*onnxpb.ValueInfoProto{vi("image", onnxpb.TensorProto_FLOAT, "N", 3, 64, 64)},
+		Output: []*onnxpb.ValueInfoProto{vi("logits", onnxpb.TensorProto_FLOAT, "N", 7)},
 	}
-	g.Node = append(g.Node, conv(1, "image", "w1", 16, 3)...)
-	g.Node = append(g.Node, conv(2, "p1", "w2", 32, 16)...)
-	g.Node = append(g.Node, conv(3, "p2", "w3", 64, 32)...)
+	in, c := "image", int64(3)
+	for i, st := range []struct{ m, k int64 }{{16, 5}, {24, 3}, {32, 3}, {32, 3}} {
+		s := strconv.Itoa(i + 1)
+		g.Initializer = append(g.Initializer,
+			f32("w"+s, []int64{st.m, c, st.k, st.k}, randn(uint64(2*i+1), int(st.m*c*st.k*st.k), float32(1.5/math.Sqrt(float64(c*st.k*st.k))))),
+			f32("b"+s, []int64{st.m}, randn(uint64(2*i+2), int(st.m), 0.1)))
+		p := st.k / 2
+		g.Node = append(g.Node,
+			node("Conv", "conv"+s, []string{in, "w" + s, "b" + s}, []string{"c" + s}, ints("pads", p, p, p, p), ints("kernel_shape", st.k, st.k)),
+			node("Relu", "relu"+s, []string{"c" + s}, []string{"r" + s}),
+			node("MaxPool", "pool"+s, []string{"r" + s}, []string{"p" + s}, ints("kernel_shape", 2, 2), ints("strides", 2, 2)))
+		in, c = "p"+s, st.m
+	}
+	g.Initializer = append(g.Initializer,
+		f32("wh", []int64{64, 512}, randn(11, 64*512, 0.06)), f32("bh", []int64{64}, randn(12, 64, 0.1)),
+		f32("wo", []int64{7, 64}, randn(13, 7*64, 0.15)), f32("bo", []int64{7}, randn(14, 7, 0.1)))
 	g.Node = append(g.Node,
-		node("Flatten", "flat", []string{"p3"}, []string{"f"}, intAttr("axis", 1)),
+		node("Flatten", "flat", []string{in}, []string{"f"}, intAttr("axis", 1)),
 		node("Gemm", "fc1", []string{"f", "wh", "bh"}, []string{"h"}, intAttr("transB", 1)),
-		node("Relu", "relu4", []string{"h"}, []string{"hr"}),
+		node("Relu", "relu5", []string{"h"}, []string{"hr"}),
 		node("Gemm", "fc2", []string{"hr", "wo", "bo"}, []string{"logits"}, intAttr("transB", 1)),
 	)
 	return g

@@ -13,6 +13,8 @@ import (
 	"testing"
 	"time"
 
+	"google.golang.org/protobuf/proto"
+
 	"fovea/modelio"
 	"fovea/modelio/internal/refconv"
 	"fovea/modelio/onnxpb"
@@ -601,5 +603,66 @@ func TestObserveShapes(t *testing.T) {
 	}
 	if n, err := ObserveShapes(context.Background(), m, Options{}); err != nil || n != 0 {
 		t.Errorf("second ObserveShapes: %d, %v; want 0 (nothing unknown any more)", n, err)
+	}
+}
+
+// The demo model (assets/demo/parts.onnx, made by assets/make_demo.py) and
+// the stand-in of its architecture: every Conv, Relu, MaxPool, Flatten and
+// Gemm output ONNX Runtime returns is reproduced by the direct reference
+// from the runtime's input to that node, to 1e-4 (see
+// TestActivationsMatchReference), on 3 pseudo-random images.
+func TestDemoMatchesReference(t *testing.T) {
+	needORT(t)
+	standIn := filepath.Join(t.TempDir(), "partslike.onnx")
+	if err := os.WriteFile(standIn, modelBytes(t, partsLikeCNN(), 13, nil), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for _, p := range []string{standIn, demoModel} {
+		b, err := os.ReadFile(p)
+		if err != nil {
+			t.Fatalf("%v (the demo model is made by assets/make_demo.py)", err)
+		}
+		pb := &onnxpb.ModelProto{}
+		if err := proto.Unmarshal(b, pb); err != nil {
+			t.Fatalf("%s: %v", p, err)
+		}
+		var opset int64
+		for _, o := range pb.GetOpsetImport() {
+			if o.GetDomain() == "" || o.GetDomain() == "ai.onnx" {
+				opset = o.GetVersion()
+			}
+		}
+		g := pb.GetGraph()
+		var capture []string
+		for _, n := range g.GetNode() {
+			capture = append(capture, n.GetOutput()[0])
+		}
+		m, err := modelio.Open(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		s := newSession(t, m, Options{Capture: capture})
+		dims, err := s.ImageDims()
+		if err != nil {
+			t.Fatal(err)
+		}
+		per := int64(1)
+		for _, d := range dims {
+			per *= d
+		}
+		x := randn(21, 3*int(per), 1)
+		r, err := s.Run(context.Background(), x, 3)
+		if err != nil {
+			t.Fatal(err)
+		}
+		vals := map[string]refconv.Tensor{m.Inputs[0].Name: {Shape: append([]int64{3}, dims...), Data: x}}
+		for name, tt := range r.Maps {
+			vals[name] = refconv.Tensor{Shape: tt.Shape, Data: tt.Data}
+		}
+		n := checkLayers(t, filepath.Base(p), g, opset, vals)
+		if n != len(g.GetNode()) {
+			t.Errorf("%s: the reference checked %d of %d nodes", filepath.Base(p), n, len(g.GetNode()))
+		}
+		t.Logf("%s: %d nodes checked against the reference", filepath.Base(p), n)
 	}
 }
