@@ -175,18 +175,30 @@ func bombJPEG(w, h uint16) []byte {
 }
 
 // bombTIFF is a little-endian TIFF whose only IFD claims w×h, 8-bit gray (TIFF 6.0, 2).
-func bombTIFF(w, h uint32) []byte {
+func bombTIFF(w, h uint32) []byte { return grayTIFF(w, h, nil, 0) }
+
+// grayTIFF is a little-endian, uncompressed 8-bit gray TIFF (TIFF 6.0, section 2 and
+// "Grayscale images"): header, pad zero bytes, the pixels as one strip, then the IFD.
+func grayTIFF(w, h uint32, pixels []byte, pad int) []byte {
 	type entry struct {
 		tag, typ uint16
 		val      uint32
 	}
+	dataAt := uint32(8 + pad)
+	ifdAt := dataAt + uint32(len(pixels))
+	ifdAt += ifdAt % 2 // word boundary
 	entries := []entry{
 		{256, 4, w}, {257, 4, h}, // ImageWidth, ImageLength
 		{258, 3, 8}, {259, 3, 1}, {262, 3, 1}, // BitsPerSample, Compression none, BlackIsZero
-		{273, 4, 8}, {278, 4, h}, {279, 4, 1}, // StripOffsets, RowsPerStrip, StripByteCounts
+		{273, 4, dataAt}, {278, 4, h}, {279, 4, uint32(len(pixels))}, // StripOffsets, RowsPerStrip, StripByteCounts
 	}
 	b := []byte("II*\x00")
-	b = binary.LittleEndian.AppendUint32(b, 8)
+	b = binary.LittleEndian.AppendUint32(b, ifdAt)
+	b = append(b, make([]byte, pad)...)
+	b = append(b, pixels...)
+	for uint32(len(b)) < ifdAt {
+		b = append(b, 0)
+	}
 	b = binary.LittleEndian.AppendUint16(b, uint16(len(entries)))
 	for _, e := range entries {
 		b = binary.LittleEndian.AppendUint16(b, e.tag)

@@ -15,7 +15,7 @@ import (
 	"strings"
 
 	_ "golang.org/x/image/bmp"  // registers BMP
-	_ "golang.org/x/image/tiff" // registers TIFF
+	"golang.org/x/image/tiff"   // registers TIFF
 	_ "golang.org/x/image/webp" // registers WebP
 )
 
@@ -101,7 +101,7 @@ func Decode(data []byte, name string) (image.Image, error) {
 
 // DecodeLimit decodes size bytes from r as an image of at most maxPixels pixels
 // (maxPixels <= 0 means [MaxPixels]). It reads r in several passes (header, EXIF, pixels)
-// through io.SectionReader, so it never loads the whole file into memory itself.
+// through io.SectionReader and does not copy the file into memory.
 func DecodeLimit(r io.ReaderAt, size int64, name string, maxPixels int) (image.Image, error) {
 	if maxPixels <= 0 {
 		maxPixels = MaxPixels
@@ -132,7 +132,14 @@ func decode(r io.ReaderAt, size int64, name string, maxPixels int) (img image.Im
 		return nil, &FileError{File: name, Class: ErrTooLarge, Detail: fmt.Sprintf("%s header claims %d×%d pixels (%s), over the limit of %s; not decoded",
 			formatName(format), cfg.Width, cfg.Height, mpx(int64(cfg.Width)*int64(cfg.Height)), mpx(int64(maxPixels)))}
 	}
-	img, _, err = image.Decode(io.NewSectionReader(r, 0, size))
+	if format == "tiff" {
+		// image.Decode would wrap the reader in a bufio.Reader, and the TIFF decoder
+		// copies a reader that is not an io.ReaderAt into memory, up to the furthest
+		// offset it reads.
+		img, err = tiff.Decode(io.NewSectionReader(r, 0, size))
+	} else {
+		img, _, err = image.Decode(io.NewSectionReader(r, 0, size))
+	}
 	if err != nil {
 		return nil, classify(name, format, true, r, size, err)
 	}

@@ -1,6 +1,7 @@
 package prep
 
 import (
+	"bytes"
 	"errors"
 	"fmt"
 	"image"
@@ -422,5 +423,29 @@ func TestEXIFSegmentWalk(t *testing.T) {
 		if got := exifOrientation(strings.NewReader(string(tc.data))); got != tc.want {
 			t.Errorf("%s: %d, want %d", tc.name, got, tc.want)
 		}
+	}
+}
+
+// Loading reads the file in place: a 7×3 gray TIFF whose pixels and IFD sit after 8 MiB
+// of padding (TIFF locates everything by offsets) allocates far less than the file's
+// size. The TIFF decoder copies into memory, up to the furthest offset it reads, any
+// reader that is not an io.ReaderAt.
+func TestLoadDoesNotCopyFile(t *testing.T) {
+	data := grayTIFF(7, 3, bytes.Repeat([]byte{128}, 21), 8<<20)
+	path := filepath.Join(t.TempDir(), "padded.tiff")
+	if err := os.WriteFile(path, data, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	var img image.Image
+	var err error
+	n := allocated(func() { img, err = Load(path) })
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := colourAt(img, 6, 2); got != (color.NRGBA{128, 128, 128, 255}) || img.Bounds().Dx() != 7 {
+		t.Errorf("padded TIFF: %v at (6,2), bounds %v", got, img.Bounds())
+	}
+	if n > 1<<20 {
+		t.Errorf("loading an 8 MiB file allocated %d bytes, bound 1 MiB", n)
 	}
 }

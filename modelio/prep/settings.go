@@ -22,7 +22,7 @@ type Settings struct {
 	Model  string    `json:"model,omitempty"`  // the model's path when saved, for people reading the file
 	Prep   Config    `json:"preprocess"`       // preprocessing in force
 	Labels string    `json:"labels,omitempty"` // labels file chosen by the user, absolute path
-	Saved  time.Time `json:"saved,omitempty"`  // set by SaveSettings
+	Saved  time.Time `json:"saved,omitzero"`   // set by SaveSettings
 }
 
 // SettingsDir is where per-model settings live: os.UserConfigDir()/fovea/models
