@@ -121,7 +121,17 @@ func decode(r io.ReaderAt, size int64, name string, maxPixels int) (img image.Im
 			err = &FileError{File: name, Class: ErrCorrupt, Detail: fmt.Sprintf("decoder failed: %v", p)}
 		}
 	}()
-	cfg, format, err := image.DecodeConfig(io.NewSectionReader(r, 0, size))
+	// image.DecodeConfig and image.Decode wrap the reader in a bufio.Reader, and the TIFF
+	// decoder copies a reader that is not an io.ReaderAt into memory, up to the furthest
+	// offset it reads (the IFD may sit at the end of a large file): TIFF is read directly.
+	var cfg image.Config
+	var format string
+	if sniff(r) == "tiff" {
+		format = "tiff"
+		cfg, err = tiff.DecodeConfig(io.NewSectionReader(r, 0, size))
+	} else {
+		cfg, format, err = image.DecodeConfig(io.NewSectionReader(r, 0, size))
+	}
 	if err != nil {
 		return nil, classify(name, sniff(r), false, r, size, err)
 	}
@@ -133,9 +143,6 @@ func decode(r io.ReaderAt, size int64, name string, maxPixels int) (img image.Im
 			formatName(format), cfg.Width, cfg.Height, mpx(int64(cfg.Width)*int64(cfg.Height)), mpx(int64(maxPixels)))}
 	}
 	if format == "tiff" {
-		// image.Decode would wrap the reader in a bufio.Reader, and the TIFF decoder
-		// copies a reader that is not an io.ReaderAt into memory, up to the furthest
-		// offset it reads.
 		img, err = tiff.Decode(io.NewSectionReader(r, 0, size))
 	} else {
 		img, _, err = image.Decode(io.NewSectionReader(r, 0, size))
