@@ -6,13 +6,32 @@ import (
 	"os"
 	"strconv"
 	"strings"
+	"sync"
+	"time"
 )
 
-// availableMemory returns the bytes a new allocation can use without
+var memCache struct {
+	sync.Mutex
+	at    time.Time
+	bytes int64
+}
+
+// availableMemory is memAvailable, read at most once a second: runs of a
+// few images each come in hundreds during an occlusion scan.
+func availableMemory() int64 {
+	memCache.Lock()
+	defer memCache.Unlock()
+	if now := time.Now(); now.Sub(memCache.at) > time.Second {
+		memCache.bytes, memCache.at = memAvailable(), now
+	}
+	return memCache.bytes
+}
+
+// memAvailable returns the bytes a new allocation can use without
 // swapping: MemAvailable from /proc/meminfo, lowered to the room left under
 // the cgroup's memory.max when the process runs in a limited container. It
 // returns -1 when neither can be read (the check is then skipped).
-func availableMemory() int64 {
+func memAvailable() int64 {
 	avail := int64(-1)
 	if f, err := os.Open("/proc/meminfo"); err == nil {
 		sc := bufio.NewScanner(f)

@@ -666,3 +666,17 @@ func TestDemoMatchesReference(t *testing.T) {
 		t.Logf("%s: %d nodes checked against the reference", filepath.Base(p), n)
 	}
 }
+
+// Declared shapes are checked before ONNX Runtime sees the model: an input
+// claiming 10^6 × 10^6 pixels is refused by NewSession with modelio's limit
+// error (ONNX Runtime could spend minutes on it or abort the process).
+func TestAbsurdDeclaredShapeRefused(t *testing.T) {
+	needORT(t)
+	g := tinyCNN(0, false)
+	g.Input[0] = vi("image", onnxpb.TensorProto_FLOAT, 1, 3, 1000000, 1000000)
+	m := writeModel(t, "huge.onnx", modelBytes(t, g, 13, nil))
+	_, err := NewSession(m, Options{})
+	if !errors.Is(err, modelio.ErrLimit) || !strings.Contains(err.Error(), "huge.onnx") {
+		t.Errorf("got %v, want modelio.ErrLimit naming huge.onnx", err)
+	}
+}
