@@ -473,7 +473,9 @@ func (m *Model) ruleUnary(n *onnxpb.NodeProto, in []*tinfo) ([]*tinfo, error) {
 	if x == nil {
 		return nil, errf("%s has no input", op)
 	}
-	out := &tinfo{shape: cloneShape(x.shape), why: x.why, elem: x.elem}
+	// Shapes are never modified in place once made, so the input's can be
+	// shared.
+	out := &tinfo{shape: x.shape, why: x.why, elem: x.elem}
 	switch {
 	case boolOps[op]:
 		out.elem = dtBool
@@ -501,7 +503,7 @@ func (m *Model) ruleUnary(n *onnxpb.NodeProto, in []*tinfo) ([]*tinfo, error) {
 		out.floats = x.floats
 	}
 	if op == "Dropout" {
-		return []*tinfo{out, {shape: cloneShape(x.shape), why: x.why, elem: dtBool}}, nil
+		return []*tinfo{out, {shape: x.shape, why: x.why, elem: dtBool}}, nil
 	}
 	if op == "BatchNormalization" {
 		// Training mode also outputs the running mean and variance (and,

@@ -54,7 +54,7 @@ func (m *Model) analyse() {
 		}
 		g.info[name] = ti
 	}
-	m.Layers = m.Layers[:0]
+	m.Layers = make([]Layer, 0, len(g.order))
 	m.Total = Totals{}
 	ins := []*tinfo{}
 	for _, i := range g.order {
