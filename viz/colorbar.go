@@ -8,8 +8,9 @@ import (
 )
 
 // ColorBar draws a legend for a colour map: a bar running from min to max
-// with tick marks at round values ({1, 2, 5}·10^k steps) labelled in the
-// data's units, and the unit written beside it. A bar wider than high runs
+// with tick marks labelled in the data's units — both ends (3 significant
+// digits) and round values ({1, 2, 5}·10^k steps) between them where they
+// fit — and the unit written beside it. A bar wider than high runs
 // left to right with the labels under it and the unit below them; otherwise
 // it runs bottom to top with the labels to its right and the unit above.
 //
@@ -58,30 +59,14 @@ func ColorBar(w, h int, min, max float64, unit string, cmap func(float64) color.
 	if !horizontal {
 		along = h
 	}
-	step := niceStep(max-min, clampInt(along/90, 2, 10)) // a tick every 90 pixels or so
-	dec := stepDecimals(step)
-	first := math.Ceil(min/step-1e-9) * step
-	edge := color.NRGBA{0x8a, 0x90, 0x96, 0xff} // the bar's outline and ticks
+	marks := barTicks(min, max, clampInt(along/90, 2, 10)) // a tick every 90 pixels or so
+	edge := color.NRGBA{0x8a, 0x90, 0x96, 0xff}            // the bar's outline and ticks
 	const tick = 5
 
-	// ticks calls f for each tick value and its position t in [0, 1] along the bar.
-	ticks := func(f func(v, t float64)) {
-		for i := 0; ; i++ {
-			v := first + float64(i)*step
-			if v > max+step*1e-9 {
-				return
-			}
-			f(v, (v-min)/(max-min))
-		}
-	}
-	label := func(v float64) string { return formatFixed(v, dec) }
-
 	if horizontal {
-		// Leave room for half a label at each end.
-		wMin, _ := TextSize(label(first), barText)
-		last := first
-		ticks(func(v, _ float64) { last = v })
-		wMax, _ := TextSize(label(last), barText)
+		// Leave room for half an end label at each side.
+		wMin, _ := TextSize(marks[0].label, barText)
+		wMax, _ := TextSize(marks[len(marks)-1].label, barText)
 		x0 := 1 + wMin/2
 		x1 := w - 1 - wMax/2
 		barH := h - 2*lineH - tick - 8
@@ -95,11 +80,27 @@ func ColorBar(w, h int, min, max float64, unit string, cmap func(float64) color.
 			fill(img, image.Rect(x, y0, x+1, y1), c)
 		}
 		frame(img, image.Rect(x0-1, y0-1, x1+1, y1+1), 1, edge, false)
-		ticks(func(v, t float64) {
-			x := x0 + int(math.Round(t*float64(x1-x0-1)))
+		pos := func(m barMark) int { return x0 + int(math.Round(m.t*float64(x1-x0-1))) }
+		// Ends first; an inner label that would touch one is left out.
+		drawn := []image.Rectangle{}
+		place := func(m barMark) {
+			x := pos(m)
+			lw, _ := TextSize(m.label, barText)
+			r := image.Rect(x-lw/2-4, 0, x+lw/2+4, 1)
+			for _, d := range drawn {
+				if r.Overlaps(d) {
+					return
+				}
+			}
+			drawn = append(drawn, r)
 			fill(img, image.Rect(x, y1+1, x+1, y1+1+tick), edge)
-			drawTextCentered(img, x, y1+tick+2, label(v), barText)
-		})
+			drawTextCentered(img, x, y1+tick+2, m.label, barText)
+		}
+		place(marks[0])
+		place(marks[len(marks)-1])
+		for _, m := range marks[1 : len(marks)-1] {
+			place(m)
+		}
 		if unit != "" {
 			drawTextCentered(img, w/2, y1+tick+2+lineH+2, fitText(unit, w-2, barText), barText)
 		}
@@ -114,10 +115,10 @@ func ColorBar(w, h int, min, max float64, unit string, cmap func(float64) color.
 	}
 	bottom := h - 1 - lineH/2
 	wLab := 0
-	ticks(func(v, _ float64) {
-		lw, _ := TextSize(label(v), barText)
+	for _, m := range marks {
+		lw, _ := TextSize(m.label, barText)
 		wLab = maxInt(wLab, lw)
-	})
+	}
 	barW := clampInt(w-wLab-tick-6, 8, 28)
 	x0, x1 := 1, 1+barW
 	for y := top; y < bottom; y++ {
@@ -125,12 +126,56 @@ func ColorBar(w, h int, min, max float64, unit string, cmap func(float64) color.
 		fill(img, image.Rect(x0, y, x1, y+1), c)
 	}
 	frame(img, image.Rect(x0-1, top-1, x1+1, bottom+1), 1, edge, false)
-	ticks(func(v, t float64) {
-		y := bottom - 1 - int(math.Round(t*float64(bottom-top-1)))
+	drawn := []image.Rectangle{}
+	place := func(m barMark) {
+		y := bottom - 1 - int(math.Round(m.t*float64(bottom-top-1)))
+		r := image.Rect(0, y-lineH/2-2, 1, y+lineH/2+2)
+		for _, d := range drawn {
+			if r.Overlaps(d) {
+				return
+			}
+		}
+		drawn = append(drawn, r)
 		fill(img, image.Rect(x1+1, y, x1+1+tick, y+1), edge)
-		DrawText(img, x1+tick+3, y-lineH/2, label(v), barText)
-	})
+		DrawText(img, x1+tick+3, y-lineH/2, m.label, barText)
+	}
+	place(marks[0])
+	place(marks[len(marks)-1])
+	for _, m := range marks[1 : len(marks)-1] {
+		place(m)
+	}
 	return img
+}
+
+// barMark is one labelled value of a colour bar: t is its position along
+// the bar in [0, 1].
+type barMark struct {
+	v, t  float64
+	label string
+}
+
+// barTicks returns the marks of a bar from min to max: the two ends,
+// labelled with 3 significant digits (the scale is the most important
+// number of a legend), and between them round values ({1, 2, 5}·10^k steps,
+// about target of them) labelled with the decimals the step needs. Inner
+// values closer than a fifth of a step to an end are dropped.
+func barTicks(min, max float64, target int) []barMark {
+	at := func(v float64) float64 { return (v - min) / (max - min) }
+	marks := []barMark{{min, 0, fmtG(min)}}
+	step := niceStep(max-min, target)
+	dec := stepDecimals(step)
+	first := math.Ceil(min/step - 1e-9)
+	for i := 0.0; ; i++ {
+		v := (first + i) * step
+		if v >= max {
+			break
+		}
+		if v-min < step/5 || max-v < step/5 {
+			continue
+		}
+		marks = append(marks, barMark{v, at(v), formatFixed(v, dec)})
+	}
+	return append(marks, barMark{max, 1, fmtG(max)})
 }
 
 func clampInt(v, lo, hi int) int {

@@ -11,7 +11,7 @@ import (
 // closely, and tabulated. Tables keep every picture a pure function of its
 // input and make a lookup a few instructions.
 //
-// Sequential: lightness rises linearly from L = 0.30 (a deep blue-violet, not
+// Sequential: lightness rises linearly from L = 0.33 (a deep blue-violet, not
 // black, so that it still separates from a dark background) to L = 0.93 (a
 // pale yellow, not white, so that it still separates from a light one); the
 // hue turns from 285° through blue, teal and green to 105°. The path is then
@@ -19,8 +19,8 @@ import (
 // perceived steps.
 //
 // Diverging: zero is a near-white neutral (L = 0.95, no chroma); negative
-// values go to a dark blue (L = 0.40, hue 255°), positive ones to a burnt
-// orange (L = 0.62, hue 55°). Blue against orange is the pair that viewers
+// values go to a blue (L = 0.47, hue 255°), positive ones to a burnt orange
+// (L = 0.60, hue 55°); lightness and chroma change linearly with |v|. Blue against orange is the pair that viewers
 // with the common red–green deficiencies still tell apart, and the two ends
 // also differ in lightness, so that the sign stays readable in grey-scale
 // print and for blue–yellow deficiencies.
@@ -144,7 +144,7 @@ func (c oklch) nrgba() color.NRGBA {
 func buildSequential() []color.NRGBA {
 	path := func(t float64) oklch {
 		return oklch{
-			L: 0.30 + 0.63*t,
+			L: 0.33 + 0.60*t,
 			C: 0.11 + 0.07*t*t, // stronger colour towards the light end, where sRGB allows it
 			H: 285 - 180*t,
 		}.clip()
@@ -163,6 +163,7 @@ func buildSequential() []color.NRGBA {
 	}
 	out := make([]color.NRGBA, seqSize)
 	j := 0
+	prevY := -1.0
 	for i := range out {
 		want := arc[fine] * float64(i) / (seqSize - 1)
 		for j < fine-1 && arc[j+1] < want {
@@ -174,16 +175,50 @@ func buildSequential() []color.NRGBA {
 		}
 		f = math.Max(0, math.Min(1, f))
 		t := (float64(j) + f) / fine
-		out[i] = path(t).nrgba()
+		out[i] = monotoneRound(path(t), prevY)
+		prevY = luminance(out[i])
 	}
 	return out
 }
 
+// monotoneRound rounds c to 8-bit sRGB. Rounding each channel on its own can
+// make the luminance of a step fall a hair below the previous step's when the
+// hue turns; then, of the 27 colours one unit away per channel, the one
+// nearest to c whose luminance is not below minY is taken, so that the
+// table's lightness never decreases.
+func monotoneRound(c oklch, minY float64) color.NRGBA {
+	r, g, b := oklabToLinear(c.lab())
+	ideal := [3]float64{255 * srgbEncode(r), 255 * srgbEncode(g), 255 * srgbEncode(b)}
+	best := c.nrgba()
+	if luminance(best) >= minY {
+		return best
+	}
+	bestD := math.Inf(1)
+	base := best
+	for dr := -1; dr <= 1; dr++ {
+		for dg := -1; dg <= 1; dg++ {
+			for db := -1; db <= 1; db++ {
+				q := color.NRGBA{to8((float64(base.R) + float64(dr)) / 255), to8((float64(base.G) + float64(dg)) / 255), to8((float64(base.B) + float64(db)) / 255), 255}
+				if luminance(q) < minY {
+					continue
+				}
+				d := sq(float64(q.R)-ideal[0]) + sq(float64(q.G)-ideal[1]) + sq(float64(q.B)-ideal[2])
+				if d < bestD {
+					best, bestD = q, d
+				}
+			}
+		}
+	}
+	return best
+}
+
+func sq(x float64) float64 { return x * x }
+
 func buildDiverging() []color.NRGBA {
 	const (
 		l0             = 0.95 // neutral
-		lNeg, cNeg, hN = 0.40, 0.14, 255.0
-		lPos, cPos, hP = 0.62, 0.16, 55.0
+		lNeg, cNeg, hN = 0.47, 0.14, 255.0
+		lPos, cPos, hP = 0.60, 0.145, 55.0
 	)
 	out := make([]color.NRGBA, 2*divHalf+1)
 	for i := -divHalf; i <= divHalf; i++ {

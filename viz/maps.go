@@ -173,6 +173,9 @@ func (v *mapView) stats(b, ch int) (ChannelStats, error) {
 	}
 	n := float64(v.h * v.w)
 	st.Mean, st.Fires = sum/n, float64(pos)/n
+	if st.Min == 0 {
+		st.Min = 0 // not -0 (a ReLU's output), which prints as "-0"
+	}
 	return st, nil
 }
 
@@ -324,7 +327,7 @@ func LayerGeometry(l modelio.Layer, inH, inW, outH, outW int) Geometry {
 // along each axis, at any pixel by bilinear interpolation; outside the
 // outermost centres the edge value continues (no extrapolation).
 type sampler struct {
-	cy, cx []float64          // centres, increasing
+	cy, cx []float64 // centres, increasing
 	val    func(i, j int) float64
 }
 

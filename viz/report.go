@@ -17,8 +17,8 @@ const Caution = "A heatmap is evidence about this model on this image, not proof
 
 // ReportInput is what the one-page report shows.
 type ReportInput struct {
-	Image image.Image         // the image as the model saw it
-	TopK  []infer.Prediction  // the model's top predictions, most probable first (at most 8 drawn)
+	Image image.Image        // the image as the model saw it
+	TopK  []infer.Prediction // the model's top predictions, most probable first (at most 8 drawn)
 	// Expected is the label the user expected, when the report explains a
 	// misclassification; "" when none. A prediction with this label is marked.
 	Expected  string
@@ -111,8 +111,8 @@ func Report(in ReportInput) *image.NRGBA {
 	// Section 2: the heatmaps.
 	section(img, margin, y, inner, "Where the evidence is")
 	y += 40
-	footTop := H - 64 - 40            // footer line
-	cautionTop := footTop - 24 - 128  // caution box
+	footTop := H - 64 - 40           // footer line
+	cautionTop := footTop - 24 - 128 // caution box
 	settingsTop := cautionTop - 24 - settingsHeight(in.Settings)
 	legendH := 0
 	if in.Legend != nil && !in.Legend.Bounds().Empty() {

@@ -187,7 +187,10 @@ func Tiles(k *modelio.Kernels, o TileOptions) (*image.NRGBA, []TileInfo, error) 
 			labelW, labelH = max(labelW, w), h
 		}
 	}
-	boxW := max(tw+2*frameRing, labelW)
+	boxW := tw + 2*frameRing
+	if o.Labels {
+		boxW = max(boxW, labelW+8) // labels of neighbours stay 8 + Gap pixels apart
+	}
 	boxH := th + 2*frameRing
 	if o.Labels {
 		boxH += labelH + 1

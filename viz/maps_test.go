@@ -1,0 +1,251 @@
+package viz
+
+import (
+	"image"
+	"image/color"
+	"math"
+	"slices"
+	"strings"
+	"testing"
+
+	"fovea/modelio"
+	"fovea/modelio/infer"
+)
+
+func tensor(shape []int64, data ...float32) infer.Tensor {
+	return infer.Tensor{Name: "act", Shape: shape, Data: data}
+}
+
+func TestMapGridStats(t *testing.T) {
+	// Channel 0 = [[1, −2], [0, 3]]: max 3, min −2, mean 2/4 = 0.5, two of
+	// four positions > 0 (zero does not fire). Channel 1 all zero.
+	tt := tensor([]int64{1, 2, 2, 2}, 1, -2, 0, 3, 0, 0, 0, 0)
+	_, st, err := MapGrid(tt, "nchw", GridOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := []ChannelStats{{Channel: 0, Min: -2, Max: 3, Mean: 0.5, Fires: 0.5}, {Channel: 1}}
+	for i, w := range want {
+		g := st[i]
+		if g.Channel != w.Channel || g.Min != w.Min || g.Max != w.Max || g.Mean != w.Mean || g.Fires != w.Fires {
+			t.Errorf("channel %d stats %+v, want %+v", i, g, w)
+		}
+	}
+	if lo, hi := MapRange(st); lo != -2 || hi != 3 {
+		t.Errorf("MapRange = %v, %v, want -2, 3", lo, hi)
+	}
+}
+
+// cellColour returns the colour of activation cell (y, x) of a MapGrid tile,
+// checking that the zoom×zoom square is uniform.
+func cellColour(t *testing.T, img *image.NRGBA, r image.Rectangle, zoom, y, x int) color.NRGBA {
+	t.Helper()
+	c := img.NRGBAAt(r.Min.X+x*zoom, r.Min.Y+y*zoom)
+	for py := range zoom {
+		for px := range zoom {
+			if d := img.NRGBAAt(r.Min.X+x*zoom+px, r.Min.Y+y*zoom+py); d != c {
+				t.Fatalf("cell (%d,%d) is not uniform: %v and %v", y, x, c, d)
+			}
+		}
+	}
+	return c
+}
+
+func TestMapGridScales(t *testing.T) {
+	// Non-negative maps use Sequential(v / hi). Channel 0 = [0, 2],
+	// channel 1 = [0, 1]. Shared: hi = 2, so channel 1's 1 is
+	// Sequential(0.5); per tile: hi = 1, Sequential(1).
+	tt := tensor([]int64{1, 2, 1, 2}, 0, 2, 0, 1)
+	for _, c := range []struct {
+		per  bool
+		want color.NRGBA
+	}{{false, Sequential(0.5)}, {true, Sequential(1)}} {
+		img, st, err := MapGrid(tt, "nchw", GridOptions{Zoom: 3, PerTile: c.per})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if got := cellColour(t, img, st[1].Rect, 3, 0, 1); got != c.want {
+			t.Errorf("per tile %v: %v, want %v", c.per, got, c.want)
+		}
+		if got := cellColour(t, img, st[0].Rect, 3, 0, 1); got != Sequential(1) {
+			t.Errorf("per tile %v: channel 0 max drawn %v, want Sequential(1)", c.per, got)
+		}
+		if got := cellColour(t, img, st[1].Rect, 3, 0, 0); got != Sequential(0) {
+			t.Errorf("per tile %v: zero drawn %v, want Sequential(0)", c.per, got)
+		}
+	}
+	// Signed maps use Diverging(v / max(|lo|, hi)): [−1, 4] → −0.25, 1.
+	img, st, err := MapGrid(tensor([]int64{1, 1, 1, 2}, -1, 4), "nchw", GridOptions{Zoom: 2})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if a, b := cellColour(t, img, st[0].Rect, 2, 0, 0), cellColour(t, img, st[0].Rect, 2, 0, 1); a != Diverging(-0.25) || b != Diverging(1) {
+		t.Errorf("signed map drawn %v, %v, want Diverging(-0.25), Diverging(1)", a, b)
+	}
+}
+
+func TestMapGridLayoutsAgree(t *testing.T) {
+	// The same map stored NCHW and NHWC (transposed by hand) draws the same.
+	// NCHW [1][2][2][3]: c0 = 0..5, c1 = 10..15.
+	nchw := tensor([]int64{1, 2, 2, 3}, 0, 1, 2, 3, 4, 5, 10, 11, 12, 13, 14, 15)
+	nhwc := tensor([]int64{1, 2, 3, 2}, 0, 10, 1, 11, 2, 12, 3, 13, 4, 14, 5, 15)
+	a, sa, err := MapGrid(nchw, "nchw", GridOptions{Labels: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, sb, err := MapGrid(nhwc, "NHWC", GridOptions{Labels: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !slices.Equal(a.Pix, b.Pix) || !slices.Equal(sa, sb) {
+		t.Error("NCHW and NHWC pictures or stats differ")
+	}
+	if sa[1].Mean != 12.5 || sa[1].Max != 15 {
+		t.Errorf("channel 1 stats %+v, want mean 12.5, max 15", sa[1])
+	}
+}
+
+func TestMapGridBatchAndChannels(t *testing.T) {
+	// Batch of 2, one channel 1×1: image 0 holds 1, image 1 holds 5.
+	tt := tensor([]int64{2, 1, 1, 1}, 1, 5)
+	_, st, err := MapGrid(tt, "nchw", GridOptions{Batch: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if st[0].Max != 5 {
+		t.Errorf("batch 1 max %v, want 5", st[0].Max)
+	}
+	// Channel selection and order.
+	tt = tensor([]int64{1, 3, 1, 1}, 7, 8, 9)
+	_, st, err = MapGrid(tt, "nchw", GridOptions{Channels: []int{2, 0}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(st) != 2 || st[0].Channel != 2 || st[0].Max != 9 || st[1].Channel != 0 || st[1].Max != 7 {
+		t.Errorf("selected stats %+v", st)
+	}
+	// Rank 2 (after pooling) is n maps of 1×1 per feature.
+	_, st, err = MapGrid(tensor([]int64{1, 3}, -1, 0, 2), "nchw", GridOptions{})
+	if err != nil || len(st) != 3 || st[2].Max != 2 {
+		t.Errorf("rank 2: %v %+v", err, st)
+	}
+}
+
+func TestMapGridErrors(t *testing.T) {
+	for _, c := range []struct {
+		name   string
+		t      infer.Tensor
+		layout string
+		o      GridOptions
+		want   string
+	}{
+		{"layout", tensor([]int64{1, 1, 1, 1}, 0), "chw", GridOptions{}, "neither"},
+		{"length", tensor([]int64{1, 2, 2, 2}, 0, 1), "nchw", GridOptions{}, "does not match its 2 values"},
+		{"rank", tensor([]int64{4}, 0, 1, 2, 3), "nchw", GridOptions{}, "not an activation map"},
+		{"zero dim", tensor([]int64{1, 0, 2, 2}), "nchw", GridOptions{}, "outside 1..2^31"},
+		{"batch", tensor([]int64{1, 1, 1, 1}, 0), "nchw", GridOptions{Batch: 1}, "image 1 is outside the batch of 1"},
+		{"channel", tensor([]int64{1, 1, 1, 1}, 0), "nchw", GridOptions{Channels: []int{3}}, "channel 3 is outside 0..0"},
+		{"no channel", tensor([]int64{1, 1, 1, 1}, 0), "nchw", GridOptions{Channels: []int{}}, "no channel"},
+		{"nan", tensor([]int64{1, 1, 1, 2}, 0, float32(math.Inf(1))), "nchw", GridOptions{}, "non-finite"},
+		{"huge", tensor([]int64{1, 1, 1, 1}, 0), "nchw", GridOptions{Zoom: 1 << 13}, "exceeds the limit"},
+		{"overflow", tensor([]int64{1 << 20, 1 << 20, 1 << 20, 1 << 20}, 0), "nchw", GridOptions{}, "does not match"},
+	} {
+		_, _, err := MapGrid(c.t, c.layout, c.o)
+		if err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%s: error %v, want one containing %q", c.name, err, c.want)
+		}
+	}
+}
+
+func TestLayerGeometry(t *testing.T) {
+	// Centre of output cell i = Jump·i + (RF−1)/2 − P (Araujo, Norris & Sim,
+	// Distill 2019). Estimated offset (in − 1 − Jump·(out − 1))/2:
+	//  - 3×3 stride-2 convolution without padding on 7 pixels: cells cover
+	//    pixels 2i..2i+2, centre 2i+1 (by the definition of convolution);
+	//    estimate (7 − 1 − 2·2)/2 = 1. Exact.
+	//  - 7×7 stride-2 pad-3 convolution on 224 pixels, 112 cells: true
+	//    centre 2i + 3 − 3 = 2i; estimate (223 − 222)/2 = 0.5 (documented).
+	//  - no Jump: 4 cells on 8 pixels, jump 2, offset (7 − 6)/2 = 0.5, the
+	//    centre of each 2-pixel block.
+	for _, c := range []struct {
+		l         modelio.Layer
+		in, out   int
+		jump, off float64
+	}{
+		{modelio.Layer{RF: 3, Jump: 2}, 7, 3, 2, 1},
+		{modelio.Layer{RF: 7, Jump: 2}, 224, 112, 2, 0.5},
+		{modelio.Layer{}, 8, 4, 2, 0.5},
+	} {
+		g := LayerGeometry(c.l, c.in, c.in, c.out, c.out)
+		if g.Jump != c.jump || g.OffsetY != c.off || g.OffsetX != c.off {
+			t.Errorf("%+v in %d out %d: %+v, want jump %v offset %v", c.l, c.in, c.out, g, c.jump, c.off)
+		}
+	}
+}
+
+func TestMapOverlayAlignment(t *testing.T) {
+	// Geometry of a 3×3 stride-2 convolution without padding on a 7×7 image:
+	// the centre of cell (i, j) is pixel (2j+1, 2i+1). One cell, (row 1,
+	// col 2), is 1, the others 0, so by bilinear interpolation between
+	// centres (by hand):
+	//   pixel (x=5, y=3): the cell's centre, value 1
+	//   pixel (x=4, y=3): halfway to cell (1,1), value 0.5
+	//   pixel (x=5, y=2): halfway to cell (0,2), value 0.5
+	//   pixel (x=4, y=2): 0.25 (¼ of the four corners)
+	//   pixel (x=6, y=3): beyond the last centre, edge value 1
+	//   pixel (x=2, y=3): between cells (1,0) and (1,1), value 0
+	// The channel's range is [0, 1], so the colour is Sequential(v) with
+	// weight smoothstep(min(1, 2v)); at opacity 1 a pixel is
+	// blend(grey, Sequential(v), smoothstep(min(1, 2v))).
+	data := make([]float32, 9)
+	data[1*3+2] = 1
+	tt := tensor([]int64{1, 1, 3, 3}, data...)
+	base := image.NewNRGBA(image.Rect(0, 0, 7, 7))
+	fill(base, base.Rect, color.NRGBA{90, 90, 90, 255})
+	out, err := MapOverlay(base, tt, "nchw", 0, modelio.Layer{RF: 3, Jump: 2}, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	grey := color.NRGBA{90, 90, 90, 255}
+	smooth := func(t float64) float64 { return t * t * (3 - 2*t) } // smoothstep, by its definition
+	for _, c := range []struct {
+		x, y int
+		v    float64
+	}{{5, 3, 1}, {4, 3, 0.5}, {5, 2, 0.5}, {4, 2, 0.25}, {6, 3, 1}, {2, 3, 0}} {
+		want := blend(grey, Sequential(c.v), smooth(math.Min(1, 2*c.v)))
+		if got := out.NRGBAAt(c.x, c.y); got != want {
+			t.Errorf("pixel (%d,%d): %v, want %v (value %v)", c.x, c.y, got, want, c.v)
+		}
+	}
+	if got := out.NRGBAAt(2, 3); got != grey {
+		t.Errorf("silent pixel %v, want the grey image %v", got, grey)
+	}
+	if base.NRGBAAt(5, 3) != grey {
+		t.Error("MapOverlay changed its input")
+	}
+}
+
+func TestMapOverlayErrors(t *testing.T) {
+	tt := tensor([]int64{1, 1, 3, 3}, 0, 0, 0, 0, 1, 0, 0, 0, 0)
+	small := image.NewNRGBA(image.Rect(0, 0, 7, 7))
+	big := image.NewNRGBA(image.Rect(0, 0, 640, 480))
+	l := modelio.Layer{RF: 3, Jump: 2}
+	for _, c := range []struct {
+		name string
+		base image.Image
+		ch   int
+		op   float64
+		want string
+	}{
+		{"channel", small, 1, 0.5, "channel 1 is outside 0..0"},
+		{"opacity", small, 0, 1.5, "opacity 1.5"},
+		{"nil image", nil, 0, 0.5, "no image"},
+		{"not input size", big, 0, 0.5, "pass the image at the model's input size"},
+		{"empty image", image.NewNRGBA(image.Rect(0, 0, 0, 5)), 0, 0.5, "empty"},
+	} {
+		_, err := MapOverlay(c.base, tt, "nchw", c.ch, l, c.op)
+		if err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%s: error %v, want one containing %q", c.name, err, c.want)
+		}
+	}
+}
