@@ -84,7 +84,8 @@ func decode(data []byte, name, dir string) (m *Model, err error) {
 	defer func() {
 		if r := recover(); r != nil {
 			m = nil
-			err = newErr(name, KindInvalid, "internal error while reading the model (please report): %v\n%s", r, debug.Stack())
+			err = &Error{File: name, Kind: KindInvalid, Msg: fmt.Sprintf("internal error while reading the model (please report): %v", r),
+				Err: fmt.Errorf("%s", debug.Stack())}
 		}
 	}()
 	if len(data) > MaxFileSize {

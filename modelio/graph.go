@@ -249,10 +249,21 @@ func (g *graph) findWeightInputs() {
 	}
 }
 
-// constTensor returns the initializer or Constant-node tensor named name.
+// constTensor returns the initializer or Constant-node tensor named name,
+// following Identity nodes (exporters put them on shared weights).
 func (g *graph) constTensor(name string) *onnxpb.TensorProto {
-	if t, ok := g.inits[name]; ok {
-		return t
+	for range 16 {
+		if t, ok := g.inits[name]; ok {
+			return t
+		}
+		if t, ok := g.consts[name]; ok {
+			return t
+		}
+		p, ok := g.producer[name]
+		if !ok || g.nodes[p].GetOpType() != "Identity" || g.nodes[p].GetDomain() != "" || len(g.nodes[p].GetInput()) != 1 {
+			return nil
+		}
+		name = g.nodes[p].GetInput()[0]
 	}
-	return g.consts[name]
+	return nil
 }

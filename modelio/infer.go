@@ -216,10 +216,9 @@ func declaredInfo(vi *onnxpb.ValueInfoProto) *tinfo {
 		ti.why = "the file declares no shape for input " + quote(vi.GetName())
 		return ti
 	}
-	s, err := shapeFromProto(tt.GetShape())
-	if err != nil {
-		ti.why = err.Error()
-		return ti
+	s, bad := shapeFromProto(tt.GetShape())
+	if bad >= 0 {
+		ti.why = fmt.Sprintf("input %q declares dimension %d as negative", vi.GetName(), bad)
 	}
 	for i, d := range s {
 		if d.Size > maxDim {
@@ -708,6 +707,9 @@ func (m *Model) ruleConv(n *onnxpb.NodeProto, in []*tinfo) ([]*tinfo, error) {
 	sp, err := readSpatial(n, ns, kernel)
 	if err != nil {
 		return nil, err
+	}
+	if len(kernel) == ns && !slices.Equal(kernel, sp.kernel) {
+		return nil, errf("kernel_shape %v disagrees with the weight dims %s", sp.kernel, ws)
 	}
 	group := attrInt(n, "group", 1)
 	if group < 1 {

@@ -33,6 +33,12 @@ func nhwcModel(t testing.TB) *onnxbuild.Builder {
 	b.Node("Conv", []string{x, "w1", "b1"}, []string{"c1"}, onnxbuild.Ints("kernel_shape", 3, 3))
 	y := b.Relu("c1")
 	y = b.Conv(y, 2, 4, 3, 1, 0)
+	conv := b.Graph.Node[len(b.Graph.Node)-1]
+	b.Node("Identity", []string{conv.Input[1]}, []string{"shared_w"})
+	conv.Input[1] = "shared_w"
+	// Keep the file in execution order: move the Identity before the Conv.
+	nodes := b.Graph.Node
+	nodes[len(nodes)-1], nodes[len(nodes)-2] = nodes[len(nodes)-2], nodes[len(nodes)-1]
 	b.Output(b.Flatten(b.GlobalAveragePool(y)))
 	return b
 }
@@ -71,6 +77,8 @@ func TestImageLayoutAndFirstKernels(t *testing.T) {
 	if tr.Op != "Transpose" || tr.WHD() != "16×16×3" || tr.RF != 1 {
 		t.Errorf("transpose layer %s %s RF %d", tr.Op, tr.WHD(), tr.RF)
 	}
+	// The second conv's weights pass through an Identity (shared weights,
+	// as PyTorch exports them).
 	k2, err := m.Kernels("conv1")
 	if err != nil || k2.M != 4 || k2.C != 2 {
 		t.Errorf("second conv kernels %+v %v", k2, err)

@@ -139,7 +139,7 @@ func (m *Model) override(name string, o *tinfo) {
 	}
 	if vi, ok := g.declared[name]; ok {
 		if tt := vi.GetType().GetTensorType(); tt != nil {
-			if s, err := shapeFromProto(tt.GetShape()); err == nil && s != nil {
+			if s, bad := shapeFromProto(tt.GetShape()); bad < 0 && s != nil {
 				d := &tinfo{shape: s}
 				if d.static() {
 					for _, x := range s {
@@ -438,9 +438,6 @@ func (m *Model) rfFor(n *onnxpb.NodeProto, ins []*tinfo, outs []*tinfo) rfInfo {
 		sp, err := readSpatial(n, 2, kernel)
 		if err != nil {
 			return rfInfo{why: err.Error()}
-		}
-		if op != "MaxPool" && op != "Conv" && op != "ConvInteger" && op != "QLinearConv" && attr(n, "dilations") == nil {
-			sp.dilations = []int64{1, 1}
 		}
 		// Tensor axis 2 is the first kernel axis, axis 3 the second.
 		var idx [2]int // kernel index for image height, width

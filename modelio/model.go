@@ -2,6 +2,7 @@ package modelio
 
 import (
 	"encoding/json"
+	"fmt"
 	"sort"
 	"strconv"
 	"strings"
@@ -209,7 +210,8 @@ func (m *Model) build() error {
 	return nil
 }
 
-// value converts a ValueInfoProto, refusing negative declared dimensions.
+// value converts a ValueInfoProto. Negative declared dimensions (some
+// converters write -1 for "unknown") are read as unknown, with a note.
 func (m *Model) value(what string, vi *onnxpb.ValueInfoProto) (Value, error) {
 	v := Value{Name: vi.GetName()}
 	tt := vi.GetType().GetTensorType()
@@ -217,33 +219,32 @@ func (m *Model) value(what string, vi *onnxpb.ValueInfoProto) (Value, error) {
 		return v, nil
 	}
 	v.ElemType = ElemTypeName(tt.GetElemType())
-	s, err := shapeFromProto(tt.GetShape())
-	if err != nil {
-		return v, m.errf(KindInvalid, "%s %q: %v", what, vi.GetName(), err)
+	s, bad := shapeFromProto(tt.GetShape())
+	if bad >= 0 {
+		m.Notes = append(m.Notes, fmt.Sprintf("%s %q declares dimension %d as %d; read as unknown", what, vi.GetName(), bad, tt.GetShape().GetDim()[bad].GetDimValue()))
 	}
 	v.Shape = s
 	return v, nil
 }
 
-type dimError struct {
-	i int
-	v int64
-}
-
-func (e dimError) Error() string {
-	return "declared dimension " + strconv.Itoa(e.i) + " is " + strconv.FormatInt(e.v, 10)
-}
-
-func shapeFromProto(sp *onnxpb.TensorShapeProto) (Shape, error) {
+// shapeFromProto converts a declared shape (nil when none is declared).
+// Negative dim_values become unknown; bad is the first such dimension, -1
+// when there is none.
+func shapeFromProto(sp *onnxpb.TensorShapeProto) (s Shape, bad int) {
+	bad = -1
 	if sp == nil {
-		return nil, nil
+		return nil, bad
 	}
-	s := make(Shape, len(sp.GetDim()))
+	s = make(Shape, len(sp.GetDim()))
 	for i, d := range sp.GetDim() {
 		switch v := d.GetValue().(type) {
 		case *onnxpb.TensorShapeProto_Dimension_DimValue:
 			if v.DimValue < 0 {
-				return nil, dimError{i, v.DimValue}
+				s[i] = unknownDim
+				if bad < 0 {
+					bad = i
+				}
+				continue
 			}
 			s[i] = Dim{Size: v.DimValue}
 		case *onnxpb.TensorShapeProto_Dimension_DimParam:
@@ -252,7 +253,7 @@ func shapeFromProto(sp *onnxpb.TensorShapeProto) (Shape, error) {
 			s[i] = Dim{Size: -1}
 		}
 	}
-	return s, nil
+	return s, bad
 }
 
 // parseLabels reads class labels: a JSON array of strings, or one label a
