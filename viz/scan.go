@@ -12,6 +12,11 @@ import (
 	"fovea/modelio/prep"
 )
 
+// FlagNotFinite marks a channel whose maps held NaN or infinite values: a
+// broken model rather than a dead filter. Its Max and Mean are reported as
+// 0 (JSON has no NaN).
+const FlagNotFinite = "not_finite"
+
 // DefaultRare is the fraction of probe images under which a channel that
 // does fire is flagged rare.
 const DefaultRare = 0.01
@@ -57,6 +62,8 @@ type ScanLayer struct {
 //	                (a dead channel is constant too, at 0, but is flagged dead only)
 //	FlagZeroKernel  the feeding Conv's filter is zero (KernelFlags)
 //	FlagDuplicate   the feeding Conv's filter nearly repeats another one (KernelFlags)
+//	FlagNotFinite   NaN or ±Inf values were seen: Max and Mean then read 0 and
+//	                this flag replaces dead, rare and constant
 //
 // Flags is never nil, so that JSON shows [] for a healthy channel.
 type ChannelScan struct {
@@ -121,9 +128,11 @@ func feedingConv(m *modelio.Model, i int) int {
 
 // channelAcc accumulates one channel's statistics over images.
 type channelAcc struct {
-	fires    int
-	min, max float64
-	sum      float64
+	fires  int     // images on which some value was > 0
+	max    float64 // largest value so far
+	sum    float64 // sum of all values so far
+	first  float32 // the first value seen
+	varies bool    // some value differed from first
 }
 
 // layerAcc accumulates one layer: the channel axis is 1 (ONNX's NCHW
@@ -151,7 +160,7 @@ func (a *layerAcc) add(t infer.Tensor, n int) error {
 	if a.channels == nil {
 		a.channels = make([]channelAcc, c)
 		for i := range a.channels {
-			a.channels[i] = channelAcc{min: math.Inf(1), max: math.Inf(-1)}
+			a.channels[i] = channelAcc{max: math.Inf(-1), first: t.Data[i*sp]}
 		}
 		a.spatial = sp
 	} else if c != len(a.channels) || sp != a.spatial {
@@ -160,24 +169,106 @@ func (a *layerAcc) add(t infer.Tensor, n int) error {
 	for img := 0; img < n; img++ {
 		for ch := range a.channels {
 			m := t.Data[(img*c+ch)*sp : (img*c+ch+1)*sp]
-			mn, mx := m[0], m[0]
-			var sum float64
-			for _, v := range m {
-				mx = max(mx, v)
-				mn = min(mn, v)
-				sum += float64(v)
-			}
+			mx, sum := mapStats(m)
 			acc := &a.channels[ch]
 			if mx > 0 {
 				acc.fires++
 			}
-			acc.min = math.Min(acc.min, float64(mn))
-			acc.max = math.Max(acc.max, float64(mx))
+			if float64(mx) > acc.max || mx != mx {
+				acc.max = float64(mx)
+			}
 			acc.sum += sum
+			if !acc.varies {
+				// Only channels that have looked constant so far are
+				// compared value by value; most stop at the first value.
+				for _, v := range m {
+					if v != acc.first {
+						acc.varies = true
+						break
+					}
+				}
+			}
 		}
 	}
 	a.values += n * sp
 	return nil
+}
+
+// mapStats returns the largest value and the sum of the values of m (not
+// empty). It is the scan's inner loop, run over every captured value: four
+// independent lanes for the maximum and the sum (Go does not vectorise),
+// float32 partial sums over blocks of at most 256 values, added up in
+// float64, so the rounding error stays below 256 float32 ulps of the block
+// sum. A NaN anywhere makes the sum NaN.
+func mapStats(m []float32) (float32, float64) {
+	mx0, mx1, mx2, mx3 := m[0], m[0], m[0], m[0]
+	var sum float64
+	for len(m) >= 4 {
+		blk := m[:min(len(m)&^3, 256)]
+		var s0, s1, s2, s3 float32
+		for i := 0; i+4 <= len(blk); i += 4 {
+			v := blk[i : i+4 : i+4]
+			a, b, c, d := v[0], v[1], v[2], v[3]
+			if a > mx0 {
+				mx0 = a
+			}
+			if b > mx1 {
+				mx1 = b
+			}
+			if c > mx2 {
+				mx2 = c
+			}
+			if d > mx3 {
+				mx3 = d
+			}
+			s0 += a
+			s1 += b
+			s2 += c
+			s3 += d
+		}
+		sum += float64(s0+s1) + float64(s2+s3)
+		m = m[len(blk):]
+	}
+	for _, v := range m {
+		if v > mx0 {
+			mx0 = v
+		}
+		sum += float64(v)
+	}
+	return max(mx0, mx1, mx2, mx3), sum
+}
+
+func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
+
+// statJob is a run's result waiting for its statistics.
+type statJob struct {
+	res *infer.Result
+	n   int
+}
+
+// accumulate adds the maps of each job to the layers' statistics and hands
+// the result back for the next run. It stops at the end of jobs, at the
+// first error (sent on errc) or when ctx is cancelled.
+func accumulate(ctx context.Context, accs []*layerAcc, jobs <-chan statJob, results chan<- *infer.Result, errc chan<- error) {
+	for {
+		var j statJob
+		var ok bool
+		select {
+		case j, ok = <-jobs:
+			if !ok {
+				return
+			}
+		case <-ctx.Done():
+			return
+		}
+		for _, a := range accs {
+			if err := a.add(j.res.Maps[a.layer.Output], j.n); err != nil {
+				errc <- err
+				return
+			}
+		}
+		results <- j.res // never blocks: at most two results circulate
+	}
 }
 
 // scanBatch is a batch of decoded probe images on its way to the model.
@@ -233,54 +324,83 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 		return nil, err
 	}
 
-	size := c.Channels * c.Height * c.Width
+	// Three goroutines form a pipeline: the decoder fills input batches,
+	// this one runs the model, the statistics goroutine reads the maps of
+	// the previous batch meanwhile. Input buffers (three: one being filled,
+	// one queued, one in the model) and results (two: one being run, one
+	// being read) circulate, so memory does not grow with the files.
+	size := c.Len()
 	bs := max(1, min(s.BatchSize(), len(files)))
-	const buffers = 3 // one being filled, one queued, one in the model
+	const buffers = 3
 	free := make(chan []float32, buffers)
 	for i := 0; i < buffers; i++ {
 		free <- make([]float32, bs*size)
 	}
 	full := make(chan scanBatch, 1)
+	results := make(chan *infer.Result, 2)
+	results <- nil // RunInto allocates the first two
+	results <- nil
+	jobs := make(chan statJob, 1)
+	statErr := make(chan error, 1)
+	statsDone := make(chan struct{})
+
 	ctx2, cancel := context.WithCancel(ctx)
 	var wg sync.WaitGroup
 	defer func() {
 		cancel()
 		wg.Wait()
 	}()
-	wg.Add(1)
+	wg.Add(2)
 	go func() {
 		defer wg.Done()
 		defer close(full)
 		decodeProbes(ctx2, files, c, bs, size, o.SkipUnreadable, free, full)
 	}()
+	go func() {
+		defer wg.Done()
+		defer close(statsDone)
+		accumulate(ctx2, accs, jobs, results, statErr)
+	}()
 
 	rep := &ScanReport{Rare: rare}
-	var res *infer.Result
 	if progress != nil {
 		progress(0, len(files))
 	}
+	fail := func(err error) (*ScanReport, error) {
+		if ctx.Err() != nil {
+			return nil, ctx.Err()
+		}
+		return nil, err
+	}
 	for b := range full {
 		if b.err != nil {
-			return nil, b.err
+			return fail(b.err)
 		}
 		rep.Skipped = append(rep.Skipped, b.skipped...)
 		if b.n > 0 {
-			var err error
-			res, err = s.RunInto(ctx, b.data[:b.n*size], b.n, res)
+			var dst *infer.Result
+			select {
+			case dst = <-results:
+			case err := <-statErr:
+				return fail(err)
+			case <-ctx.Done():
+				return nil, ctx.Err()
+			}
+			res, err := s.RunInto(ctx, b.data[:b.n*size], b.n, dst)
 			if err != nil {
-				if ctx.Err() != nil {
-					return nil, ctx.Err()
-				}
-				return nil, fmt.Errorf("viz: scan: %w", err)
+				return fail(fmt.Errorf("viz: scan: %w", err))
 			}
 			for _, a := range accs {
-				t, ok := res.Maps[a.layer.Output]
-				if !ok {
+				if _, ok := res.Maps[a.layer.Output]; !ok {
 					return nil, fmt.Errorf("viz: scan: the session does not capture %q (create it with infer.Options{Capture: viz.ScanCapture(m)})", a.layer.Output)
 				}
-				if err := a.add(t, b.n); err != nil {
-					return nil, err
-				}
+			}
+			select {
+			case jobs <- statJob{res: res, n: b.n}:
+			case err := <-statErr:
+				return fail(err)
+			case <-ctx.Done():
+				return nil, ctx.Err()
 			}
 			rep.Images += b.n
 		}
@@ -288,6 +408,17 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 		if progress != nil {
 			progress(b.consumed, len(files))
 		}
+	}
+	close(jobs)
+	select {
+	case <-statsDone:
+	case <-ctx.Done():
+		return nil, ctx.Err()
+	}
+	select {
+	case err := <-statErr:
+		return fail(err)
+	default:
 	}
 	if err := ctx.Err(); err != nil {
 		return nil, err
@@ -315,8 +446,13 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 			case cs.Fires < rare:
 				cs.Flags = append(cs.Flags, FlagRare)
 			}
-			if ch.fires > 0 && ch.min == ch.max {
+			if ch.fires > 0 && !ch.varies {
 				cs.Flags = append(cs.Flags, FlagConstant)
+			}
+			if !finite(cs.Max) || !finite(cs.Mean) {
+				// Firing and constancy mean little for such a channel.
+				cs.Max, cs.Mean = 0, 0
+				cs.Flags = append(cs.Flags[:0], FlagNotFinite)
 			}
 			cs.Flags = append(cs.Flags, kflags[i]...)
 			l.Channels = append(l.Channels, cs)

@@ -394,3 +394,39 @@ func TestScanLayersOps(t *testing.T) {
 		t.Errorf("scan layers %v capture %v", names, ScanCapture(m))
 	}
 }
+
+// TestScanNotFinite: a channel whose map is infinite (x / 0 with x ≥ 1,
+// IEEE 754: +Inf) is flagged not_finite with Max and Mean 0, and the report
+// still exports as JSON (which has no Inf).
+func TestScanNotFinite(t *testing.T) {
+	b := newGraph("scan_inf")
+	b.input("image", 1, 3, scanSide, scanSide)
+	b.init("one", []float32{1}, 1)
+	b.init("den", []float32{0, 1, 1}, 1, 3, 1, 1)
+	b.node("Add", "add", []string{"image", "one"}, []string{"a"})
+	b.node("Div", "div", []string{"a", "den"}, []string{"d"})
+	b.node("Relu", "relu", []string{"d"}, []string{"r"})
+	b.node("GlobalAveragePool", "gap", []string{"r"}, []string{"out"})
+	b.output("out", 1, 3, 1, 1)
+	m := b.model(t)
+	s := newSession(t, m, infer.Options{Capture: ScanCapture(m)})
+	r, err := Scan(context.Background(), s, m, scanConfig(), writeProbes(t, 3), ScanOptions{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	chs := r.Layers[0].Channels
+	if r.Layers[0].Conv != "" {
+		t.Errorf("conv %q for a layer fed by Div", r.Layers[0].Conv)
+	}
+	if !slices.Equal(chs[0].Flags, []string{FlagNotFinite}) || chs[0].Max != 0 || chs[0].Mean != 0 {
+		t.Errorf("infinite channel: %+v", chs[0])
+	}
+	// Channel 1 is 1 + green/255: fires everywhere, max (1 + max green/255).
+	if len(chs[1].Flags) != 0 || chs[1].Fires != 1 || chs[1].Max < 1 {
+		t.Errorf("finite channel: %+v", chs[1])
+	}
+	var buf strings.Builder
+	if err := r.WriteJSON(&buf); err != nil {
+		t.Errorf("JSON of a report with an infinite channel: %v", err)
+	}
+}
