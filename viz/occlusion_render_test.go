@@ -3,9 +3,9 @@ package viz
 import (
 	"bytes"
 	"fmt"
-	"math"
 	"image"
 	"image/color"
+	"math"
 	"strings"
 	"testing"
 )
