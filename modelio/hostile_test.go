@@ -7,6 +7,7 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+	"time"
 
 	"google.golang.org/protobuf/encoding/protowire"
 
@@ -453,4 +454,25 @@ func TestTruncationsAndBitFlips(t *testing.T) {
 		}
 		check("random bytes "+itoa(i), b)
 	}
+}
+
+// BenchmarkDecodeChain reports how the cost per node grows from a
+// 1,000-node to a 10,000-node chain, measured in the same run: a ratio
+// near 1 means linear work, 10 would mean quadratic.
+func BenchmarkDecodeChain(b *testing.B) {
+	small, _ := chain(1000).Bytes()
+	large, _ := chain(10000).Bytes()
+	per := func(data []byte, nodes int) float64 {
+		start := time.Now()
+		if _, err := Decode(data, "chain.onnx"); err != nil {
+			b.Fatal(err)
+		}
+		return float64(time.Since(start)) / float64(nodes)
+	}
+	var ratio float64
+	for b.Loop() {
+		s := per(small, 1000)
+		ratio += per(large, 10000) / s
+	}
+	b.ReportMetric(ratio/float64(b.N), "per-node-cost-10k/1k")
 }

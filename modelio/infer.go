@@ -1043,7 +1043,7 @@ func ruleConcat(n *onnxpb.NodeProto, in []*tinfo) ([]*tinfo, error) {
 		return nil, errf("Concat has no inputs")
 	}
 	r := len(shapes[0])
-	a, ok := attr(n, "axis"), false
+	a := attr(n, "axis")
 	if a == nil {
 		return nil, errf("Concat has no axis")
 	}

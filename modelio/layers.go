@@ -528,7 +528,8 @@ func keepAxes(op string, ax axes, in *tinfo, outRank int) axes {
 // worth capturing: rank-4 outputs (one map per channel) of convolutions,
 // activations, pooling, normalisation and merges, with more than one value
 // per map (or a size still unknown). Layout-only ops (Identity, Dropout,
-// Transpose, Reshape, Pad, Cast) are left out.
+// Transpose, Reshape, Pad, Cast) are left out, and so is the input
+// normalisation before the first convolution (receptive field 1).
 func (m *Model) ActivationLayers() []Layer {
 	var out []Layer
 	for _, l := range m.Layers {
@@ -552,6 +553,9 @@ func (m *Model) ActivationLayers() []Layer {
 		}
 		if l.Width == 1 && l.Height == 1 {
 			continue
+		}
+		if l.RF == 1 && l.Jump == 1 {
+			continue // before the first spatial layer: the image rescaled, not a feature map
 		}
 		out = append(out, l)
 	}

@@ -151,10 +151,38 @@ func TestActivationLayers(t *testing.T) {
 	for _, l := range m.ActivationLayers() {
 		got = append(got, l.Op)
 	}
-	// Transpose is layout only; Sub and Div normalise the image (merges of
-	// the image with constants, kept: they are maps of the input); global
-	// pooling leaves 1×1 maps and Flatten vectors.
-	if strings.Join(got, ",") != "Sub,Div,Conv,Relu,Conv" {
+	// Transpose is layout only; Sub and Div normalise the image (receptive
+	// field 1: not feature maps); global pooling leaves 1×1 maps and
+	// Flatten vectors.
+	if strings.Join(got, ",") != "Conv,Relu,Conv" {
 		t.Errorf("activation layers %v", got)
+	}
+}
+
+// TestConcurrentReads: a Model serves concurrent readers (run with -race).
+func TestConcurrentReads(t *testing.T) {
+	m := build(t, nhwcModel(t))
+	done := make(chan error, 8)
+	for i := range 8 {
+		go func() {
+			var err error
+			switch i % 4 {
+			case 0:
+				_, err = m.Kernels("")
+			case 1:
+				_, err = m.WithOutputs([]string{"c1"})
+			case 2:
+				_, _, err = m.Weights("w1")
+			case 3:
+				err = m.CheckRunnable()
+				_ = m.ActivationLayers()
+			}
+			done <- err
+		}()
+	}
+	for range 8 {
+		if err := <-done; err != nil {
+			t.Error(err)
+		}
 	}
 }
