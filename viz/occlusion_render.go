@@ -39,15 +39,12 @@ var (
 	heatNoteStyle  = TextStyle{Size: 11, Color: inkMuted}
 )
 
-// heatCaution is printed under every occlusion picture: the heatmap is easy
-// to over-read.
-const heatCaution = "Evidence about this model on this image, not proof of what it looks for in general."
-
 // RenderOcclusion draws occlusion results side by side over the image they
 // were computed on: each panel is base, enlarged, with the scores upsampled
 // bilinearly and coloured by OverlayScores, all panels on one scale, one
 // colour bar in the scores' unit ("drop in probability" or "drop in logit")
-// below them, then the settings and a caution line. Two targets side by side
+// below them, then the settings and the package's Caution (a heatmap is
+// easy to over-read). Two targets side by side
 // answer "why this class and not that one".
 //
 // base must be the image the model saw (prep.Fit's result): occ[i].Width ×
@@ -130,7 +127,7 @@ func renderOcclusion(base image.Image, occ []*Occlusion, o HeatOptions) (*image.
 	width = max(width, 2*heatMargin+heatMinBar)
 	inner := width - 2*heatMargin
 	r0 := occ[0]
-	notes := wrapText(fmt.Sprintf("Patch %d px, stride %d px, %s fill. %s", r0.Patch, r0.Stride, r0.Fill, heatCaution), inner, heatNoteStyle)
+	notes := wrapText(fmt.Sprintf("Patch %d px, stride %d px, %s fill. %s", r0.Patch, r0.Stride, r0.Fill, Caution), inner, heatNoteStyle)
 	height := heatMargin + ph + captionH + heatGap + heatBarH + 8 + len(notes)*noteH + heatMargin
 	img := mustCanvas("occlusion picture", width, height, Light)
 

@@ -184,3 +184,22 @@ func TestRenderOcclusionPanics(t *testing.T) {
 		}()
 	}
 }
+
+// TestGoldenOcclusion: two targets side by side on goldenBase with
+// goldenScores (positive peak 0.4) and the same grid halved and negated for
+// the second class, captions on, logit and probability in the captions;
+// golden file testdata/golden/occlusion_render.png.
+func TestGoldenOcclusion(t *testing.T) {
+	g, pos := goldenScores()
+	first := &Occlusion{OcclusionSettings: OcclusionSettings{Patch: 16, Stride: 8, Fill: FillBlur, Score: ScoreProbability},
+		Target: 3, Label: "wood screw", Base: 0.62, Probability: 0.62, Ys: pos, Xs: pos, Scores: g, Width: 40, Height: 40}
+	second := *first
+	second.Target, second.Label, second.Base, second.Probability = 5, "cable tie", 0.21, 0.21
+	second.Scores = make([][]float64, len(g))
+	for i, row := range g {
+		for _, v := range row {
+			second.Scores[i] = append(second.Scores[i], -v/2)
+		}
+	}
+	checkGolden(t, "occlusion_render.png", RenderOcclusion(goldenBase(), []*Occlusion{first, &second}, HeatOptions{Captions: true, Opacity: 0.85}))
+}
