@@ -28,3 +28,12 @@ func DemoProbeDir() (string, error) { return "", errDemoNotWired }
 
 // Cleanup removes the temporary files the demo needed. Call it before exit.
 func Cleanup() {}
+
+// DemoImageData returns the bytes of one embedded demo image by name.
+func DemoImageData(name string) ([]byte, error) { return nil, errDemoNotWired }
+
+// Demo names, as in Workspace.Demo.
+const (
+	DemoHealthy   = "healthy"
+	DemoUnhealthy = "unhealthy"
+)
