@@ -284,6 +284,27 @@ func hostileCases() []hostile {
 				data = protowire.AppendBytes(data, []byte("from a future ONNX"))
 				return writeBytes(t, d, "m.onnx", data)
 			}},
+		{name: "arithmetic near the limits", want: nil,
+			file: func(t *testing.T, d string) string {
+				b := onnxbuild.New(13, onnxbuild.Zeros)
+				x := b.Input("image", onnxbuild.Float, 1, 1, int64(1)<<39, int64(1)<<39)
+				b.Init("w", []int64{1, 1, 1, 1}, []float32{1})
+				b.Node("ConvTranspose", []string{x, "w"}, []string{"up"}, onnxbuild.Ints("strides", 1<<30, 1<<30))
+				b.Node("Conv", []string{x, "w"}, []string{"c1"}, onnxbuild.Ints("strides", 1<<30, 1<<30), onnxbuild.Ints("dilations", 1<<30, 1<<30))
+				b.Node("Conv", []string{"c1", "w"}, []string{"c2"}, onnxbuild.Ints("strides", 1<<30, 1<<30))
+				b.Node("MaxPool", []string{"c2"}, []string{"p"}, onnxbuild.Ints("kernel_shape", 1<<30, 1<<30), onnxbuild.Ints("dilations", 1<<30, 1<<30), onnxbuild.Ints("pads", 1<<30, 1<<30, 1<<30, 1<<30))
+				b.Output("up")
+				b.Output("p")
+				return writeModel(t, d, "m.onnx", b)
+			},
+			check: func(t *testing.T, m *Model) {
+				if l := m.Layers[0]; l.Op != "ConvTranspose" || l.ShapeSource != SourceUnknown {
+					t.Errorf("ConvTranspose beyond 2^40: %+v", l)
+				}
+				if err := m.CheckRunnable(); !errors.Is(err, ErrLimit) {
+					t.Errorf("CheckRunnable: %v", err)
+				}
+			}},
 		{name: "bad conv attributes", want: nil,
 			file: func(t *testing.T, d string) string {
 				b := onnxbuild.New(13, onnxbuild.Zeros)

@@ -789,6 +789,10 @@ func (m *Model) ruleConvTranspose(n *onnxpb.NodeProto, in []*tinfo) ([]*tinfo, e
 		if outPad[i] < 0 || outPad[i] > maxAttr {
 			return nil, errf("output_padding %d is out of range", outPad[i])
 		}
+		if x.Size > maxDim/s {
+			out[2+i] = unknownDim
+			continue
+		}
 		switch sp.autoPad {
 		case "SAME_UPPER", "SAME_LOWER":
 			out[2+i] = dimOK(x.Size * s)
@@ -1520,7 +1524,7 @@ func ruleSlice(n *onnxpb.NodeProto, in []*tinfo) ([]*tinfo, error) {
 		out[ax] = dimOK(sliceLen(s[ax].Size, starts[i], ends[i], steps[i]))
 	}
 	res := &tinfo{shape: out}
-	if len(s) == 1 && in[0].ints != nil && len(axes) == 1 && s[0].Known() {
+	if len(s) == 1 && in[0].ints != nil && len(axes) == 1 && s[0].Known() && int64(len(in[0].ints)) == s[0].Size {
 		d := s[0].Size
 		start, end, step := starts[0], ends[0], steps[0]
 		if start < 0 {

@@ -452,6 +452,9 @@ func (m *Model) rfFor(n *onnxpb.NodeProto, ins []*tinfo, outs []*tinfo) rfInfo {
 		res := rfInfo{ok: true, ax: x.rf.ax}
 		for a := range 2 {
 			k, s, d := sp.kernel[idx[a]], sp.strides[idx[a]], sp.dilations[idx[a]]
+			if span := (k - 1) * d; (span > 0 && x.rf.j[a] > maxDim/span) || x.rf.j[a] > maxDim/s {
+				return rfInfo{why: "receptive field too large to track"}
+			}
 			res.r[a] = x.rf.r[a] + (k-1)*d*x.rf.j[a]
 			res.j[a] = x.rf.j[a] * s
 			if res.r[a] > maxDim || res.j[a] > maxDim {

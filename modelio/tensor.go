@@ -159,7 +159,7 @@ type extRef struct {
 // checkTensor verifies that the data of t is present in the amount its dims
 // claim, without reading external data. It returns the element count.
 func (m *Model) checkTensor(what string, t *onnxpb.TensorProto) (int64, error) {
-	n, err := elemCount(t.GetDims(), math.MaxInt64/16)
+	n, err := elemCount(t.GetDims(), math.MaxInt64/256) // so that n × 128 bits cannot overflow
 	if err != nil {
 		return 0, m.errf(KindInvalid, "%s: %v", what, err)
 	}
