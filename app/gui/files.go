@@ -382,6 +382,10 @@ func (u *ui) setActivations(acts *core.Activations) {
 	u.vPredict.refresh()
 	u.vMaps.refresh()
 	u.vOcc.imageChanged()
+	if f := u.onImage; f != nil {
+		u.onImage = nil
+		f()
+	}
 }
 
 // setProbeDir chooses the folder of probe images for the scan.

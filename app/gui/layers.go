@@ -18,13 +18,13 @@ var layerColumns = []struct {
 	width float32
 	num   bool
 }{
-	{"Layer", 150, false},
-	{"Op", 96, false},
-	{"W × H × D", 104, true},
-	{"Params", 70, true},
-	{"MACs", 74, true},
-	{"Memory", 80, true},
-	{"RF", 48, true},
+	{"Layer", 118, false},
+	{"Op", 76, false},
+	{"W × H × D", 86, true},
+	{"Params", 60, true},
+	{"MACs", 60, true},
+	{"Memory", 70, true},
+	{"RF", 36, true},
 }
 
 // layerPanel is the side panel: every layer of the open model with its
@@ -86,9 +86,8 @@ func newLayerPanel(u *ui) *layerPanel {
 	p.totals = widget.NewLabel("")
 	p.totals.Wrapping = fyne.TextWrapWord
 	title := widget.NewLabelWithStyle("Layers", fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
-	hint := widget.NewLabel("Choose a row to see its activation maps.")
-	hint.Importance = widget.LowImportance
-	p.content = container.NewBorder(container.NewHBox(title, hint), p.totals, nil, nil, p.table)
+	p.content = container.NewBorder(container.NewBorder(nil, nil, title, nil, note("Choose a row to see its activation maps.")),
+		p.totals, nil, nil, p.table)
 	return p
 }
 

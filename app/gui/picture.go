@@ -11,7 +11,7 @@ import (
 
 // A picture shows an image crisp: enlarged by the largest whole factor that
 // fits its space, nearest neighbour (so kernels and maps keep their square
-// pixels), and centred. An image larger than the space is shrunk smoothly.
+// pixels), centred across and at the top of its space. An image larger than the space is shrunk smoothly.
 type picture struct {
 	img      *canvas.Image
 	box      *fyne.Container
@@ -64,5 +64,5 @@ func (l *pictureLayout) Layout(_ []fyne.CanvasObject, size fyne.Size) {
 	}
 	w, h := float32(iw*k)/scale, float32(ih*k)/scale
 	img.Resize(fyne.NewSize(w, h))
-	img.Move(fyne.NewPos((size.Width-w)/2, (size.Height-h)/2))
+	img.Move(fyne.NewPos((size.Width-w)/2, 0))
 }

@@ -14,26 +14,47 @@ const (
 	themeDark   = "dark"
 )
 
-// fixedVariant is the default theme held at one variant, so that "light" and
-// "dark" hold whatever the desktop prefers.
-type fixedVariant struct {
+// foveaTheme is Fyne's default theme made denser (a data tool shows many
+// rows and numbers at once) and, for "light" and "dark", held at one variant
+// whatever the desktop prefers.
+type foveaTheme struct {
 	fyne.Theme
+	fixed   bool
 	variant fyne.ThemeVariant
 }
 
-func (t fixedVariant) Color(n fyne.ThemeColorName, _ fyne.ThemeVariant) color.Color {
-	return t.Theme.Color(n, t.variant)
+func (t foveaTheme) Color(n fyne.ThemeColorName, v fyne.ThemeVariant) color.Color {
+	if t.fixed {
+		v = t.variant
+	}
+	return t.Theme.Color(n, v)
 }
 
-// themeFor returns the theme of a choice ("" = the desktop's).
+// Sizes smaller than the default's: text 13 instead of 14, paddings a step
+// tighter.
+func (t foveaTheme) Size(n fyne.ThemeSizeName) float32 {
+	switch n {
+	case theme.SizeNameText:
+		return 13
+	case theme.SizeNamePadding:
+		return 3
+	case theme.SizeNameInnerPadding:
+		return 6
+	case theme.SizeNameSeparatorThickness:
+		return 1
+	}
+	return t.Theme.Size(n)
+}
+
+// themeFor returns the theme of a choice ("" = the desktop's variant).
 func themeFor(choice string) fyne.Theme {
 	switch choice {
 	case themeLight:
-		return fixedVariant{theme.DefaultTheme(), theme.VariantLight}
+		return foveaTheme{Theme: theme.DefaultTheme(), fixed: true, variant: theme.VariantLight}
 	case themeDark:
-		return fixedVariant{theme.DefaultTheme(), theme.VariantDark}
+		return foveaTheme{Theme: theme.DefaultTheme(), fixed: true, variant: theme.VariantDark}
 	}
-	return theme.DefaultTheme()
+	return foveaTheme{Theme: theme.DefaultTheme()}
 }
 
 // validTheme reports whether s is a theme choice.

@@ -62,6 +62,9 @@ type ui struct {
 	scan    *viz.ScanReport   // the last dead-filter scan of ws
 	scanDir string            // the probe folder ("" none chosen)
 	layer   string            // output tensor of the layer chosen in the layer panel
+	// onImage runs once after the next image was run through the model
+	// (start-up: occlusion when the window opens on that view).
+	onImage func()
 
 	// Widgets.
 	heading   *widget.RichText
@@ -188,7 +191,7 @@ func newUI(a fyne.App, w fyne.Window, o Options) *ui {
 		container.NewHBox(openModel, openImage, demo, recent), u.heading)
 
 	split := container.NewHSplit(u.layers.content, u.tabs)
-	split.SetOffset(0.40)
+	split.SetOffset(0.42)
 	bottom := container.NewVBox(u.modelJobs.box, u.imageJobs.box, u.fileJobs.box, u.status)
 	w.SetContent(container.NewBorder(
 		container.NewVBox(header, widget.NewSeparator()),
@@ -211,15 +214,21 @@ func (u *ui) start() {
 		view = viewModel
 	}
 	u.showView(view)
+	if view == viewOcclusion {
+		u.onImage = u.vOcc.run
+	}
 	after := func() {
 		if u.opts.Image != "" {
 			u.openImage(u.opts.Image)
 		} else {
 			u.openDemoImage("")
 		}
-		if u.opts.Probe != "" {
+		switch {
+		case u.opts.Probe != "":
 			u.setProbeDir(u.opts.Probe)
 			u.vHealth.run()
+		case u.opts.View == viewHealth && u.ws != nil && u.ws.Demo != "":
+			u.vHealth.run() // asked for on the command line: show the demo's scan
 		}
 	}
 	if u.opts.Model != "" {

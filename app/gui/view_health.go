@@ -50,16 +50,16 @@ var healthColumns = []struct {
 	width float32
 	num   bool
 }{
-	{"Layer", 120, false},
-	{"Filter", 60, true},
-	{"Fires on", 84, true},
-	{"Peak", 72, true},
-	{"Mean", 72, true},
-	{"Flags", 170, false},
+	{"Layer", 92, false},
+	{"Filter", 54, true},
+	{"Fires on", 76, true},
+	{"Peak", 60, true},
+	{"Mean", 60, true},
+	{"Flags", 130, false},
 }
 
 func newHealthView(u *ui) *healthView {
-	v := &healthView{u: u, sortCol: -1}
+	v := &healthView{u: u, sortCol: 2} // fires, ascending: dead filters first
 	v.jobs = u.newRunner(true)
 	v.folder = widget.NewLabel("")
 	v.folder.Truncation = fyne.TextTruncateEllipsis
@@ -140,15 +140,15 @@ func newHealthView(u *ui) *healthView {
 	v.tilesAbout = widget.NewLabel("")
 	v.tilesAbout.Wrapping = fyne.TextWrapWord
 
-	bar := container.NewBorder(nil, nil,
-		container.NewHBox(widget.NewLabel("Probe images:")),
-		container.NewHBox(choose, demoProbes, sick, widget.NewLabel("Rare below"),
-			container.NewGridWrap(fyne.NewSize(48, v.rare.MinSize().Height), v.rare), widget.NewLabel("%"), v.scanBtn, v.csvBtn),
-		v.folder)
+	bar := container.NewVBox(
+		container.NewBorder(nil, nil, widget.NewLabel("Probe images:"), nil, v.folder),
+		container.NewHBox(choose, demoProbes, sick, widget.NewLabel("   Rare below"),
+			container.NewGridWrap(fyne.NewSize(48, v.rare.MinSize().Height), v.rare), widget.NewLabel("%"), v.scanBtn, v.csvBtn))
 	right := container.NewBorder(v.tilesAbout, nil, nil, nil, v.tiles.box)
-	tableSide := container.NewBorder(container.NewHBox(v.onlyFlags, hint("Click a column title to sort; choose a row to see its filters.")), nil, nil, nil, v.table)
+	tip := note("Click a column title to sort; choose a row to see its filters.")
+	tableSide := container.NewBorder(container.NewBorder(nil, nil, v.onlyFlags, nil, tip), nil, nil, nil, v.table)
 	split := container.NewHSplit(tableSide, right)
-	split.SetOffset(0.6)
+	split.SetOffset(0.64)
 	v.content = container.NewBorder(container.NewVBox(bar, v.jobs.box, v.summary), nil, nil, nil, split)
 	return v
 }
@@ -256,10 +256,23 @@ func (v *healthView) refresh() {
 	} else if u.ws != nil {
 		v.summary.SetText("Scan a folder of typical images to find filters that never respond (dead) or hardly ever do (rare).")
 	}
+	// The tiles shown first: the first convolution with a flagged filter,
+	// else the first convolution.
 	v.conv = ""
 	if u.ws != nil {
 		if cs := convLayers(u.ws.Model); len(cs) > 0 {
 			v.conv = cs[0].Name
+		}
+	}
+	if r := u.scan; r != nil {
+	find:
+		for _, l := range r.Layers {
+			for _, c := range l.Channels {
+				if len(c.Flags) > 0 && l.Conv != "" {
+					v.conv = l.Conv
+					break find
+				}
+			}
 		}
 	}
 	v.fill()
@@ -351,21 +364,26 @@ func (v *healthView) run() {
 	})
 }
 
-// exportCSV saves the scan table (one row per filter) as CSV.
+// exportCSV asks where to save the scan table and saves it there.
 func (v *healthView) exportCSV() {
 	u := v.u
-	r := u.scan
-	if r == nil {
+	if u.scan == nil {
 		u.showError("Exporting the scan", fmt.Errorf("run a scan first"))
 		return
 	}
 	name := strings.TrimSuffix(u.ws.Name(), filepath.Ext(u.ws.Name())) + "-filter-scan.csv"
-	u.saveDialog("Export the scan table", name, []string{".csv"}, func(path string) {
-		u.fileJobs.launch("Exporting "+filepath.Base(path), "", nil, func(context.Context, func(int, int)) (result, error) {
-			if err := core.WriteFile(path, func(w io.Writer) error { return r.WriteCSV(w) }); err != nil {
-				return nil, err
-			}
-			return func(bool) { u.status.SetText("Saved the scan table to " + path) }, nil
-		})
+	u.saveDialog("Export the scan table", name, []string{".csv"}, v.writeCSV)
+}
+
+// writeCSV saves the scan table (one row per filter) at path, atomically,
+// off the UI goroutine.
+func (v *healthView) writeCSV(path string) {
+	u := v.u
+	r := u.scan
+	u.fileJobs.launch("Exporting "+filepath.Base(path), "", nil, func(context.Context, func(int, int)) (result, error) {
+		if err := core.WriteFile(path, func(w io.Writer) error { return r.WriteCSV(w) }); err != nil {
+			return nil, err
+		}
+		return func(bool) { u.status.SetText("Saved the scan table to " + path) }, nil
 	})
 }

@@ -85,8 +85,7 @@ func newModelView(u *ui) *modelView {
 	v.layout = widget.NewSelect(layoutChoices, nil)
 	v.resize = widget.NewSelect(resizeChoices, nil)
 	v.bg = widget.NewEntry()
-	v.prepFrom = widget.NewLabel("")
-	v.prepFrom.Importance = widget.LowImportance
+	v.prepFrom = note("")
 	v.apply = widget.NewButtonWithIcon("Apply and remember", theme.ConfirmIcon(), v.applyPrep)
 	v.apply.Importance = widget.HighImportance
 	undo := widget.NewButtonWithIcon("Undo edits", theme.ContentUndoIcon(), v.refresh)
@@ -107,8 +106,7 @@ func newModelView(u *ui) *modelView {
 	v.std.SetPlaceHolder("r, g, b")
 	v.bg.SetPlaceHolder("#rrggbb (shows through transparency)")
 
-	v.labelsFrom = widget.NewLabel("")
-	v.labelsFrom.Importance = widget.LowImportance
+	v.labelsFrom = note("")
 	v.labels = widget.NewList(func() int { return len(v.labelList) },
 		func() fyne.CanvasObject { return widget.NewLabel("label") },
 		func(i widget.ListItemID, o fyne.CanvasObject) { o.(*widget.Label).SetText(v.labelList[i]) })
@@ -134,11 +132,20 @@ func heading(text string) *widget.Label {
 	return widget.NewLabelWithStyle(text, fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
 }
 
-// hint is a line of secondary, wrapped text.
+// hint is secondary, wrapped text: italic in the normal text colour (the
+// theme's faint colour is hard to read on white).
 func hint(text string) *widget.Label {
 	l := widget.NewLabel(text)
 	l.Wrapping = fyne.TextWrapWord
-	l.Importance = widget.LowImportance
+	l.TextStyle.Italic = true
+	return l
+}
+
+// note is a one-line secondary text, cut with an ellipsis when too long.
+func note(text string) *widget.Label {
+	l := widget.NewLabel(text)
+	l.Truncation = fyne.TextTruncateEllipsis
+	l.TextStyle.Italic = true
 	return l
 }
 
@@ -194,7 +201,13 @@ func (v *modelView) refresh() {
 		add("Input", s)
 	}
 	for _, out := range m.Outputs {
-		add("Output", fmt.Sprintf("%s: %s %s", out.Name, out.ElemType, out.Shape))
+		shape := out.Shape.String()
+		if out.Shape == nil {
+			if l, ok := ws.Layer(out.Name); ok && l.Shape != nil {
+				shape = l.Shape.String() + " (not declared; " + l.ShapeSource + ")"
+			}
+		}
+		add("Output", fmt.Sprintf("%s: %s %s", out.Name, out.ElemType, shape))
 	}
 	classes := "not fixed by the file"
 	if n := ws.Classes(); n > 0 {

@@ -255,16 +255,24 @@ func (v *occlusionView) export() {
 	imgName := u.imgName
 	base := strings.TrimSuffix(imgName, filepath.Ext(imgName))
 	u.saveDialog("Export the explanation picture", base+"-explained.png", []string{".png"}, func(path string) {
-		u.fileJobs.launch("Exporting "+filepath.Base(path), "patch positions", ws, func(ctx context.Context, progress func(int, int)) (result, error) {
-			pic, err := ws.Report(ctx, core.ReportInput{Image: img, ImageName: imgName, Versus: exp, Occlusion: set, Occlusions: occ}, progress)
-			if err != nil {
-				return nil, err
-			}
-			if err := core.SavePNG(path, pic); err != nil {
-				return nil, err
-			}
-			return func(current bool) { u.status.SetText("Saved the explanation picture to " + path) }, nil
-		})
+		v.writeReport(path, core.ReportInput{Image: img, ImageName: imgName, Versus: exp, Occlusion: set, Occlusions: occ})
+	})
+}
+
+// writeReport composes the one-page picture and saves it at path,
+// atomically, off the UI goroutine.
+func (v *occlusionView) writeReport(path string, in core.ReportInput) {
+	u := v.u
+	ws := u.ws
+	u.fileJobs.launch("Exporting "+filepath.Base(path), "patch positions", ws, func(ctx context.Context, progress func(int, int)) (result, error) {
+		pic, err := ws.Report(ctx, in, progress)
+		if err != nil {
+			return nil, err
+		}
+		if err := core.SavePNG(path, pic); err != nil {
+			return nil, err
+		}
+		return func(bool) { u.status.SetText("Saved the explanation picture to " + path) }, nil
 	})
 }
 

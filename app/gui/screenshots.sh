@@ -1,0 +1,71 @@
+#!/usr/bin/env bash
+# Screenshots of Fovea's window, one per view, in the light and the dark
+# theme, for the README and for looking at the layout. The real window runs
+# under Xvfb (no display needed); each shot is cropped to the window.
+#
+#   app/gui/screenshots.sh [OUTDIR]        (default: assets/screenshots)
+#
+# Environment: FOVEA (binary, default: builds bin/fovea), FOVEA_MODEL,
+# FOVEA_IMAGE, FOVEA_PROBE (default: the embedded demo), FOVEA_EXPECT (the
+# class the occlusion view explains against), SHOT_VIEWS, SHOT_THEMES,
+# SHOT_WAIT (seconds to let a view settle, default 6).
+# Needs Xvfb, ImageMagick (import, convert) and xwininfo.
+set -euo pipefail
+# Fyne reads the language from LANGUAGE before LANG; "C.UTF-8" alone makes it log a
+# locale error.
+export LANG=C.UTF-8 LC_ALL=C.UTF-8 LANGUAGE=en
+
+root=$(cd "$(dirname "$0")/../.." && pwd)
+out=${1:-$root/assets/screenshots}
+views=${SHOT_VIEWS:-"model kernels predict maps occlusion health"}
+themes=${SHOT_THEMES:-"light dark"}
+wait=${SHOT_WAIT:-6}
+for tool in Xvfb import convert xwininfo; do
+	command -v $tool >/dev/null || { echo "screenshots: $tool is missing (Debian: xvfb imagemagick x11-utils)" >&2; exit 1; }
+done
+bin=${FOVEA:-}
+if [ -z "$bin" ]; then
+	bin=$root/bin/fovea
+	(cd "$root" && go build -o "$bin" ./app)
+fi
+mkdir -p "$out"
+
+# A private display and preferences, so that shots do not depend on (or
+# change) the user's remembered window size, view or theme.
+display=:$((90 + RANDOM % 9))
+Xvfb "$display" -screen 0 1400x900x24 -nolisten tcp >/dev/null 2>&1 &
+xvfb=$!
+home=$(mktemp -d)
+cleanup() { kill "$xvfb" 2>/dev/null || true; rm -rf "$home"; }
+trap cleanup EXIT
+sleep 1
+export DISPLAY=$display HOME=$home XDG_CONFIG_HOME=$home/.config XDG_CACHE_HOME=${XDG_CACHE_HOME:-$HOME/.cache}
+
+args=()
+[ -n "${FOVEA_MODEL:-}" ] && args+=(--model "$FOVEA_MODEL")
+[ -n "${FOVEA_IMAGE:-}" ] && args+=(--image "$FOVEA_IMAGE")
+for theme in $themes; do
+	for view in $views; do
+		extra=()
+		[ "$view" = health ] && [ -n "${FOVEA_PROBE:-}" ] && extra+=(--probe "$FOVEA_PROBE")
+		[ "$view" = occlusion ] && [ -n "${FOVEA_EXPECT:-}" ] && extra+=(--expect "$FOVEA_EXPECT")
+		"$bin" "${args[@]}" "${extra[@]}" --view "$view" --theme "$theme" >"$home/log" 2>&1 &
+		app=$!
+		sleep "$wait"
+		shot=$out/$view-$theme.png
+		geo=$(xwininfo -root -tree | grep -m1 '"Fovea' | grep -o '[0-9]*x[0-9]*+[0-9]*+[0-9]*' | head -1 || true)
+		import -window root "$home/full.png"
+		if [ -n "$geo" ]; then
+			convert "$home/full.png" -crop "$geo" +repage "$shot"
+		else
+			cp "$home/full.png" "$shot"
+		fi
+		kill "$app" 2>/dev/null || true
+		wait "$app" 2>/dev/null || true
+		if grep -qi 'error\|panic' "$home/log"; then
+			echo "screenshots: $view ($theme) logged:" >&2
+			cat "$home/log" >&2
+		fi
+		echo "$shot"
+	done
+done
