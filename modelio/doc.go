@@ -3,8 +3,8 @@
 // [Open] reads a file (or [Decode] a buffer) into a [Model]: the summary a
 // person reads first (inputs, outputs, opsets, producer, metadata, which input
 // is the image and in which layout, class labels), a layer table in execution
-// order with statically inferred output shapes, parameters, multiply-
-// accumulates, output memory and receptive field, and access to the weights
+// order with statically inferred output shapes, parameters,
+// multiply-accumulates, output memory and receptive field, and access to the weights
 // ([Model.Kernels]). [Model.WithOutputs] serialises the model with extra
 // graph outputs so the runtime package can capture activation maps, and
 // [Model.Observe] fills the shapes static inference could not know from a
@@ -15,7 +15,7 @@
 // Shapes are in the model's own layout, batch first. A [Dim] with Size -1 is
 // unknown; when it has a Param it is the symbolic dimension of that name.
 // Weights are returned as []float32, row-major; kernels as
-// [M][C/group][kH][kW]. Layer counts are per image (batch 1):
+// M × C/group × kH × kW. Layer counts are per image (batch 1):
 //
 //   - Params: the trainable values a node owns. Conv: M·C/g·kH·kW + M (bias
 //     when present); Gemm and MatMul: the weight matrix plus the bias;
@@ -31,21 +31,25 @@
 //   - Bytes: the output tensor at float32 (4 bytes a value) for one image.
 //
 //   - RF and Jump: receptive field (pixels of the input image) and cumulative
-//     stride, by the recurrence of Araujo, Norris & Sim ("Computing receptive
-//     fields of convolutional neural networks", Distill 2019) with dilation d:
+//     stride, by the recurrence below.
 //
-//     r_l = r_(l-1) + (k_l − 1)·d_l·j_(l-1)
-//     j_l = j_(l-1)·s_l
+// The receptive field r and jump j of layer l with kernel k, stride s and
+// dilation d follow Araujo, Norris & Sim ("Computing receptive fields of
+// convolutional neural networks", Distill 2019), starting from r = j = 1 at
+// the image:
 //
-//     Elementwise layers keep the values of their input; merges (Add, Concat,
-//     Mul, ...) take the largest receptive field of their inputs. Once the
-//     spatial structure is gone (global pooling, Flatten, Reshape, Gemm,
-//     MatMul, reductions) every value depends on the whole image, and RF and
-//     Jump are 0, meaning "not applicable". After Resize, ConvTranspose and
-//     other ops that move values between positions in ways the recurrence does
-//     not describe, they are 0 as well. When kernel or stride differ between
-//     height and width the larger receptive field is reported and the Note
-//     gives both.
+//	r_l = r_(l-1) + (k_l − 1)·d_l·j_(l-1)
+//	j_l = j_(l-1)·s_l
+//
+// Elementwise layers keep the values of their input; merges (Add, Concat,
+// Mul, ...) take the largest receptive field of their inputs. Once the
+// spatial structure is gone (global pooling, Flatten, Reshape, Gemm,
+// MatMul, reductions) every value depends on the whole image, and RF and
+// Jump are 0, meaning "not applicable". After Resize, ConvTranspose and
+// other ops that move values between positions in ways the recurrence does
+// not describe, they are 0 as well. When kernel or stride differ between
+// height and width the larger receptive field is reported and the Note
+// gives both.
 //
 // # Security Considerations
 //

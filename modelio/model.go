@@ -122,9 +122,10 @@ type ImageInput struct {
 type Layer struct {
 	Name, Op, Output string // node name (or op_index when unnamed), op type, output tensor name
 	Shape            Shape  // model's own layout, batch first
-	// Width, Height, Depth of the output volume for one image: for rank-4
-	// outputs per the tensor's layout, rank 3 as [C, H, W] (or its NHWC
-	// form), vectors as 1×1×features; -1 when unknown.
+	// Width, Height, Depth of the output volume for one image: rank-4
+	// outputs per the tensor's layout (NCHW unless the image's NHWC axes
+	// were tracked to it), rank 3 [N, C, L] as L×1×C, rank 2 [N, F] as
+	// 1×1×F; -1 when unknown.
 	Width, Height, Depth int64
 	Params, MACs, Bytes  int64  // Bytes: output at float32 for batch 1
 	RF, Jump             int    // receptive field (pixels) and cumulative stride w.r.t. the image; 0 = n/a
