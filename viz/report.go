@@ -27,7 +27,10 @@ type ReportInput struct {
 	ModelName string
 	Settings  []string // one setting per line ("patch 16 px, stride 8 px", ...)
 	Date      string   // as it should be printed; the report never reads the clock
-	Caution   string   // "" means the package's Caution
+	// Caution is added after the package's Caution sentence, which every
+	// report carries (for example what the settings leave out); "" adds
+	// nothing. At most 5 lines of caution are drawn.
+	Caution string
 }
 
 // Report page geometry: A4 portrait at 150 dots per inch.
@@ -111,8 +114,18 @@ func Report(in ReportInput) *image.NRGBA {
 	// Section 2: the heatmaps.
 	section(img, margin, y, inner, "Where the evidence is")
 	y += 40
-	footTop := H - 64 - 40           // footer line
-	cautionTop := footTop - 24 - 128 // caution box
+	footTop := H - 64 - 40 // footer line
+	cst := TextStyle{Size: 19, Color: inkDark}
+	caution := Caution
+	if in.Caution != "" {
+		caution += " " + in.Caution
+	}
+	cautionLines := wrapText(caution, inner-64, cst)
+	if len(cautionLines) > 5 {
+		cautionLines = append(cautionLines[:4], fitText(strings.Join(cautionLines[4:], " "), inner-64, cst))
+	}
+	cautionH := 50 + 24*len(cautionLines) + 16
+	cautionTop := footTop - 24 - cautionH // caution box
 	settingsTop := cautionTop - 24 - settingsHeight(in.Settings)
 	legendH := 0
 	if in.Legend != nil && !in.Legend.Bounds().Empty() {
@@ -146,19 +159,11 @@ func Report(in ReportInput) *image.NRGBA {
 	}
 
 	// Caution box.
-	cb := image.Rect(margin, cautionTop, W-margin, cautionTop+128)
+	cb := image.Rect(margin, cautionTop, W-margin, cautionTop+cautionH)
 	fill(img, cb, repCaution)
 	fill(img, image.Rect(cb.Min.X, cb.Min.Y, cb.Min.X+8, cb.Max.Y), flagMild)
 	DrawText(img, cb.Min.X+32, cb.Min.Y+18, "Read with care", TextStyle{Size: 20, Bold: true, Color: inkDark})
-	caution := in.Caution
-	if caution == "" {
-		caution = Caution
-	}
-	cst := TextStyle{Size: 19, Color: inkDark}
-	for i, line := range wrapText(caution, cb.Dx()-64, cst) {
-		if i == 3 {
-			break
-		}
+	for i, line := range cautionLines {
 		DrawText(img, cb.Min.X+32, cb.Min.Y+50+i*24, line, cst)
 	}
 

@@ -105,7 +105,7 @@ func TestReport(t *testing.T) {
 	if got := a.NRGBAAt(5, 5); got != repHeader {
 		t.Errorf("header pixel %v, want %v", got, repHeader)
 	}
-	cautionTop := ReportHeight - 64 - 40 - 24 - 128
+	cautionTop := ReportHeight - 64 - 40 - 24 - (50 + 2*24 + 16) // the caution wraps to 2 lines
 	if got := a.NRGBAAt(70, cautionTop+5); got != flagMild {
 		t.Errorf("caution stripe pixel %v, want %v", got, flagMild)
 	}
@@ -114,7 +114,7 @@ func TestReport(t *testing.T) {
 	}
 	// The caution's text is drawn: the box has ink in it.
 	ink := 0
-	for y := cautionTop + 50; y < cautionTop+120; y++ {
+	for y := cautionTop + 50; y < cautionTop+50+48; y++ {
 		for x := 100; x < ReportWidth-100; x++ {
 			if a.NRGBAAt(x, y) != repCaution {
 				ink++
