@@ -350,3 +350,27 @@ func TestCIEDE2000Reference(t *testing.T) {
 		}
 	}
 }
+
+func TestOKLabMatrices(t *testing.T) {
+	// OKLab coordinates of sRGB white and primaries as CSS Color Module
+	// Level 4 gives them (oklch(62.8% 0.2577 29.23) for red, etc., here in
+	// Cartesian form, 4 decimals): converting back must give the primary
+	// within 2e-3 per channel (the rounding of the reference values).
+	for _, c := range []struct {
+		L, a, b float64
+		rgb     [3]float64
+	}{
+		{1, 0, 0, [3]float64{1, 1, 1}},
+		{0.6280, 0.2249, 0.1258, [3]float64{1, 0, 0}},
+		{0.8664, -0.2339, 0.1795, [3]float64{0, 1, 0}},
+		{0.4520, -0.0325, -0.3115, [3]float64{0, 0, 1}},
+	} {
+		r, g, b := oklabToLinear(c.L, c.a, c.b)
+		for i, v := range []float64{r, g, b} {
+			if math.Abs(v-c.rgb[i]) > 2e-3 {
+				t.Errorf("OKLab (%v, %v, %v) → linear RGB (%.4f, %.4f, %.4f), want %v", c.L, c.a, c.b, r, g, b, c.rgb)
+				break
+			}
+		}
+	}
+}
