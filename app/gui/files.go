@@ -388,10 +388,13 @@ func (u *ui) setActivations(acts *core.Activations) {
 	}
 }
 
-// setProbeDir chooses the folder of probe images for the scan.
+// setProbeDir chooses the folder of probe images for the scan; the user's
+// folders go to the recent list (the demo's is temporary).
 func (u *ui) setProbeDir(dir string) {
 	u.scanDir = dir
-	u.addRecent(prefProbes, dir)
+	if demo, err := core.DemoProbeDir(); err != nil || demo != dir {
+		u.addRecent(prefProbes, dir)
+	}
 	u.vHealth.refresh()
 }
 

@@ -60,9 +60,7 @@ func (u *ui) newRunner(keep bool) *runner {
 		return fmt.Sprintf("%.0f %%", 100*r.bar.Value/r.bar.Max)
 	}
 	r.box = container.NewBorder(nil, nil, nil, r.stop, container.NewGridWithColumns(2, r.note, r.bar))
-	if !keep {
-		r.box.Hide()
-	}
+	r.box.Hide() // until the first job
 	return r
 }
 

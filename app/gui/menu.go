@@ -116,8 +116,12 @@ func (u *ui) showAbout() {
 	if lib == "" {
 		lib = u.opts.ORTLib
 	}
-	text := fmt.Sprintf("Fovea %s\nSee what a trained image classifier responds to.\n\nONNX Runtime %s\n%s",
-		u.app.Metadata().Version, infer.RuntimeVersion, lib)
+	name := "Fovea"
+	if v := u.app.Metadata().Version; v != "" {
+		name += " " + v
+	}
+	text := fmt.Sprintf("%s\nSee what a trained image classifier responds to.\n\nONNX Runtime %s\n%s",
+		name, infer.RuntimeVersion, lib)
 	src, _ := url.Parse("https://onnx.ai/")
 	dialog.NewCustom("About Fovea", "Close", container.NewVBox(widget.NewLabel(wrapText(text, 80)),
 		widget.NewHyperlink("The ONNX format", src)), u.win).Show()

@@ -66,3 +66,37 @@ func (l *pictureLayout) Layout(_ []fyne.CanvasObject, size fyne.Size) {
 	img.Resize(fyne.NewSize(w, h))
 	img.Move(fyne.NewPos((size.Width-w)/2, 0))
 }
+
+// gridFit chooses the columns and the size of one square cell of a grid of
+// n tiles, each side cells across plus extra pixels (frames, gaps, a label
+// line under it), so that the grid fills area as well as it can. The cell is
+// at least 1 and at most maxCell pixels.
+func gridFit(n, side, extra int, area fyne.Size, maxCell int) (cols, cell int) {
+	if n <= 0 || side <= 0 {
+		return 1, 1
+	}
+	w, h := float64(area.Width), float64(area.Height)
+	best := -1.0
+	cols = 1
+	for c := 1; c <= n; c++ {
+		rows := (n + c - 1) / c
+		cw := (w/float64(c) - float64(extra)) / float64(side)
+		ch := (h/float64(rows) - float64(extra)) / float64(side)
+		if k := math.Min(cw, ch); k > best {
+			best, cols = k, c
+		}
+	}
+	return cols, max(1, min(int(math.Floor(best)), maxCell))
+}
+
+// area is the space a view's picture gets: the tab's size (before the first
+// layout, estimated from the window) less the height of the view's other
+// rows and the width of its side parts.
+func (u *ui) area(less fyne.Size) fyne.Size {
+	s := u.tabs.Size()
+	if s.Width < 100 || s.Height < 100 {
+		w := u.win.Canvas().Size()
+		s = fyne.NewSize(w.Width*0.58, w.Height-120)
+	}
+	return fyne.NewSize(max(120, s.Width-less.Width), max(120, s.Height-less.Height))
+}

@@ -97,9 +97,6 @@ func run(o Options) int {
 	a.SetIcon(appIcon())
 	w := a.NewWindow("Fovea")
 	u := newUI(a, w, o)
-	w.Resize(fyne.NewSize(
-		float32(u.prefs.FloatWithFallback(prefWidth, defaultWidth)),
-		float32(u.prefs.FloatWithFallback(prefHeight, defaultHeight))))
 	w.SetCloseIntercept(func() {
 		u.close()
 		w.Close()
@@ -173,6 +170,7 @@ func newUI(a fyne.App, w fyne.Window, o Options) *ui {
 		for name, it := range u.tabByView {
 			if it == item {
 				u.prefs.SetString(prefView, name)
+				u.redraw(name)
 			}
 		}
 	}
@@ -199,6 +197,9 @@ func newUI(a fyne.App, w fyne.Window, o Options) *ui {
 		nil, nil, split))
 	w.SetMainMenu(u.menu())
 	w.SetOnDropped(u.dropped)
+	w.Resize(fyne.NewSize(
+		float32(u.prefs.FloatWithFallback(prefWidth, defaultWidth)),
+		float32(u.prefs.FloatWithFallback(prefHeight, defaultHeight))))
 	u.showHeading()
 	return u
 }
@@ -242,6 +243,19 @@ func (u *ui) start() {
 func (u *ui) showView(name string) {
 	if it, ok := u.tabByView[name]; ok {
 		u.tabs.Select(it)
+	}
+}
+
+// redraw draws a view's pictures again for the space it has now (the window
+// may have changed size since they were drawn).
+func (u *ui) redraw(view string) {
+	switch view {
+	case viewKernels:
+		u.vKernels.draw()
+	case viewMaps:
+		u.vMaps.draw()
+	case viewHealth:
+		u.vHealth.drawTiles()
 	}
 }
 

@@ -298,7 +298,9 @@ func (v *healthView) drawTiles() {
 	if k.C != 3 && k.C != 1 {
 		slice = 0
 	}
-	img, info, err := u.ws.Tiles(v.conv, viz.TileOptions{Cell: max(2, 40/max(1, k.KW)), Slice: slice, Labels: true}, u.scan)
+	a := u.area(fyne.NewSize(0, 200))
+	cols, cell := gridFit(k.M, max(k.KH, k.KW), 14, fyne.NewSize(a.Width*0.34, a.Height), 24)
+	img, info, err := u.ws.Tiles(v.conv, viz.TileOptions{Cell: max(2, cell), Columns: cols, Slice: slice}, u.scan)
 	if err != nil {
 		v.tiles.set(nil)
 		v.tilesAbout.SetText(err.Error())

@@ -2,7 +2,6 @@ package gui
 
 import (
 	"fmt"
-	"math"
 	"slices"
 	"strconv"
 	"strings"
@@ -35,9 +34,6 @@ type kernelView struct {
 	info  []viz.TileInfo // the tiles drawn last (tests read them)
 	quiet bool
 }
-
-// tileTarget is the width in pixels the tile grid is drawn at.
-const tileTarget = 560
 
 // flagNames are the flags as the window words them.
 var flagNames = map[string]string{
@@ -156,11 +152,16 @@ func (v *kernelView) draw() {
 	if s, ok := strings.CutPrefix(v.slice.Selected, "input channel "); ok && (k.C != 1) {
 		slice, _ = strconv.Atoi(s)
 	}
-	cols := int(math.Ceil(math.Sqrt(float64(k.M))))
-	cell := max(2, min(40, (tileTarget/max(1, cols)-12)/max(1, k.KW)))
+	// Frames, gaps and the number line under each tile take about 30
+	// pixels; the rows above and below the picture about 170.
+	extra := 14
+	if v.numbers.Checked {
+		extra = 32
+	}
+	cols, cell := gridFit(k.M, max(k.KH, k.KW), extra, v.u.area(fyne.NewSize(16, 170)), 40)
 	c, _ := ws.Prep()
 	img, info, err := ws.Tiles(v.layer.Selected, viz.TileOptions{
-		Cell: cell, PerFilter: v.perFilter.Checked, SortByNorm: v.byNorm.Checked,
+		Cell: max(2, cell), Columns: cols, PerFilter: v.perFilter.Checked, SortByNorm: v.byNorm.Checked,
 		Slice: slice, BGR: c.BGR, Labels: v.numbers.Checked,
 	}, v.u.scan)
 	if err != nil {
@@ -188,7 +189,7 @@ func (v *kernelView) draw() {
 	}
 	if len(lines) == 0 {
 		v.flagged.SetText("No filter is flagged.")
-		v.flagged.Importance = widget.SuccessImportance
+		v.flagged.Importance = widget.MediumImportance
 	} else {
 		slicesSortByIndex(lines)
 		v.flagged.SetText(fmt.Sprintf("%d flagged: %s", len(lines), strings.Join(lines, " · ")))

@@ -2,7 +2,6 @@ package gui
 
 import (
 	"fmt"
-	"math"
 	"slices"
 	"strconv"
 	"strings"
@@ -32,9 +31,6 @@ type mapsView struct {
 	layers []modelio.Layer // the layers with maps, in the select's order
 	quiet  bool
 }
-
-// mapTarget is the width in pixels the map grid is drawn at.
-const mapTarget = 520
 
 func newMapsView(u *ui) *mapsView {
 	v := &mapsView{u: u}
@@ -154,13 +150,15 @@ func (v *mapsView) draw() {
 		v.about.SetText(err.Error())
 		return
 	}
-	zoom := 1
+	// The grid gets about 60 % of the width (the overlay the rest) and the
+	// height less the rows above and below and the legend under the grid.
+	zoom, cols := 1, 0
 	if len(t.Shape) == 4 {
-		c, w := int(t.Shape[1]), int(t.Shape[3])
-		cols := int(math.Ceil(math.Sqrt(float64(c))))
-		zoom = max(1, min(16, (mapTarget/max(1, cols)-4)/max(1, w)))
+		c, h, w := int(t.Shape[1]), int(t.Shape[2]), int(t.Shape[3])
+		a := u.area(fyne.NewSize(0, 190))
+		cols, zoom = gridFit(c, max(h, w), 22, fyne.NewSize(a.Width*0.6, a.Height), 16)
 	}
-	pic, stats, err := u.acts.MapPicture(l.Output, viz.GridOptions{Zoom: zoom, PerTile: v.perTile.Checked, Labels: true})
+	pic, stats, err := u.acts.MapPicture(l.Output, viz.GridOptions{Zoom: zoom, Columns: cols, PerTile: v.perTile.Checked, Labels: true})
 	if err != nil {
 		v.about.SetText(err.Error())
 		return
