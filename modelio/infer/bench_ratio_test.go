@@ -1,0 +1,137 @@
+package infer_test
+
+// Ratio benchmark of issue 9 for the ResNet-18-sized network; the demo
+// model's is BenchmarkCaptureRatio in bench_test.go. `make bench` runs both
+// (-bench '^BenchmarkCaptureRatio') and prints the table.
+
+import (
+	"context"
+	"math"
+	"os"
+	"path/filepath"
+	"sync"
+	"testing"
+	"time"
+
+	"fovea/modelio"
+	"fovea/modelio/infer"
+	"fovea/modelio/internal/synth"
+)
+
+var (
+	ratioORTOnce sync.Once
+	ratioORTErr  error
+)
+
+// ratioORT loads ONNX Runtime; a missing library fails the benchmark.
+func ratioORT(b *testing.B) {
+	ratioORTOnce.Do(func() {
+		p, err := infer.FindLibrary("")
+		if err == nil {
+			err = infer.Init(p)
+		}
+		ratioORTErr = err
+	})
+	if ratioORTErr != nil {
+		b.Fatalf("ONNX Runtime is needed and is not usable: %v", ratioORTErr)
+	}
+}
+
+// ratioModel returns the path of a synthetic model: from the folder
+// $FOVEA_BENCH_MODELS when make bench has written it there, else written
+// now into a temporary folder.
+func ratioModel(b *testing.B, file string, build func() *synth.Net) string {
+	if d := os.Getenv("FOVEA_BENCH_MODELS"); d != "" {
+		if p := filepath.Join(d, file); fileExists(p) {
+			return p
+		}
+	}
+	p := filepath.Join(b.TempDir(), file)
+	if err := build().WriteFile(p); err != nil {
+		b.Fatal(err)
+	}
+	return p
+}
+
+func fileExists(p string) bool {
+	st, err := os.Stat(p)
+	return err == nil && st.Mode().IsRegular()
+}
+
+// BenchmarkCaptureRatioResNet18 reports the time of a run returning every
+// activation map (infer.ActivationOutputs) over a plain run of the same
+// batch, on the ResNet-18-sized network (He et al. 2016; 224×224×3): goal
+// at most 1.3. The batch is the plain session's preferred one; the
+// capturing session splits it into its own chunks if it prefers smaller
+// ones, as a caller would see it. The two runs are interleaved, their order
+// alternated, and short pairs repeated within an iteration.
+func BenchmarkCaptureRatioResNet18(b *testing.B) {
+	ratioORT(b)
+	m, err := modelio.Open(ratioModel(b, "resnet18.onnx", func() *synth.Net { return synth.ResNet18(1000) }))
+	if err != nil {
+		b.Fatal(err)
+	}
+	capture := infer.ActivationOutputs(m)
+	plain, err := infer.NewSession(m, infer.Options{})
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer plain.Close()
+	all, err := infer.NewSession(m, infer.Options{Capture: capture})
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer all.Close()
+	n := plain.BatchSize()
+	x := make([]float32, n*3*224*224)
+	var v uint32 = 7
+	for i := range x {
+		v = v*1664525 + 1013904223 // Numerical Recipes LCG
+		x[i] = float32(v>>8)/(1<<24)*4 - 2
+	}
+	ctx := context.Background()
+	var rp, ra *infer.Result
+	runPlain := func() {
+		if rp, err = plain.RunInto(ctx, x, n, rp); err != nil {
+			b.Fatal(err)
+		}
+	}
+	runAll := func() {
+		if ra, err = all.RunInto(ctx, x, n, ra); err != nil {
+			b.Fatal(err)
+		}
+	}
+	// Warm up both (the first run of a chunk size learns the shapes) and
+	// size the repetitions: a pair should take at least half a second.
+	runPlain()
+	runAll()
+	t0 := time.Now()
+	runPlain()
+	runAll()
+	reps := max(1, int(math.Ceil(float64(500*time.Millisecond)/float64(time.Since(t0)))))
+	timed := func(f func()) time.Duration {
+		s := time.Now()
+		f()
+		return time.Since(s)
+	}
+	var tp, ta time.Duration
+	pairs := 0
+	b.ReportAllocs()
+	for b.Loop() {
+		for range reps {
+			if pairs%2 == 0 {
+				tp += timed(runPlain)
+				ta += timed(runAll)
+			} else {
+				ta += timed(runAll)
+				tp += timed(runPlain)
+			}
+			pairs++
+		}
+	}
+	b.ReportMetric(float64(ta)/float64(tp), "capture/plain")
+	b.ReportMetric(float64(n), "batch")
+	b.ReportMetric(float64(len(capture)), "maps")
+	b.ReportMetric(float64(all.BatchSize()), "capture-batch")
+	b.ReportMetric(tp.Seconds()*1000/float64(pairs), "plain-ms/run")
+}

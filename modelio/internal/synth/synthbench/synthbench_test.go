@@ -1,0 +1,76 @@
+package main
+
+import (
+	"strings"
+	"testing"
+)
+
+// benchOutput is go test -bench output in the format of the testing
+// package ("Benchmark results format", Go proposal 14313): name with the
+// GOMAXPROCS suffix, iterations, then value/unit pairs; other lines are
+// logs and package headers.
+const benchOutput = `goos: linux
+pkg: fovea/viz
+BenchmarkOcclusionRatio/demo-2         	       3	 755347477 ns/op	        16.00 batch	       226.0 images	         0.9907 occlusion/plain	         0.2398 plain-ms/image	 7223856 B/op	    9156 allocs/op
+BenchmarkOcclusionRatio/resnet18-2         	       3	6333579303 ns/op	         2.000 batch	       170.0 images	         1.180 occlusion/plain	        17.91 plain-ms/image
+BenchmarkScanRatio/demo-2              	       3	 527061312 ns/op	         0.5505 scan/plain
+BenchmarkScanRatio/resnet18-2              	       3	 527061312 ns/op	         0.8000 scan/plain
+--- BENCH: BenchmarkCaptureRatio-2
+    bench_test.go:63: a log line 1.5 capture/plain
+BenchmarkCaptureRatio-2           	       3	   7277841 ns/op	      4790 capture-µs/op	         1.2 capture/plain	      2486 plain-µs/op
+BenchmarkOpenRatio	       3	 481490250 ns/op	         0.8869 open/read	         1.004 peakRSS/size
+PASS
+`
+
+func TestParse(t *testing.T) {
+	res, err := parse(strings.NewReader(benchOutput))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		bench, unit string
+		want        float64
+	}{
+		{"BenchmarkOcclusionRatio/demo", "occlusion/plain", 0.9907},
+		{"BenchmarkOcclusionRatio/demo", "images", 226},
+		{"BenchmarkOcclusionRatio/demo", "allocs/op", 9156},
+		{"BenchmarkOcclusionRatio/resnet18", "occlusion/plain", 1.18},
+		{"BenchmarkCaptureRatio", "capture/plain", 1.2}, // not the log line's 1.5
+		{"BenchmarkCaptureRatio", "plain-µs/op", 2486},
+		{"BenchmarkOpenRatio", "peakRSS/size", 1.004}, // no -GOMAXPROCS suffix when it is 1
+	} {
+		if got, ok := res[tc.bench][tc.unit]; !ok || got != tc.want {
+			t.Errorf("%s %s = %v (present %v), want %v", tc.bench, tc.unit, got, ok, tc.want)
+		}
+	}
+}
+
+func TestTable(t *testing.T) {
+	res, err := parse(strings.NewReader(benchOutput))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var b strings.Builder
+	missing := writeTable(&b, res, false)
+	out := b.String()
+	// Missing from the output above: the ResNet-18 capture ratio.
+	if missing != 1 {
+		t.Errorf("%d ratios missing, want 1\n%s", missing, out)
+	}
+	for _, want := range []string{
+		"| 0.99 | ≤ 1.10 | met |",    // demo occlusion
+		"| 1.18 | ≤ 1.10 | missed |", // ResNet-18 occlusion
+		"| 0.55 | ≥ 0.80 | missed |", // demo scan
+		"| 0.80 | ≥ 0.80 | met |",    // the goal itself is met
+		"| 1.20 | ≤ 1.30 | met |",
+		"| 0.89 | ≤ 2.00 | met |",
+		"| 1.00 | ≤ 1.50 | met |",
+		"MISSING (BenchmarkCaptureRatioResNet18 did not report capture/plain)",
+		"demo stand-in",
+		"goals met: 5 of 8; 1 ratios missing",
+	} {
+		if !strings.Contains(out, want) {
+			t.Errorf("table lacks %q:\n%s", want, out)
+		}
+	}
+}

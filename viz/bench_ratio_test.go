@@ -1,0 +1,288 @@
+package viz_test
+
+// Ratio benchmarks of issue 9 for the analyses: occlusion against plain
+// batched inference over as many images, and the dead-filter scan against
+// plain batched inference with the same activations captured. Each ratio is
+// measured against its bound in the same run, the two interleaved (and
+// their order alternated) so that both see the same load on a shared
+// machine. `make bench` runs them and prints the table.
+//
+// Models: the demo classifier (assets/demo/parts.onnx, or a stand-in of its
+// architecture with random weights when it is absent) and a ResNet-18-sized
+// network, both written by modelio/internal/synth. This package cannot
+// import that internal package, so the files come from the folder named by
+// $FOVEA_BENCH_MODELS (make bench writes them there once for all packages)
+// or, without it, from `go run fovea/modelio/internal/synth/synthbench`.
+
+import (
+	"context"
+	"fmt"
+	"image"
+	"image/color"
+	"image/png"
+	"math"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"runtime"
+	"sync"
+	"testing"
+	"time"
+
+	"fovea/modelio"
+	"fovea/modelio/infer"
+	"fovea/modelio/prep"
+	"fovea/viz"
+)
+
+// The demo's input is 64×64: patch 8 and stride 4 hide about the same
+// share of it as patch 32 and stride 16 of a 224×224 input (1/8 and 1/7 of
+// the side, stride half the patch).
+const (
+	benchDemoPatch, benchDemoStride     = 8, 4
+	benchResNetPatch, benchResNetStride = 32, 16
+	// Probe images of the scan benchmark.
+	benchDemoProbes, benchResNetProbes = 256, 32
+	// benchMinPair is the least time one interleaved pair (bound + measured)
+	// should take; short ones are repeated within an iteration so that
+	// timer resolution and scheduling noise stay small.
+	benchMinPair = 500 * time.Millisecond
+)
+
+// benchDemoFile is the demo classifier, relative to this package.
+const benchDemoFile = "../assets/demo/parts.onnx"
+
+var (
+	benchORTOnce sync.Once
+	benchORTErr  error
+)
+
+// benchORT loads ONNX Runtime; a missing library fails the benchmark.
+func benchORT(b *testing.B) {
+	benchORTOnce.Do(func() {
+		p, err := infer.FindLibrary("")
+		if err == nil {
+			err = infer.Init(p)
+		}
+		benchORTErr = err
+	})
+	if benchORTErr != nil {
+		b.Fatalf("ONNX Runtime is needed and is not usable: %v", benchORTErr)
+	}
+}
+
+// benchModelDir returns a folder holding parts.onnx and resnet18.onnx
+// written by modelio/internal/synth.
+func benchModelDir(b *testing.B) string {
+	if d := os.Getenv("FOVEA_BENCH_MODELS"); d != "" {
+		return d
+	}
+	dir := b.TempDir()
+	goBin, err := exec.LookPath("go")
+	if err != nil {
+		goBin = filepath.Join(runtime.GOROOT(), "bin", "go")
+	}
+	cmd := exec.Command(goBin, "run", "fovea/modelio/internal/synth/synthbench", "models", dir, "parts", "resnet18")
+	if out, err := cmd.CombinedOutput(); err != nil {
+		b.Fatalf("writing the synthetic models: %v\n%s", err, out)
+	}
+	return dir
+}
+
+// benchCase is one model of the ratio benchmarks.
+type benchCase struct {
+	name          string // sub-benchmark: demo or resnet18
+	path          string
+	patch, stride int
+	probes        int
+}
+
+func benchCases(b *testing.B) []benchCase {
+	dir := benchModelDir(b)
+	demo := benchDemoFile
+	if _, err := os.Stat(demo); err != nil {
+		b.Logf("%s not found; the demo rows use a stand-in of its architecture with random weights", demo)
+		demo = filepath.Join(dir, "parts.onnx")
+	}
+	return []benchCase{
+		{"demo", demo, benchDemoPatch, benchDemoStride, benchDemoProbes},
+		{"resnet18", filepath.Join(dir, "resnet18.onnx"), benchResNetPatch, benchResNetStride, benchResNetProbes},
+	}
+}
+
+// benchPicture is a deterministic test picture: smooth colour gradients
+// with a bright disc whose place depends on seed, and a little noise.
+func benchPicture(w, h int, seed uint32) *image.NRGBA {
+	img := image.NewNRGBA(image.Rect(0, 0, w, h))
+	cx, cy := float64(w)*(0.3+0.4*float64(seed%7)/7), float64(h)*(0.3+0.4*float64(seed%5)/5)
+	r := float64(min(w, h)) / 5
+	v := seed*2654435761 + 1
+	for y := range h {
+		for x := range w {
+			v = v*1664525 + 1013904223 // Numerical Recipes LCG
+			noise := float64(v>>24) / 255 * 0.1
+			fx, fy := float64(x)/float64(w), float64(y)/float64(h)
+			c := [3]float64{0.2 + 0.5*fx, 0.3 + 0.4*fy, 0.5 + 0.3*math.Sin(6*fx*fy)}
+			if math.Hypot(float64(x)-cx, float64(y)-cy) < r {
+				c = [3]float64{0.9, 0.85, 0.6}
+			}
+			px := color.NRGBA{A: 255}
+			for i, p := range []*uint8{&px.R, &px.G, &px.B} {
+				*p = uint8(math.Min(255, 255*(c[i]+noise)))
+			}
+			img.SetNRGBA(x, y, px)
+		}
+	}
+	return img
+}
+
+// benchOpen opens a model, its preprocessing guess, and checks it is a
+// square RGB image classifier.
+func benchOpen(b *testing.B, path string) (*modelio.Model, prep.Config) {
+	m, err := modelio.Open(path)
+	if err != nil {
+		b.Fatal(err)
+	}
+	c := prep.Guess(m)
+	if err := c.Validate(); err != nil || c.Width == 0 || c.Width != c.Height || c.Channels != 3 {
+		b.Fatalf("%s: unexpected input settings %v (%v)", m.Name, c, err)
+	}
+	return m, c
+}
+
+// interleave runs bound and measured alternately, each reps times per
+// b.Loop iteration (reps chosen from one warm run so that a pair takes at
+// least benchMinPair), alternating which goes first, and returns the total
+// time of each and the number of pairs.
+func interleave(b *testing.B, bound, measured func()) (tb, tm time.Duration, pairs int) {
+	t0 := time.Now()
+	bound()
+	measured()
+	reps := max(1, int(math.Ceil(float64(benchMinPair)/float64(time.Since(t0)))))
+	timed := func(f func()) time.Duration {
+		s := time.Now()
+		f()
+		return time.Since(s)
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		for range reps {
+			if pairs%2 == 0 {
+				tb += timed(bound)
+				tm += timed(measured)
+			} else {
+				tm += timed(measured)
+				tb += timed(bound)
+			}
+			pairs++
+		}
+	}
+	return tb, tm, pairs
+}
+
+// BenchmarkOcclusionRatio reports occlusion time over the time of plain
+// batched inference on as many images as occlusion runs (positions + the
+// unoccluded image), same session: goal at most 1.10.
+func BenchmarkOcclusionRatio(b *testing.B) {
+	benchORT(b)
+	for _, bc := range benchCases(b) {
+		b.Run(bc.name, func(b *testing.B) { occlusionRatio(b, bc) })
+	}
+}
+
+func occlusionRatio(b *testing.B, bc benchCase) {
+	ctx := context.Background()
+	m, cfg := benchOpen(b, bc.path)
+	s, err := infer.NewSession(m, infer.Options{})
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer s.Close()
+	img := prep.Fit(benchPicture(cfg.Width, cfg.Height, 1), cfg)
+	set := viz.OcclusionSettings{Patch: bc.patch, Stride: bc.stride}
+	occlude := func() []*viz.Occlusion {
+		o, err := viz.Occlude(ctx, s, cfg, img, set, nil, nil)
+		if err != nil {
+			b.Fatal(err)
+		}
+		return o
+	}
+	o := occlude()
+	n := len(o[0].Ys)*len(o[0].Xs) + 1
+	one := make([]float32, cfg.Len())
+	cfg.Tensor(prep.Planes(img), one)
+	input := make([]float32, 0, n*len(one))
+	for range n {
+		input = append(input, one...)
+	}
+	var res *infer.Result
+	plain := func() {
+		if res, err = s.RunInto(ctx, input, n, res); err != nil {
+			b.Fatal(err)
+		}
+	}
+	tb, tm, pairs := interleave(b, plain, func() { occlude() })
+	b.ReportMetric(float64(tm)/float64(tb), "occlusion/plain")
+	b.ReportMetric(float64(n), "images")
+	b.ReportMetric(tb.Seconds()*1000/float64(pairs*n), "plain-ms/image")
+	b.ReportMetric(float64(s.BatchSize()), "batch")
+}
+
+// BenchmarkScanRatio reports the scan's throughput (probe PNG files decoded,
+// fitted, run with the ReLU maps captured, statistics gathered) over that of
+// plain batched inference of the same images, already as tensors, with the
+// same maps captured by the same session: goal at least 0.8.
+func BenchmarkScanRatio(b *testing.B) {
+	benchORT(b)
+	for _, bc := range benchCases(b) {
+		b.Run(bc.name, func(b *testing.B) { scanRatio(b, bc) })
+	}
+}
+
+func scanRatio(b *testing.B, bc benchCase) {
+	ctx := context.Background()
+	m, cfg := benchOpen(b, bc.path)
+	s, err := infer.NewSession(m, infer.Options{Capture: viz.ScanCapture(m)})
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer s.Close()
+	dir := b.TempDir()
+	files := make([]string, bc.probes)
+	input := make([]float32, bc.probes*cfg.Len())
+	for i := range files {
+		pic := benchPicture(cfg.Width, cfg.Height, uint32(i))
+		files[i] = filepath.Join(dir, fmt.Sprintf("probe%03d.png", i))
+		f, err := os.Create(files[i])
+		if err != nil {
+			b.Fatal(err)
+		}
+		if err := png.Encode(f, pic); err != nil {
+			b.Fatal(err)
+		}
+		if err := f.Close(); err != nil {
+			b.Fatal(err)
+		}
+		cfg.Tensor(prep.Planes(prep.Fit(pic, cfg)), input[i*cfg.Len():(i+1)*cfg.Len()])
+	}
+	var res *infer.Result
+	plain := func() {
+		if res, err = s.RunInto(ctx, input, bc.probes, res); err != nil {
+			b.Fatal(err)
+		}
+	}
+	scan := func() {
+		rep, err := viz.Scan(ctx, s, m, cfg, files, viz.ScanOptions{}, nil)
+		if err != nil {
+			b.Fatal(err)
+		}
+		if rep.Images != bc.probes {
+			b.Fatalf("scan read %d images of %d", rep.Images, bc.probes)
+		}
+	}
+	tb, tm, pairs := interleave(b, plain, scan)
+	b.ReportMetric(float64(tb)/float64(tm), "scan/plain")
+	b.ReportMetric(float64(bc.probes), "images")
+	b.ReportMetric(tb.Seconds()*1000/float64(pairs*bc.probes), "plain-ms/image")
+	b.ReportMetric(float64(s.BatchSize()), "batch")
+}
