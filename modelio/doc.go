@@ -35,21 +35,32 @@
 //
 // The receptive field r and jump j of layer l with kernel k, stride s and
 // dilation d follow Araujo, Norris & Sim ("Computing receptive fields of
-// convolutional neural networks", Distill 2019), starting from r = j = 1 at
-// the image:
+// convolutional neural networks", Distill 2019), starting from r = j = 1
+// and u = 0 at the image:
 //
 //	r_l = r_(l-1) + (k_l − 1)·d_l·j_(l-1)
 //	j_l = j_(l-1)·s_l
+//	u_l = u_(l-1) − p_l·j_(l-1)
+//
+// where u is the first input pixel of the receptive field
+// of output cell 0 (negative when it reaches into the padding) and p_l the
+// padding before the start of the axis: the pads attribute, 0 for VALID,
+// the ONNX split of SAME_UPPER (extra pad at the end) and SAME_LOWER (at
+// the beginning), the leading pads of a Pad node. Pixel k's centre is at
+// coordinate k, so the centre of cell 0 is u + (r − 1)/2 and that of cell i
+// u + (r − 1)/2 + i·j (Layer.CenterY, CenterX).
 //
 // Elementwise layers keep the values of their input; merges (Add, Concat,
-// Mul, ...) take the largest receptive field of their inputs. Once the
+// Mul, ...) take, per axis, r, j and u of the input with the largest
+// receptive field (ties: the larger jump, then the first input): the
+// branch that sees most decides where a cell sits. Once the
 // spatial structure is gone (global pooling, Flatten, Reshape, Gemm,
 // MatMul, reductions) every value depends on the whole image, and RF and
 // Jump are 0, meaning "not applicable". After Resize, ConvTranspose and
 // other ops that move values between positions in ways the recurrence does
 // not describe, they are 0 as well. When kernel or stride differ between
-// height and width the larger receptive field is reported and the Note
-// gives both.
+// height and width RF and Jump report the larger value, the Note gives both
+// receptive fields, and RFY, RFX, JumpY, JumpX keep each axis.
 //
 // # Security Considerations
 //

@@ -146,6 +146,14 @@ func FuzzDecode(f *testing.F) {
 			sum.Params = satAdd(sum.Params, l.Params)
 			sum.MACs = satAdd(sum.MACs, l.MACs)
 			sum.Bytes = satAdd(sum.Bytes, l.Bytes)
+			// The per-axis values summarise into RF and Jump; a centre
+			// needs a receptive field.
+			if l.RF != max(l.RFY, l.RFX) || l.Jump != max(l.JumpY, l.JumpX) {
+				t.Fatalf("layer %s: RF %d jump %d, per axis %d×%d and %d×%d", l.Name, l.RF, l.Jump, l.RFY, l.RFX, l.JumpY, l.JumpX)
+			}
+			if l.HasCenter && l.RF == 0 {
+				t.Fatalf("layer %s: centre (%v, %v) with RF %d×%d", l.Name, l.CenterY, l.CenterX, l.RFY, l.RFX)
+			}
 		}
 		if sum != m.Total {
 			t.Fatalf("totals %+v, sum of layers %+v", m.Total, sum)

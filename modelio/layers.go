@@ -16,12 +16,16 @@ type axes struct {
 }
 
 // rfInfo is the receptive field and jump of a tensor w.r.t. the input
-// image, per image axis (0 = height, 1 = width).
+// image, per image axis (0 = height, 1 = width), and u, the first input
+// pixel of the receptive field of cell 0 (negative inside the padding),
+// known when uok.
 type rfInfo struct {
 	ok  bool
 	why string // why it is not applicable
 	r   [2]int64
 	j   [2]int64
+	u   [2]int64
+	uok bool
 	ax  axes
 }
 
@@ -50,7 +54,7 @@ func (m *Model) analyse() {
 			if m.Image.Layout == "nhwc" {
 				h, w = 1, 2
 			}
-			ti.rf = rfInfo{ok: true, r: [2]int64{1, 1}, j: [2]int64{1, 1}, ax: axes{true, h, w}}
+			ti.rf = rfInfo{ok: true, r: [2]int64{1, 1}, j: [2]int64{1, 1}, uok: true, ax: axes{true, h, w}}
 		}
 		g.info[name] = ti
 	}
@@ -190,6 +194,14 @@ func (m *Model) layer(i int, ins []*tinfo, o *tinfo) Layer {
 	if o.rf.ok {
 		l.RF = clampInt(max(o.rf.r[0], o.rf.r[1]))
 		l.Jump = clampInt(max(o.rf.j[0], o.rf.j[1]))
+		l.RFY, l.RFX = clampInt(o.rf.r[0]), clampInt(o.rf.r[1])
+		l.JumpY, l.JumpX = clampInt(o.rf.j[0]), clampInt(o.rf.j[1])
+		if o.rf.uok {
+			// Centre of pixels u … u+r−1 (Araujo, Norris & Sim, Distill 2019).
+			l.CenterY = float64(o.rf.u[0]) + float64(o.rf.r[0]-1)/2
+			l.CenterX = float64(o.rf.u[1]) + float64(o.rf.r[1]-1)/2
+			l.HasCenter = true
+		}
 		if o.rf.r[0] != o.rf.r[1] {
 			l.Note = joinNote(l.Note, fmt.Sprintf("receptive field %d×%d (height×width)", o.rf.r[0], o.rf.r[1]))
 		}
@@ -386,8 +398,6 @@ func macs(n *onnxpb.NodeProto, ins []*tinfo, out Shape) int64 {
 	return 0
 }
 
-var rfKeep = map[string]bool{"Pad": true}
-
 // rfFor computes the receptive field of node n's first output from its
 // inputs, per the recurrence in the package doc.
 func (m *Model) rfFor(n *onnxpb.NodeProto, ins []*tinfo, outs []*tinfo) rfInfo {
@@ -449,7 +459,7 @@ func (m *Model) rfFor(n *onnxpb.NodeProto, ins []*tinfo, outs []*tinfo) rfInfo {
 		default:
 			return rfInfo{why: "the operation's spatial axes are not the image's height and width"}
 		}
-		res := rfInfo{ok: true, ax: x.rf.ax}
+		res := rfInfo{ok: true, uok: x.rf.uok, ax: x.rf.ax}
 		for a := range 2 {
 			k, s, d := sp.kernel[idx[a]], sp.strides[idx[a]], sp.dilations[idx[a]]
 			if span := (k - 1) * d; (span > 0 && x.rf.j[a] > maxDim/span) || x.rf.j[a] > maxDim/s {
@@ -460,9 +470,27 @@ func (m *Model) rfFor(n *onnxpb.NodeProto, ins []*tinfo, outs []*tinfo) rfInfo {
 			if res.r[a] > maxDim || res.j[a] > maxDim {
 				return rfInfo{why: "receptive field too large to track"}
 			}
+			in := unknownDim
+			if axis := [2]int{x.rf.ax.h, x.rf.ax.w}[a]; axis < len(x.shape) {
+				in = x.shape[axis]
+			}
+			p, ok := sp.padBegin(idx[a], in)
+			res.u[a], res.uok = shiftStart(x.rf.u[a], p, x.rf.j[a], res.uok && ok)
 		}
 		return res
-	case unaryOps[op] || rfKeep[op]:
+	case op == "Pad":
+		res := first.rf
+		begin, ok := padOpBegin(n, ins, len(first.shape))
+		for a, axis := range [2]int{res.ax.h, res.ax.w} {
+			known := ok && axis >= 0 && axis < len(begin)
+			p := int64(0)
+			if known {
+				p = begin[axis]
+			}
+			res.u[a], res.uok = shiftStart(res.u[a], p, res.j[a], res.uok && known)
+		}
+		return res
+	case unaryOps[op]:
 		return first.rf
 	case op == "Transpose":
 		perm, err := transposePerm(n, len(first.shape))
@@ -480,7 +508,10 @@ func (m *Model) rfFor(n *onnxpb.NodeProto, ins []*tinfo, outs []*tinfo) rfInfo {
 		}
 		return res
 	case binaryOps[op] || op == "Concat" || op == "Split":
-		res := rfInfo{ok: true}
+		// Per axis, the branch with the largest receptive field (ties: the
+		// larger jump, then the first input) gives r, j and u.
+		res := rfInfo{ok: true, uok: true}
+		var best [2]*rfInfo
 		for k, t := range acts {
 			ax := t.rf.ax
 			if outRank >= 0 && t.shape != nil {
@@ -494,9 +525,14 @@ func (m *Model) rfFor(n *onnxpb.NodeProto, ins []*tinfo, outs []*tinfo) rfInfo {
 				return rfInfo{why: "inputs with different layouts are merged"}
 			}
 			for a := range 2 {
-				res.r[a] = max(res.r[a], t.rf.r[a])
-				res.j[a] = max(res.j[a], t.rf.j[a])
+				if b := best[a]; b == nil || t.rf.r[a] > b.r[a] || (t.rf.r[a] == b.r[a] && t.rf.j[a] > b.j[a]) {
+					best[a] = &t.rf
+				}
 			}
+		}
+		for a, b := range best {
+			res.r[a], res.j[a], res.u[a] = b.r[a], b.j[a], b.u[a]
+			res.uok = res.uok && b.uok
 		}
 		if op == "Concat" || op == "Split" {
 			a := attrInt(n, "axis", 0)
@@ -512,6 +548,96 @@ func (m *Model) rfFor(n *onnxpb.NodeProto, ins []*tinfo, outs []*tinfo) rfInfo {
 		return whole
 	}
 	return rfInfo{why: "receptive field is not tracked through " + op, ax: keepAxes(op, first.rf.ax, first, outRank)}
+}
+
+// padBegin is the padding before the start of spatial axis i: the pads
+// attribute, 0 for VALID, and for SAME_UPPER / SAME_LOWER the split ONNX
+// Operators.md gives (Conv, auto_pad): the total pad makes the output
+// ceil(in / s) long, (ceil(in/s) − 1)·s + (k−1)·d + 1 − in, and "in case the
+// padding is an odd number, the extra padding is added at the end for
+// SAME_UPPER and at the beginning for SAME_LOWER". SAME needs the input
+// size: ok is false when it is unknown. The total is negative when the
+// stride exceeds the kernel extent; ONNX does not say how to split that.
+// ONNX Runtime 1.24.3 starts the windows at pixel 0 for a total of −1 (Conv
+// and MaxPool, both modes, as a total clamped at 0 would), but for −2 and
+// below it starts Conv and MaxPool windows at different pixels (measured
+// with 1×k kernels on a ramp), so ok is false there.
+func (sp *spatial) padBegin(i int, in Dim) (p int64, ok bool) {
+	switch sp.autoPad {
+	case "VALID":
+		return 0, true
+	case "SAME_UPPER", "SAME_LOWER":
+		if !in.Known() {
+			return 0, false
+		}
+		k, s, d := sp.kernel[i], sp.strides[i], sp.dilations[i]
+		out := (in.Size + s - 1) / s
+		total := (out-1)*s + (k-1)*d + 1 - in.Size
+		switch {
+		case total < -1:
+			return 0, false
+		case total < 0:
+			return 0, true
+		}
+		if sp.autoPad == "SAME_UPPER" {
+			return total / 2, true
+		}
+		return total - total/2, true
+	}
+	return sp.pads[i], true
+}
+
+// shiftStart is the start of the receptive field after a layer padding p
+// pixels (of its input, whose jump is j) before the start:
+// u_l = u_(l−1) − p_l·j_(l−1) (Araujo, Norris & Sim, Distill 2019). ok is
+// false when the start was unknown or leaves the tracked range.
+func shiftStart(u, p, j int64, ok bool) (int64, bool) {
+	if !ok || p > maxDim || p < -maxDim || (p != 0 && j > maxDim/max(p, -p)) {
+		return 0, false
+	}
+	v := u - p*j
+	if v > maxDim || v < -maxDim {
+		return 0, false
+	}
+	return v, true
+}
+
+// padOpBegin reads the leading pads of a Pad node per tensor axis (the pads
+// attribute before opset 11, the pads and axes inputs after), when they are
+// constants.
+func padOpBegin(n *onnxpb.NodeProto, ins []*tinfo, rank int) ([]int64, bool) {
+	pads, ok := attrInts(n, "pads")
+	if !ok {
+		if pads, ok = intsOf(input(ins, 1)); !ok {
+			return nil, false
+		}
+	}
+	axes := make([]int, rank)
+	for i := range axes {
+		axes[i] = i
+	}
+	if t := input(ins, 3); t != nil {
+		v, ok := intsOf(t)
+		if !ok {
+			return nil, false
+		}
+		axes = axes[:0]
+		for _, a := range v {
+			ax, ok := normAxis(a, rank)
+			if !ok {
+				return nil, false
+			}
+			axes = append(axes, ax)
+		}
+	}
+	if len(pads) != 2*len(axes) {
+		return nil, false
+	}
+	begin := make([]int64, rank)
+	for i, ax := range axes {
+		begin[ax] = pads[i]
+	}
+	return begin, true
 }
 
 // keepAxes says where the image axes are in the output of op, when the op

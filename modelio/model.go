@@ -131,6 +131,21 @@ type Layer struct {
 	RF, Jump             int    // receptive field (pixels) and cumulative stride w.r.t. the image; 0 = n/a
 	ShapeSource          string // "static" | "observed" | "unknown"
 	Note                 string // why a shape is unknown, etc.
+	// RFY, RFX and JumpY, JumpX are RF and Jump per image axis (height,
+	// width); RF and Jump are the larger of the two. 0 = n/a.
+	RFY, RFX, JumpY, JumpX int
+	// CenterY, CenterX locate the centre of the receptive field of output
+	// cell (0, 0) in input-image pixel coordinates, where the centre of
+	// pixel k (0-indexed from the top or left edge) is at k, so the image
+	// spans −0.5 … size−0.5. The receptive field of cell (0, 0) covers
+	// pixels u … u+RF−1 along an axis, u ≤ 0 counting the padding, and its
+	// centre is u + (RF−1)/2 (may be negative or half-integer); cell (i, j)
+	// is centred at (CenterY + i·JumpY, CenterX + j·JumpX). Valid only when
+	// HasCenter: false when RF is n/a or the padding depends on a size
+	// static inference does not know (auto_pad SAME_* on a symbolic size,
+	// Pad with pads computed at run time). See the package doc.
+	CenterY, CenterX float64
+	HasCenter        bool
 }
 
 // WHD renders the output volume as "64×64×16" (width×height×depth), "?" for

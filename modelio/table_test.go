@@ -106,6 +106,26 @@ func TestVGG16(t *testing.T) {
 	if last.RF != 212 || last.Jump != 32 {
 		t.Errorf("last pool RF %d jump %d, want 212 and 32", last.RF, last.Jump)
 	}
+	// Centre of cell (0, 0) by hand, pixel k centred at k. Every 3×3 conv
+	// pads 1, so it moves the start u back by its input's jump j and adds
+	// 2j to the receptive field: the centre u + (r−1)/2 stays. Each 2×2
+	// stride-2 pool pads nothing, keeps u and adds j to r: the centre moves
+	// by j/2. After the pools (j = 1, 2, 4, 8, 16 before them) the centre
+	// is 0.5, 1.5, 3.5, 7.5, 15.5. By the start recurrence (Araujo, Norris
+	// & Sim, Distill 2019): u = −(2·1 + 2·2 + 3·4 + 3·8 + 3·16) = −90, and
+	// −90 + (212 − 1)/2 = 15.5, the middle of the first 32×32 block
+	// ((32 − 1)/2), as expected of a symmetric network on 224 = 7·32.
+	for k, want := range []float64{0.5, 1.5, 3.5, 7.5, 15.5} {
+		l := layerOf(t, m, pools[k])
+		if !l.HasCenter || l.CenterY != want || l.CenterX != want {
+			t.Errorf("pool %d: centre (%v, %v) known %v, want %v", k+1, l.CenterY, l.CenterX, l.HasCenter, want)
+		}
+	}
+	for k, want := range []float64{0, 0, 0.5, 0.5, 1.5, 1.5, 1.5, 3.5, 3.5, 3.5, 7.5, 7.5, 7.5} {
+		if l := layerOf(t, m, convs[k]); !l.HasCenter || l.CenterY != want || l.CenterX != want {
+			t.Errorf("conv %d: centre (%v, %v), want %v (that of the pool before it)", k+1, l.CenterY, l.CenterX, want)
+		}
+	}
 	if len(m.Notes) == 0 || m.Image == nil || m.Image.Name != "image" {
 		t.Errorf("image %+v notes %q", m.Image, m.Notes)
 	}
@@ -146,6 +166,17 @@ func TestResNet18(t *testing.T) {
 	last := m.Layers[len(m.Layers)-4] // the Relu before global pooling
 	if last.Op != "Relu" || last.RF != 435 || last.Jump != 32 {
 		t.Errorf("last stage %s %s: RF %d jump %d, want 435 and 32", last.Name, last.Op, last.RF, last.Jump)
+	}
+	// Centre of cell (0, 0), by hand: conv1 7×7/2 pad 3 covers pixels
+	// −3..3, centre 0; the 3×3/2 pool pad 1 covers conv1 cells −1..1,
+	// centred at −2, 0, 2: 0. A 3×3 pad-1 conv centres its cell 0 on its
+	// input's cell 0 and a 1×1 pad-0 conv too, whatever the stride, so
+	// every layer, both branches of every Add included, is centred at 0:
+	// u = −(r − 1)/2, −217 at the last stage.
+	for _, l := range m.Layers {
+		if l.RF > 0 && (!l.HasCenter || l.CenterY != 0 || l.CenterX != 0) {
+			t.Errorf("layer %s %s: centre (%v, %v) known %v, want 0", l.Name, l.Op, l.CenterY, l.CenterX, l.HasCenter)
+		}
 	}
 }
 
@@ -200,5 +231,10 @@ func TestNonSquareReceptiveField(t *testing.T) {
 	}
 	if l.Note != "receptive field 7×3 (height×width)" {
 		t.Errorf("note %q", l.Note)
+	}
+	// Per axis, no padding: rows 0..6 (centre 3), columns 0..2 (centre 1).
+	if l.RFY != 7 || l.RFX != 3 || l.JumpY != 2 || l.JumpX != 1 || !l.HasCenter || l.CenterY != 3 || l.CenterX != 1 {
+		t.Errorf("per axis: RF %d×%d jump %d×%d centre (%v, %v) known %v, want 7×3, 2×1, (3, 1)",
+			l.RFY, l.RFX, l.JumpY, l.JumpX, l.CenterY, l.CenterX, l.HasCenter)
 	}
 }

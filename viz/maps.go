@@ -285,20 +285,30 @@ func MapGrid(t infer.Tensor, layout string, o GridOptions) (*image.NRGBA, []Chan
 }
 
 // Geometry says where the activation cells of a layer sit on the input
-// image, per axis: the centre of output cell i is at input pixel
+// image: the centre of output cell (i, j) (row i, column j) is at
 //
-//	Jump·i + Offset
+//	y = OffsetY + JumpY·i,  x = OffsetX + JumpX·j
 //
-// (Araujo, Norris & Sim, "Computing receptive fields of convolutional neural
-// networks", Distill, 2019: the centre is Jump·i + (RF−1)/2 − P, where P is
-// the sum over the layers below of each layer's top/left padding times the
-// product of the strides before it).
-type Geometry struct{ Jump, OffsetY, OffsetX float64 }
+// in input-pixel coordinates where the centre of pixel k (0-indexed from
+// the top or left) is at k, so an image of n pixels spans −0.5 … n−0.5.
+// Exact says the offsets are the layer's own (modelio.Layer.CenterY,
+// CenterX: the start recurrence of Araujo, Norris & Sim, "Computing
+// receptive fields of convolutional neural networks", Distill, 2019, with
+// the layer's actual padding) rather than the estimate [LayerGeometry]
+// falls back to.
+type Geometry struct {
+	JumpY, JumpX     float64
+	OffsetY, OffsetX float64
+	Exact            bool
+}
 
 // LayerGeometry returns the geometry of the layer's cells for an input of
 // inH×inW pixels and a map of outH×outW cells.
 //
-// modelio.Layer gives Jump and RF but not the padding sum P, so the offset is
+// When the layer knows where its cell (0, 0) is (l.HasCenter), the offsets
+// are l.CenterY and l.CenterX and the jumps l.JumpY and l.JumpX: exact,
+// whatever the padding. Otherwise (auto_pad SAME on a size static inference
+// did not know, a Layer made by hand with only RF and Jump) the offset is
 // estimated assuming the padding is spread evenly on both sides of the
 // image, so that the first and last cells' receptive fields overhang the
 // image by the same amount:
@@ -306,21 +316,43 @@ type Geometry struct{ Jump, OffsetY, OffsetX float64 }
 //	Offset = (in − 1 − Jump·(out − 1)) / 2
 //
 // This is exact for "same"-style padding when the strides divide the input,
-// and off by at most Jump/2 pixels otherwise (for example a 7×7 stride-2 pad-3
-// convolution on 224 pixels: true offset 0, estimate 0.5). When the layer
-// has no Jump (0), the map is taken to cover the image evenly:
+// and off by at most Jump/2 pixels otherwise (for example a 7×7 stride-2
+// pad-3 convolution on 224 pixels: true offset 0, estimate 0.5). When the
+// layer has no Jump (0), the map is taken to cover the image evenly:
 // Jump = in/out, the same formula for the offset.
 func LayerGeometry(l modelio.Layer, inH, inW, outH, outW int) Geometry {
-	axis := func(in, out int) (jump, off float64) {
-		jump = float64(l.Jump)
+	jy, jx := layerJumps(l)
+	if l.HasCenter && jy > 0 && jx > 0 {
+		return Geometry{JumpY: float64(jy), JumpX: float64(jx), OffsetY: l.CenterY, OffsetX: l.CenterX, Exact: true}
+	}
+	axis := func(j, in, out int) (jump, off float64) {
+		jump = float64(j)
 		if jump <= 0 {
 			jump = float64(in) / float64(out)
 		}
 		return jump, (float64(in) - 1 - jump*float64(out-1)) / 2
 	}
-	jy, oy := axis(inH, outH)
-	_, ox := axis(inW, outW)
-	return Geometry{Jump: jy, OffsetY: oy, OffsetX: ox}
+	g := Geometry{}
+	g.JumpY, g.OffsetY = axis(jy, inH, outH)
+	g.JumpX, g.OffsetX = axis(jx, inW, outW)
+	return g
+}
+
+// layerJumps returns the layer's jump per axis (height, width): JumpY and
+// JumpX, or Jump for both when the per-axis values are not set.
+func layerJumps(l modelio.Layer) (jy, jx int) {
+	if l.JumpY > 0 && l.JumpX > 0 {
+		return l.JumpY, l.JumpX
+	}
+	return l.Jump, l.Jump
+}
+
+// layerRFs is layerJumps for the receptive field.
+func layerRFs(l modelio.Layer) (ry, rx int) {
+	if l.RFY > 0 && l.RFX > 0 {
+		return l.RFY, l.RFX
+	}
+	return l.RF, l.RF
 }
 
 // sampler evaluates a grid of values, known at increasing centre positions
@@ -413,7 +445,8 @@ func strength(n float64) float64 {
 
 // MapOverlay draws one channel of an activation map over the input image:
 // the map is upsampled bilinearly to image pixels with each cell's value
-// placed at the centre of its receptive field (see [LayerGeometry]), coloured
+// placed at the centre of its receptive field (see [LayerGeometry]: exact
+// when l.HasCenter, as for layers from modelio's table), coloured
 // with [MapColor] over the channel's own range and blended with the image
 // shown in grey:
 //
@@ -447,11 +480,15 @@ func MapOverlay(base image.Image, t infer.Tensor, layout string, channel int, l 
 		return nil, fmt.Errorf("viz: overlay of %q: image size %d×%d is empty or above %d pixels", v.name, inW, inH, MaxPixels)
 	}
 	g := LayerGeometry(l, inH, inW, v.h, v.w)
-	for _, c := range [][2]int{{inH, v.h}, {inW, v.w}} {
-		covered := g.Jump * float64(c[1])
-		if l.Jump > 0 && (float64(c[0]) > 2*covered+float64(l.RF) || 2*float64(c[0]) < covered) {
-			return nil, fmt.Errorf("viz: overlay of %q: the image is %d×%d pixels but %d×%d cells %v pixels apart cover about %.0f: pass the image at the model's input size",
-				v.name, inW, inH, v.w, v.h, l.Jump, covered)
+	jy, jx := layerJumps(l)
+	ry, rx := layerRFs(l)
+	for _, c := range []struct {
+		in, out, jump, rf int
+	}{{inH, v.h, jy, ry}, {inW, v.w, jx, rx}} {
+		covered := float64(c.jump) * float64(c.out)
+		if c.jump > 0 && (float64(c.in) > 2*covered+float64(c.rf) || 2*float64(c.in) < covered) {
+			return nil, fmt.Errorf("viz: overlay of %q: the image is %d×%d pixels but %d×%d cells %d pixels apart cover about %.0f: pass the image at the model's input size",
+				v.name, inW, inH, v.w, v.h, c.jump, covered)
 		}
 	}
 	st, err := v.stats(0, channel)
@@ -460,8 +497,8 @@ func MapOverlay(base image.Image, t infer.Tensor, layout string, channel int, l 
 	}
 	lo, hi := math.Min(0, st.Min), math.Max(0, st.Max)
 	s := &sampler{
-		cy:  centres(v.h, g.Jump, g.OffsetY),
-		cx:  centres(v.w, g.Jump, g.OffsetX),
+		cy:  centres(v.h, g.JumpY, g.OffsetY),
+		cx:  centres(v.w, g.JumpX, g.OffsetX),
 		val: func(i, j int) float64 { return v.at(0, channel, i, j) },
 	}
 	paint := func(a float64) (color.NRGBA, float64) { return MapColor(a, lo, hi), mapWeight(a, lo, hi) }

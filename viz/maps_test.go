@@ -158,8 +158,10 @@ func TestMapGridErrors(t *testing.T) {
 }
 
 func TestLayerGeometry(t *testing.T) {
-	// Centre of output cell i = Jump·i + (RF−1)/2 − P (Araujo, Norris & Sim,
-	// Distill 2019). Estimated offset (in − 1 − Jump·(out − 1))/2:
+	// Centre of output cell i = Jump·i + (RF−1)/2 − P, P the padding before
+	// the start carried to the input (Araujo, Norris & Sim, Distill 2019).
+	// Without the layer's centre the offset is estimated as
+	// (in − 1 − Jump·(out − 1))/2:
 	//  - 3×3 stride-2 convolution without padding on 7 pixels: cells cover
 	//    pixels 2i..2i+2, centre 2i+1 (by the definition of convolution);
 	//    estimate (7 − 1 − 2·2)/2 = 1. Exact.
@@ -167,18 +169,27 @@ func TestLayerGeometry(t *testing.T) {
 	//    centre 2i + 3 − 3 = 2i; estimate (223 − 222)/2 = 0.5 (documented).
 	//  - no Jump: 4 cells on 8 pixels, jump 2, offset (7 − 6)/2 = 0.5, the
 	//    centre of each 2-pixel block.
+	// With the layer's centre (HasCenter) the geometry is the layer's:
+	//  - the same 7×7 stride-2 pad-3 convolution: cell 0 covers pixels
+	//    −3..3, centre 0 (by the definition of convolution), not 0.5.
+	//  - a 7×3 kernel with strides 2×1 and pads 3 and 0: rows −3..3
+	//    (centre 0), columns 0..2 (centre 1), jumps 2 and 1.
 	for _, c := range []struct {
-		l         modelio.Layer
-		in, out   int
-		jump, off float64
+		l                  modelio.Layer
+		in, out            int
+		jy, jx, offY, offX float64
+		exact              bool
 	}{
-		{modelio.Layer{RF: 3, Jump: 2}, 7, 3, 2, 1},
-		{modelio.Layer{RF: 7, Jump: 2}, 224, 112, 2, 0.5},
-		{modelio.Layer{}, 8, 4, 2, 0.5},
+		{modelio.Layer{RF: 3, Jump: 2}, 7, 3, 2, 2, 1, 1, false},
+		{modelio.Layer{RF: 7, Jump: 2}, 224, 112, 2, 2, 0.5, 0.5, false},
+		{modelio.Layer{}, 8, 4, 2, 2, 0.5, 0.5, false},
+		{modelio.Layer{RF: 7, Jump: 2, RFY: 7, RFX: 7, JumpY: 2, JumpX: 2, HasCenter: true}, 224, 112, 2, 2, 0, 0, true},
+		{modelio.Layer{RF: 7, Jump: 2, RFY: 7, RFX: 3, JumpY: 2, JumpX: 1, CenterX: 1, HasCenter: true}, 224, 112, 2, 1, 0, 1, true},
 	} {
 		g := LayerGeometry(c.l, c.in, c.in, c.out, c.out)
-		if g.Jump != c.jump || g.OffsetY != c.off || g.OffsetX != c.off {
-			t.Errorf("%+v in %d out %d: %+v, want jump %v offset %v", c.l, c.in, c.out, g, c.jump, c.off)
+		want := Geometry{JumpY: c.jy, JumpX: c.jx, OffsetY: c.offY, OffsetX: c.offX, Exact: c.exact}
+		if g != want {
+			t.Errorf("%+v in %d out %d: %+v, want %+v", c.l, c.in, c.out, g, want)
 		}
 	}
 }
@@ -222,6 +233,74 @@ func TestMapOverlayAlignment(t *testing.T) {
 	}
 	if base.NRGBAAt(5, 3) != grey {
 		t.Error("MapOverlay changed its input")
+	}
+}
+
+func TestMapOverlayExactOffset(t *testing.T) {
+	// A 3×3 stride-2 pad-1 convolution on an 8×8 image gives 4×4 cells;
+	// cell i covers pixels 2i−1..2i+1, centre 2i (by the definition of
+	// convolution; modelio: u = −1, RF 3, centre −1 + 1 = 0). The even-
+	// padding estimate would put the centres at 2i + 0.5 ((8 − 1 − 2·3)/2).
+	// One cell, (row 1, col 2), is 1, the others 0; by bilinear
+	// interpolation between the exact centres (by hand):
+	//   pixel (x=4, y=2): the cell's centre, value 1
+	//   pixel (x=3, y=2), (5, 2), (4, 1), (4, 3): halfway to a neighbour, 0.5
+	//   pixel (x=5, y=3): 0.25 (¼ of the four corners)
+	//   pixel (x=1, y=2): between cells (1,0) and (1,1), value 0
+	// With the estimate the centres are at 0.5, 2.5, 4.5, 6.5: pixel (4, 2)
+	// is 3/4 of the way from row 0 to row 1 and from column 1 to column 2,
+	// value 0.75·0.75 = 0.5625 instead of 1.
+	data := make([]float32, 16)
+	data[1*4+2] = 1
+	tt := tensor([]int64{1, 1, 4, 4}, data...)
+	grey := color.NRGBA{90, 90, 90, 255}
+	base := image.NewNRGBA(image.Rect(0, 0, 8, 8))
+	fill(base, base.Rect, grey)
+	l := modelio.Layer{RF: 3, Jump: 2, RFY: 3, RFX: 3, JumpY: 2, JumpX: 2, HasCenter: true}
+	out, err := MapOverlay(base, tt, "nchw", 0, l, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	smooth := func(t float64) float64 { return t * t * (3 - 2*t) } // smoothstep, by its definition
+	for _, c := range []struct {
+		x, y int
+		v    float64
+	}{{4, 2, 1}, {3, 2, 0.5}, {5, 2, 0.5}, {4, 1, 0.5}, {4, 3, 0.5}, {5, 3, 0.25}, {1, 2, 0}} {
+		want := blend(grey, Sequential(c.v), smooth(math.Min(1, 2*c.v)))
+		if got := out.NRGBAAt(c.x, c.y); got != want {
+			t.Errorf("pixel (%d,%d): %v, want %v (value %v)", c.x, c.y, got, want, c.v)
+		}
+	}
+	// The same map placed by the estimate differs at the cell's centre.
+	est, err := MapOverlay(base, tt, "nchw", 0, modelio.Layer{RF: 3, Jump: 2}, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if want := blend(grey, Sequential(0.5625), smooth(1)); est.NRGBAAt(4, 2) != want {
+		t.Errorf("estimated placement: pixel (4,2) %v, want %v (value 0.75·0.75)", est.NRGBAAt(4, 2), want)
+	}
+
+	// Per-axis geometry: a 1×3 kernel, strides 2×1, pads 0 on a 4×6 image
+	// gives 2×4 cells centred at rows 0, 2 and columns 1..4. Cell (1, 0)
+	// = 1: full at pixel (x=1, y=2), beyond the last row centre (y=3) and
+	// before the first column centre (x=0); half at (x=1, y=1), halfway
+	// between the rows; 0 at (x=2, y=2), the centre of cell (1, 1): along
+	// x the cells are one pixel apart.
+	tt = tensor([]int64{1, 1, 2, 4}, 0, 0, 0, 0, 1, 0, 0, 0)
+	base = image.NewNRGBA(image.Rect(0, 0, 6, 4))
+	fill(base, base.Rect, grey)
+	l = modelio.Layer{RF: 3, Jump: 2, RFY: 1, RFX: 3, JumpY: 2, JumpX: 1, CenterY: 0, CenterX: 1, HasCenter: true}
+	if out, err = MapOverlay(base, tt, "nchw", 0, l, 1); err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range []struct {
+		x, y int
+		v    float64
+	}{{1, 2, 1}, {1, 3, 1}, {0, 2, 1}, {2, 2, 0}, {1, 1, 0.5}, {3, 2, 0}, {1, 0, 0}} {
+		want := blend(grey, Sequential(c.v), smooth(math.Min(1, 2*c.v)))
+		if got := out.NRGBAAt(c.x, c.y); got != want {
+			t.Errorf("per axis: pixel (%d,%d): %v, want %v (value %v)", c.x, c.y, got, want, c.v)
+		}
 	}
 }
 
