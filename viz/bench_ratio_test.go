@@ -5,7 +5,8 @@ package viz_test
 // plain batched inference with the same activations captured. Each ratio is
 // measured against its bound in the same run, the two interleaved (and
 // their order alternated) so that both see the same load on a shared
-// machine. `make bench` runs them and prints the table.
+// machine; the median over the b.Loop iterations is reported, with the
+// lowest and highest. `make bench` runs them and prints the table.
 //
 // Models: the demo classifier (assets/demo/parts.onnx, or a stand-in of its
 // architecture with random weights when it is absent) and a ResNet-18-sized
@@ -25,6 +26,7 @@ import (
 	"os/exec"
 	"path/filepath"
 	"runtime"
+	"slices"
 	"sync"
 	"testing"
 	"time"
@@ -150,11 +152,38 @@ func benchOpen(b *testing.B, path string) (*modelio.Model, prep.Config) {
 	return m, c
 }
 
-// interleave runs bound and measured alternately, each reps times per
-// b.Loop iteration (reps chosen from one warm run so that a pair takes at
-// least benchMinPair), alternating which goes first, and returns the total
-// time of each and the number of pairs.
-func interleave(b *testing.B, bound, measured func()) (tb, tm time.Duration, pairs int) {
+// pairs is what interleave measured.
+type pairs struct {
+	bound, measured time.Duration // totals
+	n               int           // pairs run
+	ratios          []float64     // measured/bound of each b.Loop iteration
+}
+
+// median returns the median of the per-iteration ratios (inverted when
+// invert, for throughputs) and their range. The median, not the total,
+// because on a shared machine one iteration can fall into a burst of
+// someone else's work.
+func (p pairs) median(invert bool) (med, lo, hi float64) {
+	r := slices.Clone(p.ratios)
+	if invert {
+		for i := range r {
+			r[i] = 1 / r[i]
+		}
+	}
+	slices.Sort(r)
+	k := len(r) / 2
+	med = r[k]
+	if len(r)%2 == 0 {
+		med = (r[k-1] + r[k]) / 2
+	}
+	return med, r[0], r[len(r)-1]
+}
+
+// interleave runs bound and measured alternately, reps times per b.Loop
+// iteration (reps chosen from one warm run so that an iteration takes at
+// least benchMinPair), alternating which goes first so that neither always
+// runs on the other's warm caches, and records each iteration's ratio.
+func interleave(b *testing.B, bound, measured func()) pairs {
 	t0 := time.Now()
 	bound()
 	measured()
@@ -164,20 +193,36 @@ func interleave(b *testing.B, bound, measured func()) (tb, tm time.Duration, pai
 		f()
 		return time.Since(s)
 	}
+	var p pairs
 	b.ReportAllocs()
 	for b.Loop() {
+		var tb, tm time.Duration
 		for range reps {
-			if pairs%2 == 0 {
+			if p.n%2 == 0 {
 				tb += timed(bound)
 				tm += timed(measured)
 			} else {
 				tm += timed(measured)
 				tb += timed(bound)
 			}
-			pairs++
+			p.n++
 		}
+		p.bound += tb
+		p.measured += tm
+		p.ratios = append(p.ratios, float64(tm)/float64(tb))
 	}
-	return tb, tm, pairs
+	return p
+}
+
+// report reports the median ratio under unit, its range over the
+// iterations, and the bound's time per image.
+func (p pairs) report(b *testing.B, unit string, invert bool, images int) {
+	med, lo, hi := p.median(invert)
+	b.ReportMetric(med, unit)
+	b.ReportMetric(lo, "min-ratio")
+	b.ReportMetric(hi, "max-ratio")
+	b.ReportMetric(float64(images), "images")
+	b.ReportMetric(p.bound.Seconds()*1000/float64(p.n*images), "plain-ms/image")
 }
 
 // BenchmarkOcclusionRatio reports occlusion time over the time of plain
@@ -221,10 +266,7 @@ func occlusionRatio(b *testing.B, bc benchCase) {
 			b.Fatal(err)
 		}
 	}
-	tb, tm, pairs := interleave(b, plain, func() { occlude() })
-	b.ReportMetric(float64(tm)/float64(tb), "occlusion/plain")
-	b.ReportMetric(float64(n), "images")
-	b.ReportMetric(tb.Seconds()*1000/float64(pairs*n), "plain-ms/image")
+	interleave(b, plain, func() { occlude() }).report(b, "occlusion/plain", false, n)
 	b.ReportMetric(float64(s.BatchSize()), "batch")
 }
 
@@ -280,9 +322,6 @@ func scanRatio(b *testing.B, bc benchCase) {
 			b.Fatalf("scan read %d images of %d", rep.Images, bc.probes)
 		}
 	}
-	tb, tm, pairs := interleave(b, plain, scan)
-	b.ReportMetric(float64(tb)/float64(tm), "scan/plain")
-	b.ReportMetric(float64(bc.probes), "images")
-	b.ReportMetric(tb.Seconds()*1000/float64(pairs*bc.probes), "plain-ms/image")
+	interleave(b, plain, scan).report(b, "scan/plain", true, bc.probes)
 	b.ReportMetric(float64(s.BatchSize()), "batch")
 }

@@ -134,7 +134,8 @@ func parse(r io.Reader) (results, error) {
 				name = name[:i]
 			}
 		}
-		m := map[string]float64{}
+		iters, _ := strconv.Atoi(f[1])
+		m := map[string]float64{"iterations": float64(iters)}
 		for i := 2; i+1 < len(f); i += 2 {
 			v, err := strconv.ParseFloat(f[i], 64)
 			if err != nil {
@@ -213,7 +214,11 @@ func writeTable(w io.Writer, res results, demoPresent bool) (missing int) {
 			verdict = "met"
 			met++
 		}
-		fmt.Fprintf(&b, "| %s | %s | %.2f | %s %.2f | %s | %s |\n", r.what, r.model, v, op, r.goal, verdict, r.detail(m))
+		ctx := r.detail(m)
+		if lo, ok := m["min-ratio"]; ok && r.unit != "peakRSS/size" {
+			ctx = fmt.Sprintf("median of %.0f; range %.2f–%.2f; %s", m["iterations"], lo, m["max-ratio"], ctx)
+		}
+		fmt.Fprintf(&b, "| %s | %s | %.2f | %s %.2f | %s | %s |\n", r.what, r.model, v, op, r.goal, verdict, ctx)
 	}
 	fmt.Fprintf(&b, "\ngoals met: %d of %d", met, len(rows(demo)))
 	if missing > 0 {
