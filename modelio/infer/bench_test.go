@@ -109,8 +109,8 @@ func benchRun(b *testing.B, s *Session, x []float32, n int) {
 
 // BenchmarkCaptureRatio measures, in one run and interleaved so that both
 // see the same machine load, a plain run and a run returning every
-// activation map on the same batch, and reports their ratio. Issue 5 bounds
-// it at 1.3.
+// activation map (ActivationOutputs) on the same batch of the demo model,
+// and reports their ratio. Issue 5 sets the goal at 1.3 or less.
 func BenchmarkCaptureRatio(b *testing.B) {
 	plain, all, x, n := benchSessions(b)
 	ctx := context.Background()
@@ -122,18 +122,27 @@ func BenchmarkCaptureRatio(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
-	var tp, ta time.Duration
-	for b.Loop() {
+	timed := func(s *Session, r **Result) time.Duration {
 		t0 := time.Now()
-		if rp, err = plain.RunInto(ctx, x, n, rp); err != nil {
+		var err error
+		if *r, err = s.RunInto(ctx, x, n, *r); err != nil {
 			b.Fatal(err)
 		}
-		t1 := time.Now()
-		if ra, err = all.RunInto(ctx, x, n, ra); err != nil {
-			b.Fatal(err)
+		return time.Since(t0)
+	}
+	var tp, ta time.Duration
+	i := 0
+	for b.Loop() {
+		// alternate which goes first, so neither always finds the caches
+		// the other left behind
+		if i%2 == 0 {
+			tp += timed(plain, &rp)
+			ta += timed(all, &ra)
+		} else {
+			ta += timed(all, &ra)
+			tp += timed(plain, &rp)
 		}
-		tp += t1.Sub(t0)
-		ta += time.Since(t1)
+		i++
 	}
 	ratio := float64(ta) / float64(tp)
 	b.ReportMetric(ratio, "capture/plain")

@@ -168,9 +168,6 @@ func NewSession(m *modelio.Model, opt Options) (*Session, error) {
 		// Failures come back as errors; the runtime need not also print
 		// them on standard error.
 		func() error { return so.SetLogSeverityLevel(ort.LoggingLevelFatal) },
-		// Idle worker threads sleep instead of spinning: the process shares
-		// the CPU with a user interface and long gaps separate most runs.
-		func() error { return so.AddSessionConfigEntry("session.intra_op.allow_spinning", "0") },
 		func() error {
 			// The model reaches the runtime as bytes, so it must be told
 			// where the external data files are: the model's own folder
