@@ -199,6 +199,9 @@ func (j *job) describe() {
 		fmt.Fprintf(w, "model:         %s\n", m.Name)
 	}
 	fmt.Fprintf(w, "ONNX Runtime:  %s (%s)\n", core.Library(), infer.Version())
+	for _, n := range m.Notes {
+		fmt.Fprintf(w, "               note: %s\n", n)
+	}
 	cfg, from := j.ws.Prep()
 	if j.set["size"] || j.set["resize"] || j.set["range"] || j.set["mean"] || j.set["std"] || j.set["layout"] || j.set["bgr"] {
 		from = "guessed from the model, changed by flags"

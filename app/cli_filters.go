@@ -21,7 +21,7 @@ Filters whose kernel is all zeros or nearly parallel to another get a frame.`,
 		cell := fs.Int("cell", 0, "`PIXELS` per weight (default: about 48 pixels per tile)")
 		sortNorm := fs.Bool("sort", false, "order tiles by decreasing L2 norm")
 		perFilter := fs.Bool("per-filter", false, "scale each filter by its own largest weight (default: one scale for all)")
-		slice := fs.Int("slice", -1, "input `CHANNEL` to draw; -1 draws 3-channel kernels as RGB")
+		slice := fs.Int("slice", -1, "input `CHANNEL` to draw; -1: 3-channel kernels as RGB, others channel 0")
 		columns := fs.Int("columns", 0, "tiles per row (default: about square)")
 		captions := fs.Bool("captions", false, "write index, norm and flag letters under each tile")
 		asJSON := fs.Bool("json", false, "print each tile's index, norm, place and flags as JSON")
@@ -32,12 +32,18 @@ Filters whose kernel is all zeros or nearly parallel to another get a frame.`,
 			if *out == "-" && *asJSON {
 				return j.usageErr("--out - and --json would both write to stdout")
 			}
-			o := viz.TileOptions{Cell: *cell, PerFilter: *perFilter, SortByNorm: *sortNorm,
-				Slice: *slice, Columns: *columns, Labels: *captions}
 			k, err := j.ws.Kernels(*layer)
 			if err != nil {
 				return j.fail(err)
 			}
+			if *slice < -1 || *slice >= k.C {
+				return j.usageErr("--slice %d: %s has %d input channels (0…%d, or -1)", *slice, k.Node, k.C, k.C-1)
+			}
+			if *slice == -1 && k.C != 1 && k.C != 3 {
+				*slice = 0 // no colour rendering for this many channels: the first one
+			}
+			o := viz.TileOptions{Cell: *cell, PerFilter: *perFilter, SortByNorm: *sortNorm,
+				Slice: *slice, Columns: *columns, Labels: *captions}
 			img, info, err := j.ws.Tiles(*layer, o, nil)
 			if err != nil {
 				return j.fail(err)

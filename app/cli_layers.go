@@ -24,7 +24,9 @@ Totals are in the last row.`,
 		asJSON := fs.Bool("json", false, "print JSON instead of a table")
 		return func(j *job) int {
 			if err := j.ws.ObserveShapes(j.ctx); err != nil {
-				return j.fail(err)
+				// The static table is still worth printing; the unknown
+				// shapes say so in their notes.
+				fmt.Fprintf(j.stderr, "fovea layers: shapes left unknown: %s\n", oneLine(err))
 			}
 			if *asJSON {
 				return j.writeJSON(layersJSON(j.ws.Model))
@@ -43,6 +45,7 @@ type layersDoc struct {
 	Layers []layerDoc `json:"layers"`
 	Total  totalsDoc  `json:"total"`
 	Image  *imageDoc  `json:"image_input,omitempty"`
+	Notes  []string   `json:"notes,omitempty"`
 }
 
 type inputDoc struct {
@@ -52,6 +55,8 @@ type inputDoc struct {
 	// name, if any, is at the same index of Params.
 	Shape  []int64  `json:"shape"`
 	Params []string `json:"symbolic,omitempty"`
+	// Weight: the input only carries weights (an architecture-only model).
+	Weight bool `json:"weight,omitempty"`
 }
 
 type imageDoc struct {
@@ -87,7 +92,7 @@ func layersJSON(m *modelio.Model) layersDoc {
 	d := layersDoc{Model: m.Name, Inputs: []inputDoc{}, Layers: []layerDoc{},
 		Total: totalsDoc{m.Total.Params, m.Total.MACs, m.Total.Bytes}}
 	for _, in := range m.Inputs {
-		id := inputDoc{Name: in.Name, Type: in.ElemType, Shape: in.Shape.Ints()}
+		id := inputDoc{Name: in.Name, Type: in.ElemType, Shape: in.Shape.Ints(), Weight: in.Weight}
 		symbolic := false
 		for _, dim := range in.Shape {
 			id.Params = append(id.Params, dim.Param)
@@ -98,6 +103,7 @@ func layersJSON(m *modelio.Model) layersDoc {
 		}
 		d.Inputs = append(d.Inputs, id)
 	}
+	d.Notes = m.Notes
 	if im := m.Image; im != nil {
 		d.Image = &imageDoc{im.Name, im.Layout, im.Channels, im.Height, im.Width}
 	}
@@ -118,8 +124,16 @@ func writeLayerTable(w io.Writer, m *modelio.Model) {
 		fmt.Fprintf(w, " (made by %s)", p)
 	}
 	fmt.Fprintln(w)
+	weights := 0
 	for _, in := range m.Inputs {
+		if in.Weight {
+			weights++
+			continue
+		}
 		fmt.Fprintf(w, "input %s: %s %s\n", in.Name, in.ElemType, in.Shape)
+	}
+	if weights > 0 {
+		fmt.Fprintf(w, "and %d inputs that only carry weights\n", weights)
 	}
 	fmt.Fprintln(w)
 	t := table{right: []bool{false, false, true, true, true, true, true, true, false}}
@@ -145,6 +159,12 @@ func writeLayerTable(w io.Writer, m *modelio.Model) {
 				fmt.Fprintf(w, "[%d] %s: %s\n", n, l.Name, l.Note)
 			}
 		}
+	}
+	for _, n := range m.Notes {
+		fmt.Fprintf(w, "\nnote: %s", n)
+	}
+	if len(m.Notes) > 0 {
+		fmt.Fprintln(w)
 	}
 	fmt.Fprintln(w, "\nMACs: multiply-accumulates for one image. memory: the output at float32 for one image.")
 	fmt.Fprintln(w, "receptive field and jump in input pixels; - where not defined.")

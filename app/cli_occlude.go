@@ -4,6 +4,7 @@ import (
 	"flag"
 	"fmt"
 	"image"
+	"strconv"
 
 	"fovea/app/core"
 	"fovea/viz"
@@ -47,8 +48,12 @@ The map is evidence about this model on this image, not proof of what it looks a
 			}
 			if *out != "-" {
 				for _, oc := range res.occ {
+					label := oc.Label
+					if label == "" {
+						label = "class " + strconv.Itoa(oc.Target)
+					}
 					fmt.Fprintf(j.stdout, "%s (class %d): probability %.2f%%, largest drop %.4g (%s)\n",
-						oc.Label, oc.Target, 100*oc.Probability, largest(oc.Scores), oc.Unit())
+						label, oc.Target, 100*oc.Probability, largest(oc.Scores), oc.Unit())
 				}
 				fmt.Fprintf(j.stdout, "wrote %s\n", *out)
 			}

@@ -167,7 +167,7 @@ func (w *Workspace) Occlude(ctx context.Context, img image.Image, set viz.Occlus
 		return nil, nil, err
 	}
 	fit, in := tensor(img, c)
-	if len(targets) == 0 {
+	if len(targets) == 0 || set.Score == viz.ScoreLogit {
 		res, err := s.Run(ctx, in, 1)
 		if err != nil {
 			return nil, nil, fmt.Errorf("core: %s: %w", w.Model.Name, err)
@@ -176,7 +176,12 @@ func (w *Workspace) Occlude(ctx context.Context, img image.Image, set viz.Occlus
 		if err != nil {
 			return nil, nil, err
 		}
-		targets = []int{cl.Top[0].Index}
+		if cl.Softmaxed && set.Score == viz.ScoreLogit {
+			return nil, nil, inputf("", "score logit: the output of %s is already a probability distribution, it has no logits; use score probability", w.Model.Name)
+		}
+		if len(targets) == 0 {
+			targets = []int{cl.Top[0].Index}
+		}
 	}
 	if n := w.Classes(); n > 0 {
 		for _, t := range targets {

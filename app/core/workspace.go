@@ -290,8 +290,21 @@ func (w *Workspace) sessionLocked(capture bool) (*infer.Session, error) {
 		opt.Capture = captureNames(w.Model)
 	}
 	if *slot == nil {
+		weights := 0
+		for _, in := range w.Model.Inputs {
+			if in.Weight {
+				weights++
+			}
+		}
+		if weights > 0 {
+			return nil, inputf(w.Model.Name, "%d weight tensors are declared as inputs without data (an architecture-only model): it cannot be run", weights)
+		}
 		s, err := infer.NewSession(w.Model, opt)
 		if err != nil {
+			return nil, inputErr(w.Model.Name, err)
+		}
+		if _, err := s.ImageDims(); err != nil {
+			s.Close()
 			return nil, inputErr(w.Model.Name, err)
 		}
 		*slot = s
