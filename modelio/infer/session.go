@@ -480,7 +480,11 @@ func (s *Session) runChunks(ctx context.Context, input []float32, n int, dst *Re
 			}
 			err = s.learn(feed, raw)
 			if err == nil && res == nil {
-				res = s.result(n, dst)
+				// The shapes are now exact: check again before the
+				// Result for all n images is allocated.
+				if err = s.checkMemory(n); err == nil {
+					res = s.result(n, dst)
+				}
 			}
 			if err == nil {
 				for j, v := range raw {

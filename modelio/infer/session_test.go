@@ -680,3 +680,34 @@ func TestAbsurdDeclaredShapeRefused(t *testing.T) {
 		t.Errorf("got %v, want modelio.ErrLimit naming huge.onnx", err)
 	}
 }
+
+// When static inference cannot size the outputs, the memory check is
+// repeated with the exact sizes after the first chunk, before the Result
+// for all images is allocated: 20000 images whose output (an Einsum, which
+// modelio has no rule for, after a Tile to a million values) is 4 MB each
+// would need 80 GB.
+func TestMemoryCheckAfterFirstChunk(t *testing.T) {
+	g := &onnxpb.GraphProto{
+		Name:        "grow",
+		Input:       []*onnxpb.ValueInfoProto{vi("x", onnxpb.TensorProto_FLOAT, "N", 1)},
+		Initializer: []*onnxpb.TensorProto{i64("reps", 1, 1000000)},
+		Node: []*onnxpb.NodeProto{
+			node("Tile", "tile", []string{"x", "reps"}, []string{"t"}),
+			node("Einsum", "same", []string{"t"}, []string{"y"}, &onnxpb.AttributeProto{Name: "equation", Type: onnxpb.AttributeProto_STRING, S: []byte("ij->ij")}),
+		},
+		Output: []*onnxpb.ValueInfoProto{vi("y", onnxpb.TensorProto_FLOAT, "N", nil)},
+	}
+	s := newSession(t, writeModel(t, "grow.onnx", modelBytes(t, g, 13, nil)), Options{Batch: 2})
+	if avail := availableMemory(); avail <= 0 || avail > 60<<30 {
+		t.Fatalf("test premise: 80 GB must exceed the available memory (%d bytes)", avail)
+	}
+	const n = 20000
+	_, err := s.Run(context.Background(), make([]float32, n), n)
+	var me *MemoryError
+	if !errors.As(err, &me) || me.Need < n*4_000_000 {
+		t.Errorf("got %v, want a MemoryError for at least 80 GB", err)
+	}
+	if r, err := s.Run(context.Background(), []float32{1, 2}, 2); err != nil || !slices.Equal(r.Outputs[0].Shape, []int64{2, 1000000}) {
+		t.Errorf("two images: %v", err)
+	}
+}
