@@ -186,6 +186,7 @@ func BenchmarkOpenRatio(b *testing.B) {
 	b.ReportMetric(med, "open/read")
 	b.ReportMetric(ratios[0], "min-ratio")
 	b.ReportMetric(ratios[len(ratios)-1], "max-ratio")
+	b.ReportMetric(float64(len(ratios)), "pairs")
 	b.ReportMetric(float64(peak-base)/float64(size), "peakRSS/size")
 	b.ReportMetric(tr.Seconds()*1000/float64(i), "read-ms")
 	b.ReportMetric(to.Seconds()*1000/float64(i), "open-ms")

@@ -5,8 +5,8 @@ package viz_test
 // plain batched inference with the same activations captured. Each ratio is
 // measured against its bound in the same run, the two interleaved (and
 // their order alternated) so that both see the same load on a shared
-// machine; the median over the b.Loop iterations is reported, with the
-// lowest and highest. `make bench` runs them and prints the table.
+// machine; the median over the pairs is reported, with the lowest and
+// highest. `make bench` runs them and prints the table.
 //
 // Models: the demo classifier (assets/demo/parts.onnx, or a stand-in of its
 // architecture with random weights when it is absent) and a ResNet-18-sized
@@ -155,14 +155,13 @@ func benchOpen(b *testing.B, path string) (*modelio.Model, prep.Config) {
 // pairs is what interleave measured.
 type pairs struct {
 	bound, measured time.Duration // totals
-	n               int           // pairs run
-	ratios          []float64     // measured/bound of each b.Loop iteration
+	ratios          []float64     // measured/bound of each pair
 }
 
-// median returns the median of the per-iteration ratios (inverted when
-// invert, for throughputs) and their range. The median, not the total,
-// because on a shared machine one iteration can fall into a burst of
-// someone else's work.
+// median returns the median of the pairs' ratios (inverted when invert, for
+// throughputs) and their range. The median, not the ratio of the totals,
+// because on a shared machine a pair can fall into a burst of someone
+// else's work; a pair's two halves run back to back and see the same load.
 func (p pairs) median(invert bool) (med, lo, hi float64) {
 	r := slices.Clone(p.ratios)
 	if invert {
@@ -179,10 +178,10 @@ func (p pairs) median(invert bool) (med, lo, hi float64) {
 	return med, r[0], r[len(r)-1]
 }
 
-// interleave runs bound and measured alternately, reps times per b.Loop
-// iteration (reps chosen from one warm run so that an iteration takes at
+// interleave runs bound and measured alternately, reps pairs per b.Loop
+// iteration (reps chosen from one warm pair so that an iteration takes at
 // least benchMinPair), alternating which goes first so that neither always
-// runs on the other's warm caches, and records each iteration's ratio.
+// runs on the other's warm caches, and records each pair's ratio.
 func interleave(b *testing.B, bound, measured func()) pairs {
 	t0 := time.Now()
 	bound()
@@ -196,33 +195,33 @@ func interleave(b *testing.B, bound, measured func()) pairs {
 	var p pairs
 	b.ReportAllocs()
 	for b.Loop() {
-		var tb, tm time.Duration
 		for range reps {
-			if p.n%2 == 0 {
-				tb += timed(bound)
-				tm += timed(measured)
+			var tb, tm time.Duration
+			if len(p.ratios)%2 == 0 {
+				tb = timed(bound)
+				tm = timed(measured)
 			} else {
-				tm += timed(measured)
-				tb += timed(bound)
+				tm = timed(measured)
+				tb = timed(bound)
 			}
-			p.n++
+			p.bound += tb
+			p.measured += tm
+			p.ratios = append(p.ratios, float64(tm)/float64(tb))
 		}
-		p.bound += tb
-		p.measured += tm
-		p.ratios = append(p.ratios, float64(tm)/float64(tb))
 	}
 	return p
 }
 
-// report reports the median ratio under unit, its range over the
-// iterations, and the bound's time per image.
+// report reports the median ratio under unit, its range over the pairs,
+// their number, and the bound's time per image.
 func (p pairs) report(b *testing.B, unit string, invert bool, images int) {
 	med, lo, hi := p.median(invert)
 	b.ReportMetric(med, unit)
 	b.ReportMetric(lo, "min-ratio")
 	b.ReportMetric(hi, "max-ratio")
+	b.ReportMetric(float64(len(p.ratios)), "pairs")
 	b.ReportMetric(float64(images), "images")
-	b.ReportMetric(p.bound.Seconds()*1000/float64(p.n*images), "plain-ms/image")
+	b.ReportMetric(p.bound.Seconds()*1000/float64(len(p.ratios)*images), "plain-ms/image")
 }
 
 // BenchmarkOcclusionRatio reports occlusion time over the time of plain

@@ -20,6 +20,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"runtime"
 	"strconv"
 	"strings"
 	"time"
@@ -57,7 +58,13 @@ func main() {
 			os.Exit(1)
 		}
 		_, demoErr := os.Stat(demoPath)
-		if missing := writeTable(os.Stdout, res, demoErr == nil); missing > 0 {
+		var load string
+		if la, err := os.ReadFile("/proc/loadavg"); err == nil {
+			if f := strings.Fields(string(la)); len(f) >= 3 {
+				load = strings.Join(f[:3], " ")
+			}
+		}
+		if missing := writeTable(os.Stdout, res, demoErr == nil, load); missing > 0 {
 			os.Exit(1)
 		}
 	default:
@@ -134,8 +141,7 @@ func parse(r io.Reader) (results, error) {
 				name = name[:i]
 			}
 		}
-		iters, _ := strconv.Atoi(f[1])
-		m := map[string]float64{"iterations": float64(iters)}
+		m := map[string]float64{}
 		for i := 2; i+1 < len(f); i += 2 {
 			v, err := strconv.ParseFloat(f[i], 64)
 			if err != nil {
@@ -185,7 +191,10 @@ func rows(demo string) []row {
 }
 
 // writeTable prints the table and returns how many ratios are missing.
-func writeTable(w io.Writer, res results, demoPresent bool) (missing int) {
+//
+// load, when not empty, is the system's load average (/proc/loadavg), which
+// says how much the figures may have been disturbed by other work.
+func writeTable(w io.Writer, res results, demoPresent bool, load string) (missing int) {
 	demo := "demo parts.onnx 64×64 (patch 8, stride 4)"
 	if !demoPresent {
 		demo = "demo stand-in (" + demoPath + " absent; same architecture, random weights) 64×64 (patch 8, stride 4)"
@@ -216,11 +225,14 @@ func writeTable(w io.Writer, res results, demoPresent bool) (missing int) {
 		}
 		ctx := r.detail(m)
 		if lo, ok := m["min-ratio"]; ok && r.unit != "peakRSS/size" {
-			ctx = fmt.Sprintf("median of %.0f; range %.2f–%.2f; %s", m["iterations"], lo, m["max-ratio"], ctx)
+			ctx = fmt.Sprintf("median of %.0f pairs, range %.2f–%.2f; %s", m["pairs"], lo, m["max-ratio"], ctx)
 		}
 		fmt.Fprintf(&b, "| %s | %s | %.2f | %s %.2f | %s | %s |\n", r.what, r.model, v, op, r.goal, verdict, ctx)
 	}
 	fmt.Fprintf(&b, "\ngoals met: %d of %d", met, len(rows(demo)))
+	if load != "" {
+		fmt.Fprintf(&b, "; load average over the last 1, 5, 15 minutes: %s (%d CPUs)", load, runtime.NumCPU())
+	}
 	if missing > 0 {
 		fmt.Fprintf(&b, "; %d ratios missing (see the benchmark output above)", missing)
 	}
