@@ -240,6 +240,36 @@ func mapStats(m []float32) (float32, float64) {
 
 func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
 
+// convFlags are the kernel flags of one Conv with M filters.
+type convFlags struct {
+	m     int
+	flags map[int][]string
+}
+
+// kernelFlags returns KernelFlags of every Conv feeding a scanned layer, by
+// layer index, checking ctx between convolutions. A Conv whose kernels
+// cannot be read is left out (its layer gets no Conv).
+func kernelFlags(ctx context.Context, m *modelio.Model, accs []*layerAcc) map[int]convFlags {
+	out := map[int]convFlags{}
+	for _, a := range accs {
+		if a.conv < 0 {
+			continue
+		}
+		if _, ok := out[a.conv]; ok {
+			continue
+		}
+		if ctx.Err() != nil {
+			return out
+		}
+		k, err := m.Kernels(m.Layers[a.conv].Name)
+		if err != nil {
+			continue
+		}
+		out[a.conv] = convFlags{m: k.M, flags: KernelFlags(k)}
+	}
+	return out
+}
+
 // statJob is a run's result waiting for its statistics.
 type statJob struct {
 	res *infer.Result
@@ -361,6 +391,16 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 		defer close(statsDone)
 		accumulate(ctx2, accs, jobs, results, statErr)
 	}()
+	// The kernel flags depend on the weights only; on large convolutions
+	// the pairwise comparison takes a while, so it runs beside the images.
+	var kernels map[int]convFlags
+	kernelsDone := make(chan struct{})
+	wg.Add(1)
+	go func() {
+		defer wg.Done()
+		defer close(kernelsDone)
+		kernels = kernelFlags(ctx2, m, accs)
+	}()
 
 	rep := &ScanReport{Rare: rare}
 	if progress != nil {
@@ -410,10 +450,12 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 		}
 	}
 	close(jobs)
-	select {
-	case <-statsDone:
-	case <-ctx.Done():
-		return nil, ctx.Err()
+	for _, done := range []chan struct{}{statsDone, kernelsDone} {
+		select {
+		case <-done:
+		case <-ctx.Done():
+			return nil, ctx.Err()
+		}
 	}
 	select {
 	case err := <-statErr:
@@ -429,13 +471,9 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 	for _, a := range accs {
 		l := ScanLayer{Name: a.layer.Name, Output: a.layer.Output}
 		var kflags map[int][]string
-		if a.conv >= 0 {
-			cl := m.Layers[a.conv]
-			k, err := m.Kernels(cl.Name)
-			if err == nil && k.M == len(a.channels) {
-				l.Conv = cl.Name
-				kflags = KernelFlags(k)
-			}
+		if kf, ok := kernels[a.conv]; ok && kf.m == len(a.channels) {
+			l.Conv = m.Layers[a.conv].Name
+			kflags = kf.flags
 		}
 		for i, ch := range a.channels {
 			cs := ChannelScan{Index: i, Fires: float64(ch.fires) / float64(rep.Images), Max: ch.max,
