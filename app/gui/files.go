@@ -362,6 +362,9 @@ func (u *ui) runImage(name, path string, load func() (image.Image, error)) {
 				u.addRecent(prefImages, path)
 			}
 			u.setActivations(acts)
+			if path == "" {
+				u.vOcc.expectDemoTruth(name)
+			}
 		}, nil
 	})
 }
@@ -392,7 +395,7 @@ func (u *ui) setActivations(acts *core.Activations) {
 // folders go to the recent list (the demo's is temporary).
 func (u *ui) setProbeDir(dir string) {
 	u.scanDir = dir
-	if demo, err := core.DemoProbeDir(); err != nil || demo != dir {
+	if dir != u.demoProbes {
 		u.addRecent(prefProbes, dir)
 	}
 	u.vHealth.refresh()

@@ -6,7 +6,10 @@ import (
 	"image"
 	"os"
 	"path/filepath"
+	"strings"
 	"sync"
+	"unicode"
+	"unicode/utf8"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/app"
@@ -52,16 +55,17 @@ type ui struct {
 	perWS  map[*core.Workspace]*sync.WaitGroup
 
 	// What is open.
-	ws      *core.Workspace
-	img     image.Image       // the image as loaded (nil: none)
-	imgName string            // its file name, or the demo image's name
-	imgPath string            // its path ("" for an embedded demo image)
-	acts    *core.Activations // the model's run on img: maps and top-k
-	occ     []*viz.Occlusion  // the last occlusion: predicted class first, then the expected one
-	occPic  *image.NRGBA      // its rendering
-	scan    *viz.ScanReport   // the last dead-filter scan of ws
-	scanDir string            // the probe folder ("" none chosen)
-	layer   string            // output tensor of the layer chosen in the layer panel
+	ws         *core.Workspace
+	img        image.Image       // the image as loaded (nil: none)
+	imgName    string            // its file name, or the demo image's name
+	imgPath    string            // its path ("" for an embedded demo image)
+	acts       *core.Activations // the model's run on img: maps and top-k
+	occ        []*viz.Occlusion  // the last occlusion: predicted class first, then the expected one
+	occPic     *image.NRGBA      // its rendering
+	scan       *viz.ScanReport   // the last dead-filter scan of ws
+	scanDir    string            // the probe folder ("" none chosen)
+	demoProbes string            // the demo's probe folder, once written
+	layer      string            // output tensor of the layer chosen in the layer panel
 	// onImage runs once after the next image was run through the model
 	// (start-up: occlusion when the window opens on that view).
 	onImage func()
@@ -316,7 +320,7 @@ func (u *ui) showHeading() {
 // already name the file and the problem.
 func (u *ui) showError(what string, err error) {
 	u.errShown++
-	msg := widget.NewLabel(wrapText(err.Error(), 72))
+	msg := widget.NewLabel(wrapText(plainError(err), 72))
 	d := dialog.NewCustom(what+" failed", "OK", container.NewBorder(nil, nil, widget.NewIcon(theme.ErrorIcon()), nil, msg), u.win)
 	d.Show()
 }
@@ -332,4 +336,18 @@ func (u *ui) rememberDir(path string) {
 		return
 	}
 	u.prefs.SetString(prefDir, filepath.Dir(path))
+}
+
+// plainError is an error's message without the package prefixes ("core: ",
+// "modelio: ", ...) that help in logs but not in a dialog.
+func plainError(err error) string {
+	msg := err.Error()
+	for _, p := range []string{"core: ", "modelio: ", "infer: ", "prep: ", "viz: "} {
+		msg = strings.ReplaceAll(msg, p, "")
+	}
+	if msg == "" {
+		return msg
+	}
+	r, n := utf8.DecodeRuneInString(msg)
+	return string(unicode.ToUpper(r)) + msg[n:]
 }

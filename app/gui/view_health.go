@@ -64,14 +64,6 @@ func newHealthView(u *ui) *healthView {
 	v.folder = widget.NewLabel("")
 	v.folder.Truncation = fyne.TextTruncateEllipsis
 	choose := widget.NewButtonWithIcon("Folder…", theme.FolderOpenIcon(), u.chooseProbeDir)
-	demoProbes := widget.NewButton("Demo probes", func() {
-		dir, err := core.DemoProbeDir()
-		if err != nil {
-			u.showError("Opening the demo probe images", err)
-			return
-		}
-		u.setProbeDir(dir)
-	})
 	sick := widget.NewButton("Unhealthy demo", func() { u.openDemo(true) })
 	v.rare = widget.NewEntry()
 	v.rare.SetText("1")
@@ -142,7 +134,7 @@ func newHealthView(u *ui) *healthView {
 
 	bar := container.NewVBox(
 		container.NewBorder(nil, nil, widget.NewLabel("Probe images:"), nil, v.folder),
-		container.NewHBox(choose, demoProbes, sick, widget.NewLabel("   Rare below"),
+		container.NewHBox(choose, sick, widget.NewLabel("   Rare below"),
 			container.NewGridWrap(fyne.NewSize(48, v.rare.MinSize().Height), v.rare), widget.NewLabel("%"), v.scanBtn, v.csvBtn))
 	right := container.NewBorder(v.tilesAbout, nil, nil, nil, v.tiles.box)
 	tip := note("Click a column title to sort; choose a row to see its filters.")
@@ -236,6 +228,8 @@ func severity(flags []string) int {
 func (v *healthView) refresh() {
 	u := v.u
 	switch {
+	case u.scanDir != "" && u.scanDir == u.demoProbes:
+		v.folder.SetText("the demo's probe images")
 	case u.scanDir != "":
 		v.folder.SetText(u.scanDir)
 	case u.ws != nil && u.ws.Demo != "":
@@ -335,19 +329,19 @@ func (v *healthView) run() {
 		return
 	}
 	dir := u.scanDir
-	if dir == "" {
-		if ws.Demo == "" {
-			u.showError("Scanning", fmt.Errorf("choose a folder of probe images first"))
-			return
-		}
-		if dir, err = core.DemoProbeDir(); err != nil {
-			u.showError("Opening the demo probe images", err)
-			return
-		}
-		u.setProbeDir(dir)
+	demo := dir == "" || dir == u.demoProbes
+	if demo && ws.Demo == "" {
+		u.showError("Scanning", fmt.Errorf("choose a folder of probe images first"))
+		return
 	}
 	u.showView(viewHealth)
 	v.jobs.launch("Scan", "images", ws, func(ctx context.Context, progress func(int, int)) (result, error) {
+		if demo {
+			var err error
+			if dir, err = core.DemoProbeDir(); err != nil { // written to a temporary folder on first use
+				return nil, err
+			}
+		}
 		files, err := core.ProbeFiles(dir)
 		if err != nil {
 			return nil, err
@@ -357,6 +351,9 @@ func (v *healthView) run() {
 			return nil, err
 		}
 		return func(current bool) {
+			if demo {
+				u.demoProbes, u.scanDir = dir, dir
+			}
 			if current {
 				u.scan = rep
 				v.refresh()

@@ -121,6 +121,24 @@ func (v *occlusionView) modelChanged() {
 	v.imageChanged()
 }
 
+// expectDemoTruth chooses the true class of a demo image as the expected
+// one: demo images are named "NN-<class>.png", spaces written as "-".
+func (v *occlusionView) expectDemoTruth(name string) {
+	ws := v.u.ws
+	if v.u.opts.Expect != "" {
+		return // the command line chose
+	}
+	base := strings.TrimSuffix(name, filepath.Ext(name))
+	if i := strings.IndexByte(base, '-'); i > 0 {
+		base = base[i+1:]
+	}
+	i, err := ws.ClassIndex(strings.ReplaceAll(base, "-", " "))
+	if err != nil || i+1 >= len(v.expect.Options) {
+		return
+	}
+	v.expect.SetSelected(v.expect.Options[i+1])
+}
+
 // imageChanged clears the heatmap: it belonged to another image or model.
 func (v *occlusionView) imageChanged() {
 	u := v.u

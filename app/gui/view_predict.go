@@ -44,7 +44,7 @@ func newPredictView(u *ui) *predictView {
 	v.caption.Wrapping = fyne.TextWrapWord
 	v.rows = container.NewVBox()
 	v.note = hint("")
-	left := container.NewBorder(heading("What the model sees"), v.caption, nil, nil, v.pic.box)
+	left := container.NewBorder(container.NewVBox(heading("What the model sees"), v.caption), nil, nil, nil, v.pic.box)
 	right := container.NewVBox(heading("Most probable classes"), v.rows, v.note, layout.NewSpacer(), container.NewHBox(explain))
 	v.content = container.NewBorder(
 		container.NewHBox(open, v.demo),
