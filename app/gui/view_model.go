@@ -2,6 +2,8 @@ package gui
 
 import (
 	"fmt"
+	"io"
+	"os"
 	"path/filepath"
 	"slices"
 	"strings"
@@ -11,6 +13,7 @@ import (
 	"fyne.io/fyne/v2/theme"
 	"fyne.io/fyne/v2/widget"
 
+	"fovea/app/core"
 	"fovea/modelio"
 	"fovea/modelio/prep"
 )
@@ -39,8 +42,7 @@ type modelView struct {
 	apply    *widget.Button
 
 	labelsFrom *widget.Label
-	labels     *widget.List
-	labelList  []string
+	labels     *widget.Entry
 }
 
 const presetCustom = "custom"
@@ -107,14 +109,14 @@ func newModelView(u *ui) *modelView {
 	v.bg.SetPlaceHolder("#rrggbb (shows through transparency)")
 
 	v.labelsFrom = note("")
-	v.labels = widget.NewList(func() int { return len(v.labelList) },
-		func() fyne.CanvasObject { return widget.NewLabel("label") },
-		func(i widget.ListItemID, o fyne.CanvasObject) { o.(*widget.Label).SetText(v.labelList[i]) })
-	loadLabels := widget.NewButtonWithIcon("Load label file…", theme.FolderOpenIcon(), u.chooseLabels)
+	v.labels = widget.NewMultiLineEntry()
+	v.labels.SetPlaceHolder("one class name per line, class 0 first")
+	loadLabels := widget.NewButtonWithIcon("Load file…", theme.FolderOpenIcon(), u.chooseLabels)
+	useLabels := widget.NewButtonWithIcon("Apply", theme.ConfirmIcon(), v.applyLabels)
 
 	left := container.NewBorder(
 		container.NewVBox(heading("What the file holds"), v.summary, v.notes, widget.NewSeparator(),
-			container.NewBorder(nil, nil, heading("Classes"), loadLabels), v.labelsFrom),
+			container.NewBorder(nil, nil, heading("Class names"), container.NewHBox(useLabels, loadLabels)), v.labelsFrom),
 		nil, nil, nil, v.labels)
 	right := container.NewVScroll(container.NewVBox(
 		heading("How images are prepared"),
@@ -249,17 +251,48 @@ func (v *modelView) refresh() {
 	v.bg.SetText(fmt.Sprintf("#%02x%02x%02x", c.Background.R, c.Background.G, c.Background.B))
 
 	labels, lfrom := ws.Labels()
-	v.labelList = v.labelList[:0]
-	for i, l := range labels {
-		v.labelList = append(v.labelList, fmt.Sprintf("%d   %s", i, l))
+	v.labels.SetText(strings.Join(labels, "\n"))
+	if strings.HasPrefix(lfrom, labelsDir()) {
+		lfrom = "edited here"
 	}
-	if len(labels) == 0 {
-		for i := range ws.Classes() {
-			v.labelList = append(v.labelList, fmt.Sprintf("%d   (no label)", i))
-		}
+	v.labelsFrom.SetText(fmt.Sprintf("From %s; one name per line, class 0 first.", lfrom))
+}
+
+// labelsDir is where labels edited in the window are kept, one file per
+// model (named by the model file's hash), beside the per-model settings.
+func labelsDir() string {
+	dir, err := os.UserConfigDir()
+	if err != nil {
+		return ""
 	}
-	v.labelsFrom.SetText("Labels from: " + lfrom)
-	v.labels.Refresh()
+	return filepath.Join(dir, "fovea", "labels")
+}
+
+// applyLabels puts the edited class names in force: they are written to a
+// label file of the window's own (atomically) and loaded from there, so the
+// model's settings remember them like any label file.
+func (v *modelView) applyLabels() {
+	u := v.u
+	ws := u.ws
+	if ws == nil {
+		return
+	}
+	text := strings.TrimRight(strings.ReplaceAll(v.labels.Text, "\r\n", "\n"), "\n ")
+	dir := labelsDir()
+	if dir == "" || ws.Hash == "" {
+		u.showError("Changing the class names", fmt.Errorf("no folder to keep edited class names in"))
+		return
+	}
+	path := filepath.Join(dir, ws.Hash+".txt")
+	err := os.MkdirAll(dir, 0o755)
+	if err == nil {
+		err = core.WriteFile(path, func(w io.Writer) error { _, err := io.WriteString(w, text+"\n"); return err })
+	}
+	if err != nil {
+		u.showError("Saving the class names", err)
+		return
+	}
+	u.loadLabels(path)
 }
 
 // applyPrep puts the edited preparation in force, remembers it for the
