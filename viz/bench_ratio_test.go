@@ -27,6 +27,8 @@ import (
 	"path/filepath"
 	"runtime"
 	"slices"
+	"strconv"
+	"strings"
 	"sync"
 	"testing"
 	"time"
@@ -156,6 +158,9 @@ func benchOpen(b *testing.B, path string) (*modelio.Model, prep.Config) {
 type pairs struct {
 	bound, measured time.Duration // totals
 	ratios          []float64     // measured/bound of each pair
+	// CPU time of all pairs (processCPU); cpuOK is false when unknown.
+	cpuBound, cpuMeasured time.Duration
+	cpuOK                 bool
 }
 
 // median returns the median of the pairs' ratios (inverted when invert, for
@@ -187,22 +192,27 @@ func interleave(b *testing.B, bound, measured func()) pairs {
 	bound()
 	measured()
 	reps := max(1, int(math.Ceil(float64(benchMinPair)/float64(time.Since(t0)))))
-	timed := func(f func()) time.Duration {
+	var p pairs
+	_, p.cpuOK = processCPU()
+	timed := func(f func(), cpu *time.Duration) time.Duration {
+		c0, _ := processCPU()
 		s := time.Now()
 		f()
-		return time.Since(s)
+		d := time.Since(s)
+		c1, _ := processCPU()
+		*cpu += c1 - c0
+		return d
 	}
-	var p pairs
 	b.ReportAllocs()
 	for b.Loop() {
 		for range reps {
 			var tb, tm time.Duration
 			if len(p.ratios)%2 == 0 {
-				tb = timed(bound)
-				tm = timed(measured)
+				tb = timed(bound, &p.cpuBound)
+				tm = timed(measured, &p.cpuMeasured)
 			} else {
-				tm = timed(measured)
-				tb = timed(bound)
+				tm = timed(measured, &p.cpuMeasured)
+				tb = timed(bound, &p.cpuBound)
 			}
 			p.bound += tb
 			p.measured += tm
@@ -213,12 +223,22 @@ func interleave(b *testing.B, bound, measured func()) pairs {
 }
 
 // report reports the median ratio under unit, its range over the pairs,
-// their number, and the bound's time per image.
+// their number, the bound's time per image, and the same ratio of the CPU
+// time of all pairs together: a cross-check that the load of other programs
+// hardly disturbs (it does not show time lost waiting, which the wall-clock
+// ratio, the goal's measure, does).
 func (p pairs) report(b *testing.B, unit string, invert bool, images int) {
 	med, lo, hi := p.median(invert)
 	b.ReportMetric(med, unit)
 	b.ReportMetric(lo, "min-ratio")
 	b.ReportMetric(hi, "max-ratio")
+	if p.cpuOK && p.cpuBound > 0 && p.cpuMeasured > 0 {
+		r := float64(p.cpuMeasured) / float64(p.cpuBound)
+		if invert {
+			r = 1 / r
+		}
+		b.ReportMetric(r, "cpu-ratio")
+	}
 	b.ReportMetric(float64(len(p.ratios)), "pairs")
 	b.ReportMetric(float64(images), "images")
 	b.ReportMetric(p.bound.Seconds()*1000/float64(len(p.ratios)*images), "plain-ms/image")
@@ -323,4 +343,27 @@ func scanRatio(b *testing.B, bc benchCase) {
 	}
 	interleave(b, plain, scan).report(b, "scan/plain", true, bc.probes)
 	b.ReportMetric(float64(s.BatchSize()), "batch")
+}
+
+// processCPU returns the CPU time (user + system) this process has used,
+// all threads together (ONNX Runtime's included), from /proc/self/stat
+// (proc(5): fields 14 and 15, in ticks of 1/100 s on Linux); ok is false
+// where there is no such file. Unlike the wall-clock time, it hardly grows
+// when other programs compete for the cores.
+func processCPU() (d time.Duration, ok bool) {
+	data, err := os.ReadFile("/proc/self/stat")
+	if err != nil {
+		return 0, false
+	}
+	s := string(data)
+	f := strings.Fields(s[strings.LastIndexByte(s, ')')+1:]) // the name may hold spaces
+	if len(f) < 13 {
+		return 0, false
+	}
+	ut, err1 := strconv.ParseInt(f[11], 10, 64)
+	st, err2 := strconv.ParseInt(f[12], 10, 64)
+	if err1 != nil || err2 != nil {
+		return 0, false
+	}
+	return time.Duration(ut+st) * 10 * time.Millisecond, true
 }

@@ -10,6 +10,8 @@ import (
 	"os"
 	"path/filepath"
 	"slices"
+	"strconv"
+	"strings"
 	"sync"
 	"testing"
 	"time"
@@ -111,10 +113,16 @@ func BenchmarkCaptureRatioResNet18(b *testing.B) {
 	runPlain()
 	runAll()
 	reps := max(1, int(math.Ceil(float64(500*time.Millisecond)/float64(time.Since(t0)))))
-	timed := func(f func()) time.Duration {
+	var cpuPlain, cpuAll time.Duration
+	_, cpuOK := processCPU()
+	timed := func(f func(), cpu *time.Duration) time.Duration {
+		c0, _ := processCPU()
 		s := time.Now()
 		f()
-		return time.Since(s)
+		d := time.Since(s)
+		c1, _ := processCPU()
+		*cpu += c1 - c0
+		return d
 	}
 	var tp time.Duration
 	var ratios []float64
@@ -123,11 +131,11 @@ func BenchmarkCaptureRatioResNet18(b *testing.B) {
 		for range reps {
 			var p, a time.Duration
 			if len(ratios)%2 == 0 {
-				p = timed(runPlain)
-				a = timed(runAll)
+				p = timed(runPlain, &cpuPlain)
+				a = timed(runAll, &cpuAll)
 			} else {
-				a = timed(runAll)
-				p = timed(runPlain)
+				a = timed(runAll, &cpuAll)
+				p = timed(runPlain, &cpuPlain)
 			}
 			tp += p
 			ratios = append(ratios, float64(a)/float64(p))
@@ -147,6 +155,34 @@ func BenchmarkCaptureRatioResNet18(b *testing.B) {
 	b.ReportMetric(float64(n), "batch")
 	b.ReportMetric(float64(len(capture)), "maps")
 	b.ReportMetric(float64(all.BatchSize()), "capture-batch")
+	if cpuOK && cpuPlain > 0 && cpuAll > 0 {
+		// The CPU time of all pairs: a cross-check that other programs'
+		// load hardly disturbs (it does not show time lost waiting).
+		b.ReportMetric(float64(cpuAll)/float64(cpuPlain), "cpu-ratio")
+	}
 	b.ReportMetric(float64(len(ratios)), "pairs")
 	b.ReportMetric(tp.Seconds()*1000/float64(len(ratios)), "plain-ms/run")
+}
+
+// processCPU returns the CPU time (user + system) this process has used,
+// all threads together (ONNX Runtime's included), from /proc/self/stat
+// (proc(5): fields 14 and 15, in ticks of 1/100 s on Linux); ok is false
+// where there is no such file. Unlike the wall-clock time, it hardly grows
+// when other programs compete for the cores.
+func processCPU() (d time.Duration, ok bool) {
+	data, err := os.ReadFile("/proc/self/stat")
+	if err != nil {
+		return 0, false
+	}
+	s := string(data)
+	f := strings.Fields(s[strings.LastIndexByte(s, ')')+1:]) // the name may hold spaces
+	if len(f) < 13 {
+		return 0, false
+	}
+	ut, err1 := strconv.ParseInt(f[11], 10, 64)
+	st, err2 := strconv.ParseInt(f[12], 10, 64)
+	if err1 != nil || err2 != nil {
+		return 0, false
+	}
+	return time.Duration(ut+st) * 10 * time.Millisecond, true
 }

@@ -227,6 +227,9 @@ func writeTable(w io.Writer, res results, demoPresent bool, load string) (missin
 		if lo, ok := m["min-ratio"]; ok && r.unit != "peakRSS/size" {
 			ctx = fmt.Sprintf("median of %.0f pairs, range %.2f–%.2f; %s", m["pairs"], lo, m["max-ratio"], ctx)
 		}
+		if c, ok := m["cpu-ratio"]; ok {
+			ctx = fmt.Sprintf("CPU-time ratio %.2f; %s", c, ctx)
+		}
 		fmt.Fprintf(&b, "| %s | %s | %.2f | %s %.2f | %s | %s |\n", r.what, r.model, v, op, r.goal, verdict, ctx)
 	}
 	fmt.Fprintf(&b, "\ngoals met: %d of %d", met, len(rows(demo)))

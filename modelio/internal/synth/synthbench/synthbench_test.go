@@ -12,7 +12,7 @@ import (
 const benchOutput = `goos: linux
 pkg: fovea/viz
 BenchmarkOcclusionRatio/demo-2         	       3	 755347477 ns/op	        16.00 batch	       226.0 images	         0.9907 occlusion/plain	         0.2398 plain-ms/image	 7223856 B/op	    9156 allocs/op
-BenchmarkOcclusionRatio/resnet18-2         	       3	6333579303 ns/op	         2.000 batch	       170.0 images	         1.180 occlusion/plain	        17.91 plain-ms/image
+BenchmarkOcclusionRatio/resnet18-2         	       3	6333579303 ns/op	         2.000 batch	       170.0 images	         1.180 occlusion/plain	        17.91 plain-ms/image	0.9 cpu-ratio
 BenchmarkScanRatio/demo-2              	       3	 527061312 ns/op	         0.5505 scan/plain	0.51 min-ratio	0.6 max-ratio	12 pairs
 BenchmarkScanRatio/resnet18-2              	       3	 527061312 ns/op	         0.8000 scan/plain
 --- BENCH: BenchmarkCaptureRatio-2
