@@ -1,0 +1,425 @@
+package core
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"image"
+	"math"
+	"os"
+	"path/filepath"
+	"slices"
+	"strings"
+	"sync"
+	"testing"
+	"time"
+
+	"fovea/assets"
+	"fovea/modelio/infer"
+	"fovea/modelio/prep"
+	"fovea/viz"
+)
+
+// These tests run the embedded demo model in the real ONNX Runtime (found
+// as the command line finds it: $FOVEA_ORT_LIB or the user cache, which
+// `make test` fills first) and compare what the workspace returns with the
+// libraries called directly.
+
+func start(t *testing.T) {
+	t.Helper()
+	if err := Start(""); err != nil {
+		t.Fatalf("ONNX Runtime is needed: %v", err)
+	}
+}
+
+func demo(t *testing.T, unhealthy bool) *Workspace {
+	t.Helper()
+	start(t)
+	w, err := OpenDemo(unhealthy)
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { w.Close() })
+	return w
+}
+
+func demoImage(t *testing.T, i int) image.Image {
+	t.Helper()
+	names := DemoImages()
+	if len(names) <= i {
+		t.Fatalf("the demo has %d images", len(names))
+	}
+	img, err := DemoImage(names[i])
+	if err != nil {
+		t.Fatal(err)
+	}
+	return img
+}
+
+func TestStartMissingLibrary(t *testing.T) {
+	err := Start(filepath.Join(t.TempDir(), "libonnxruntime.so.1"))
+	var le *infer.LibraryError
+	if !errors.As(err, &le) {
+		t.Fatalf("Start with a missing file: %v, want *infer.LibraryError", err)
+	}
+	if !IsInput(err) || !strings.Contains(err.Error(), "libonnxruntime.so.1") || !strings.Contains(err.Error(), infer.FetchCommand) {
+		t.Errorf("message %q should name the file and %q", err, infer.FetchCommand)
+	}
+}
+
+func TestDemoSettings(t *testing.T) {
+	w := demo(t, false)
+	c, from := w.Prep()
+	// assets/assets.go: input [batch, 3, 64, 64] NCHW RGB, values 0..1 then
+	// mean/std from the metadata.
+	if c.Width != 64 || c.Height != 64 || c.Channels != 3 || c.Layout != "nchw" || c.BGR || c.Range != "0-1" || from != FromGuess {
+		t.Errorf("demo preprocessing %s (%s), want 64x64 RGB NCHW range 0-1 guessed", c, from)
+	}
+	if c.Mean == ([3]float32{}) || c.Std == ([3]float32{1, 1, 1}) {
+		t.Errorf("demo preprocessing %s ignores the metadata's mean and std", c)
+	}
+	labels, lfrom := w.Labels()
+	if !slices.Equal(labels, assets.Labels()) || lfrom != FromModel {
+		t.Errorf("labels %q from %s, want %q from the metadata", labels, lfrom, assets.Labels())
+	}
+	if w.Classes() != 7 || w.Demo != DemoHealthy {
+		t.Errorf("%d classes, demo %q; want 7, healthy", w.Classes(), w.Demo)
+	}
+}
+
+func TestClassifyMatchesLibrary(t *testing.T) {
+	w := demo(t, false)
+	img := demoImage(t, 0)
+	got, err := w.Classify(t.Context(), img, 7)
+	if err != nil {
+		t.Fatal(err)
+	}
+	c, _ := w.Prep()
+	in := make([]float32, c.Len())
+	c.Tensor(prep.Planes(prep.Fit(img, c)), in)
+	s, err := infer.NewSession(w.Model, infer.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close()
+	res, err := s.Run(t.Context(), in, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, already := infer.Probabilities(res.Scores(0))
+	want := infer.TopK(p, assets.Labels(), 7)
+	if got.Softmaxed != already || !slices.Equal(got.Scores, res.Scores(0)) {
+		t.Errorf("scores %v (softmaxed %v), library %v (%v)", got.Scores, got.Softmaxed, res.Scores(0), already)
+	}
+	if !slices.Equal(got.Top, want) {
+		t.Errorf("top %v, library %v", got.Top, want)
+	}
+	// Probabilities sum to 1 (definition of a distribution; float32 sum).
+	var sum float64
+	for _, v := range got.Probs {
+		sum += float64(v)
+	}
+	if math.Abs(sum-1) > 1e-5 {
+		t.Errorf("probabilities sum to %v", sum)
+	}
+}
+
+func TestActivationsOneRun(t *testing.T) {
+	w := demo(t, false)
+	a, err := w.Activations(t.Context(), demoImage(t, 0))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(a.Layers) == 0 || len(a.Layers) != len(w.Model.ActivationLayers()) {
+		t.Fatalf("%d layers captured, model has %d activation layers", len(a.Layers), len(w.Model.ActivationLayers()))
+	}
+	for _, l := range a.Layers {
+		m, ok := a.Maps[l.Output]
+		if !ok {
+			t.Errorf("no map for %s", l.Name)
+			continue
+		}
+		// The captured shape is the layer table's (static) shape for one image.
+		want := l.Shape.Ints()
+		want[0] = 1
+		if !slices.Equal(m.Shape, want) {
+			t.Errorf("%s: map shape %v, layer table %v", l.Name, m.Shape, want)
+		}
+	}
+	// The same run's classification equals Classify's.
+	cl, err := w.Classify(t.Context(), demoImage(t, 0), 5)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i := range cl.Top {
+		if cl.Top[i].Index != a.Class.Top[i].Index || math.Abs(cl.Top[i].Probability-a.Class.Top[i].Probability) > 1e-6 {
+			t.Errorf("rank %d: Activations %v, Classify %v", i, a.Class.Top[i], cl.Top[i])
+		}
+	}
+	if _, _, err := a.MapLayer("no such layer"); !IsInput(err) {
+		t.Errorf("MapLayer of an unknown name: %v, want an input error", err)
+	}
+}
+
+// Jobs from several goroutines at once, with the settings changed meanwhile:
+// run under the race detector. Each job uses the settings in force when it
+// started.
+func TestConcurrentJobs(t *testing.T) {
+	w := demo(t, false)
+	img := demoImage(t, 1)
+	c, _ := w.Prep()
+	var wg sync.WaitGroup
+	errs := make(chan error, 16)
+	for i := range 3 {
+		wg.Add(3)
+		go func() {
+			defer wg.Done()
+			_, err := w.Classify(t.Context(), img, 3)
+			errs <- err
+		}()
+		go func() {
+			defer wg.Done()
+			_, err := w.Activations(t.Context(), img)
+			errs <- err
+		}()
+		go func() {
+			defer wg.Done()
+			c2 := c
+			c2.Resize = []string{prep.ResizeCrop, prep.ResizeStretch}[i%2]
+			errs <- w.SetPrep(c2)
+			w.Prep()
+			w.Labels()
+		}()
+	}
+	wg.Add(1)
+	go func() {
+		defer wg.Done()
+		_, _, err := w.Occlude(t.Context(), img, viz.OcclusionSettings{Patch: 32, Stride: 32}, nil, nil)
+		errs <- err
+	}()
+	wg.Wait()
+	close(errs)
+	for err := range errs {
+		if err != nil {
+			t.Error(err)
+		}
+	}
+}
+
+func TestOccludeMatchesLibrary(t *testing.T) {
+	w := demo(t, false)
+	img := demoImage(t, 0)
+	set := viz.OcclusionSettings{Patch: 16, Stride: 16, Fill: viz.FillMean, Score: viz.ScoreProbability}
+	var calls, last int
+	got, fit, err := w.Occlude(t.Context(), img, set, []int{2, 5}, func(done, total int) { calls++; last = done - total })
+	if err != nil {
+		t.Fatal(err)
+	}
+	if calls == 0 || last != 0 {
+		t.Errorf("progress called %d times, ending %d short of the total", calls, -last)
+	}
+	c, _ := w.Prep()
+	s, _ := infer.NewSession(w.Model, infer.Options{})
+	defer s.Close()
+	want, err := viz.Occlude(t.Context(), s, c, prep.Fit(img, c), set, []int{2, 5}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if fit.Bounds().Dx() != 64 || len(got) != 2 {
+		t.Fatalf("fit %v, %d results", fit.Bounds(), len(got))
+	}
+	for i := range want {
+		if got[i].Target != want[i].Target || got[i].Label != assets.Labels()[want[i].Target] {
+			t.Errorf("result %d: target %d %q, want %d %q", i, got[i].Target, got[i].Label, want[i].Target, assets.Labels()[want[i].Target])
+		}
+		for y := range want[i].Scores {
+			for x := range want[i].Scores[y] {
+				if math.Abs(got[i].Scores[y][x]-want[i].Scores[y][x]) > 1e-6 {
+					t.Errorf("result %d (%d,%d): %v, library %v", i, y, x, got[i].Scores[y][x], want[i].Scores[y][x])
+				}
+			}
+		}
+	}
+	// Bad settings and classes are input errors, before any run.
+	for _, bad := range []struct {
+		set     viz.OcclusionSettings
+		targets []int
+	}{
+		{viz.OcclusionSettings{Patch: 0, Stride: 4}, nil},
+		{viz.OcclusionSettings{Patch: 65, Stride: 4}, nil},
+		{viz.OcclusionSettings{Patch: 8, Stride: 0}, nil},
+		{viz.OcclusionSettings{Patch: 8, Stride: 4, Fill: "plaid"}, nil},
+		{viz.OcclusionSettings{Patch: 8, Stride: 4}, []int{7}},
+	} {
+		if _, _, err := w.Occlude(t.Context(), img, bad.set, bad.targets, nil); !IsInput(err) {
+			t.Errorf("Occlude(%+v, %v): %v, want an input error", bad.set, bad.targets, err)
+		}
+	}
+}
+
+// A cancelled job returns promptly with the context's error.
+func TestCancel(t *testing.T) {
+	w := demo(t, false)
+	img := demoImage(t, 0)
+	ctx, cancel := context.WithCancel(t.Context())
+	go func() { time.Sleep(20 * time.Millisecond); cancel() }()
+	startAt := time.Now()
+	_, _, err := w.Occlude(ctx, img, viz.OcclusionSettings{Patch: 2, Stride: 1}, []int{0, 1, 2}, nil)
+	if !errors.Is(err, context.Canceled) {
+		t.Fatalf("cancelled occlusion: %v", err)
+	}
+	// Stride 1 over 64×64 is 3969 runs; a job that ignored the context
+	// would take many seconds. 5 s is far above one batch.
+	if d := time.Since(startAt); d > 5*time.Second {
+		t.Errorf("cancellation took %v", d)
+	}
+}
+
+func TestScanUnhealthyMatchesTruth(t *testing.T) {
+	w := demo(t, true)
+	dir, err := DemoProbeDir()
+	if err != nil {
+		t.Fatal(err)
+	}
+	files, err := ProbeFiles(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	r, err := w.Scan(t.Context(), files, viz.ScanOptions{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, _ := assets.Files.ReadFile(assets.UnhealthyTruthFile)
+	var tr struct {
+		DeadTotal int `json:"dead_total"`
+	}
+	if err := json.Unmarshal(b, &tr); err != nil {
+		t.Fatal(err)
+	}
+	if got := r.Count(viz.FlagDead); got != tr.DeadTotal || got == 0 {
+		t.Errorf("%d dead channels, %s says %d (measured with PyTorch)", got, assets.UnhealthyTruthFile, tr.DeadTotal)
+	}
+	// The scan's flags reach the filter tiles of the convolution feeding
+	// each layer.
+	for _, l := range r.Layers {
+		if l.Conv == "" {
+			continue
+		}
+		flags := ScanFlags(r, l.Conv)
+		_, info, err := w.Tiles(l.Conv, viz.TileOptions{Slice: 0}, r)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, ti := range info {
+			for _, f := range flags[ti.Index] {
+				if !slices.Contains(ti.Flags, f) {
+					t.Errorf("%s filter %d: tile flags %v lack the scan's %q", l.Conv, ti.Index, ti.Flags, f)
+				}
+			}
+		}
+	}
+	Cleanup()
+	if _, err := os.Stat(dir); !os.IsNotExist(err) {
+		t.Errorf("Cleanup left %s: %v", dir, err)
+	}
+}
+
+func TestLabelsAndPrepChecks(t *testing.T) {
+	w := demo(t, false)
+	dir := t.TempDir()
+	short := filepath.Join(dir, "three labels ü.txt")
+	os.WriteFile(short, []byte("a\nb\nc\n"), 0o644)
+	err := w.LoadLabels(short)
+	if !IsInput(err) || !strings.Contains(err.Error(), "three labels ü.txt") || !strings.Contains(err.Error(), "3 labels") {
+		t.Errorf("3 labels for 7 classes: %v", err)
+	}
+	good := filepath.Join(dir, "seven.txt")
+	os.WriteFile(good, []byte("0 a\n1 b\n2 c\n3 d\n4 e\n5 f\n6 g\n"), 0o644)
+	if err := w.LoadLabels(good); err != nil {
+		t.Fatal(err)
+	}
+	if l, from := w.Labels(); l[6] != "g" || from != good {
+		t.Errorf("labels %q from %s", l, from)
+	}
+	c, _ := w.Prep()
+	for _, bad := range []func(*prep.Config){
+		func(c *prep.Config) { c.Width = 32 },    // the model fixes 64×64
+		func(c *prep.Config) { c.Channels = 1 },  // and 3 channels
+		func(c *prep.Config) { c.Std[1] = 0 },    // divides
+		func(c *prep.Config) { c.Range = "0-9" }, // unknown
+	} {
+		c2 := c
+		bad(&c2)
+		if err := w.SetPrep(c2); !IsInput(err) {
+			t.Errorf("SetPrep(%s): %v, want an input error", c2, err)
+		}
+	}
+	if got, _ := w.Prep(); got != c {
+		t.Errorf("a refused SetPrep changed the settings to %s", got)
+	}
+}
+
+// Remember writes the settings into the user's config folder, keyed by the
+// model's content; Restore reads them back. Nothing is written beside the
+// model.
+func TestRememberRestore(t *testing.T) {
+	cfgDir := t.TempDir()
+	t.Setenv("XDG_CONFIG_HOME", cfgDir)
+	start(t)
+	modelDir := filepath.Join(t.TempDir(), "models ü")
+	os.Mkdir(modelDir, 0o755)
+	path := filepath.Join(modelDir, "parts copy.onnx")
+	os.WriteFile(path, assets.Model(), 0o644)
+	w, err := OpenModel(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer w.Close()
+	c, _ := w.Prep()
+	c.Resize = prep.ResizeCrop
+	if err := w.SetPrep(c); err != nil {
+		t.Fatal(err)
+	}
+	if err := w.Remember(); err != nil {
+		t.Fatal(err)
+	}
+	if ents, _ := os.ReadDir(modelDir); len(ents) != 1 {
+		t.Errorf("Remember wrote into the model's folder: %d entries", len(ents))
+	}
+	// The demo is the same content: it finds the settings.
+	d := demo(t, false)
+	found, err := d.Restore()
+	if err != nil || !found {
+		t.Fatalf("Restore: %v, %v", found, err)
+	}
+	if got, from := d.Prep(); got != c || from != FromSaved {
+		t.Errorf("restored %s (%s), want %s (saved)", got, from, c)
+	}
+}
+
+func TestReportPage(t *testing.T) {
+	w := demo(t, false)
+	page, err := w.Report(t.Context(), ReportInput{Image: demoImage(t, 0), ImageName: "x.png", Versus: 1,
+		Occlusion: viz.OcclusionSettings{Patch: 16, Stride: 16}, Date: time.Date(2026, 1, 2, 0, 0, 0, 0, time.UTC)}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if page.Bounds().Dx() != viz.ReportWidth || page.Bounds().Dy() != viz.ReportHeight {
+		t.Errorf("page %v", page.Bounds())
+	}
+	if _, err := w.Report(t.Context(), ReportInput{}, nil); !IsInput(err) {
+		t.Errorf("report without an image: %v", err)
+	}
+}
+
+func TestOpenModelErrors(t *testing.T) {
+	dir := t.TempDir()
+	junk := filepath.Join(dir, "junk é.onnx")
+	os.WriteFile(junk, []byte("not a model at all"), 0o644)
+	for _, p := range []string{junk, filepath.Join(dir, "missing.onnx"), dir} {
+		_, err := OpenModel(p)
+		if err == nil || !IsInput(err) || !strings.Contains(err.Error(), filepath.Base(p)) {
+			t.Errorf("OpenModel(%q): %v, want an input error naming it", p, err)
+		}
+	}
+}
