@@ -5,6 +5,10 @@ package main
 
 import (
 	"os"
+
+	// Before Fyne initialises: English messages under LANG=C.UTF-8 instead
+	// of Fyne's locale errors on every run's stderr.
+	_ "fovea/app/core/envlocale"
 )
 
 func main() {
