@@ -12,7 +12,6 @@ import (
 	"os"
 	"os/signal"
 	"strings"
-	"time"
 
 	"fovea/app/core"
 	"fovea/modelio/infer"
@@ -65,7 +64,7 @@ func (cf *common) declare(fs *flag.FlagSet) {
 	fs.StringVar(&cf.labels, "labels", "", "class labels `FILE`: one per line, or a JSON array (default: the model's metadata)")
 	fs.BoolVar(&cf.verbose, "verbose", false, "print the model, library, preprocessing and labels in force to stderr")
 	fs.StringVar(&cf.prep.size, "size", "", "input size `WxH`, e.g. 224x224")
-	fs.StringVar(&cf.prep.resize, "resize", "", "`MODE`: stretch (whole picture) or crop (centre, after scaling the shorter side)")
+	fs.StringVar(&cf.prep.resize, "resize", "", "how the picture reaches the input size, `MODE` stretch (the whole picture) or crop (the centre, after scaling the shorter side)")
 	fs.StringVar(&cf.prep.rng, "range", "", "pixel value `RANGE` before mean/std: 0-1, 0-255 or -1-1")
 	fs.StringVar(&cf.prep.mean, "mean", "", "per-channel mean `R,G,B` subtracted (in the range above)")
 	fs.StringVar(&cf.prep.std, "std", "", "per-channel standard deviation `R,G,B` divided by")
@@ -79,15 +78,20 @@ func (cf *common) declare(fs *flag.FlagSet) {
 	})
 }
 
+// sharedOrder is the order the help text lists the common flags in: the
+// model first, then its preprocessing, then the machinery.
+var sharedOrder = []string{"model", "demo", "labels", "size", "resize", "range", "mean", "std", "bgr", "layout", "ort-lib", "verbose"}
+
 // job is what a command's work gets: the open model and the output streams.
 type job struct {
 	*cli
-	cmd   string
-	ctx   context.Context
-	ws    *core.Workspace
-	fs    *flag.FlagSet
-	set   map[string]bool // flags given on the command line
-	start time.Time
+	cmd string
+	ctx context.Context
+	ws  *core.Workspace
+	fs  *flag.FlagSet
+	set map[string]bool // flags given on the command line
+	// midLine is true while a progress line is drawn without its newline.
+	midLine bool
 }
 
 // run parses the command's flags, loads ONNX Runtime, opens the model,
@@ -119,7 +123,7 @@ func (cmd *command) run(c *cli, args []string) int {
 
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
-	j := &job{cli: c, cmd: cmd.name, ctx: ctx, fs: fs, set: set, start: time.Now()}
+	j := &job{cli: c, cmd: cmd.name, ctx: ctx, fs: fs, set: set}
 	if err := core.Start(cf.ortLib); err != nil {
 		return j.fail(err)
 	}
@@ -222,6 +226,10 @@ func (j *job) describe() {
 
 // fail reports err in one line and returns the exit status for it.
 func (j *job) fail(err error) int {
+	if j.midLine {
+		fmt.Fprintln(j.stderr)
+		j.midLine = false
+	}
 	switch {
 	case errors.Is(err, context.Canceled) && j.ctx != nil && j.ctx.Err() != nil:
 		fmt.Fprintf(j.stderr, "fovea %s: interrupted\n", j.cmd)
@@ -280,6 +288,7 @@ func (j *job) progressFunc(what string) func(done, total int) {
 		}
 		last = pct
 		fmt.Fprintf(j.stderr, "\r%s: %d/%d (%d%%)", what, done, total, pct)
+		j.midLine = done < total
 		if done >= total {
 			fmt.Fprintln(j.stderr)
 		}
@@ -303,12 +312,15 @@ func (cmd *command) usage(w io.Writer, fs *flag.FlagSet, cf *common) {
 	fmt.Fprintf(w, "Usage: fovea %s %s\n\n%s\n", cmd.name, cmd.args, cmd.about)
 	var own, shared []*flag.Flag
 	fs.VisitAll(func(f *flag.Flag) {
-		if cf.names[f.Name] {
-			shared = append(shared, f)
-		} else {
+		if !cf.names[f.Name] {
 			own = append(own, f)
 		}
 	})
+	for _, name := range sharedOrder {
+		if f := fs.Lookup(name); f != nil && cf.names[name] {
+			shared = append(shared, f)
+		}
+	}
 	section := func(title string, flags []*flag.Flag) {
 		if len(flags) == 0 {
 			return
@@ -320,7 +332,7 @@ func (cmd *command) usage(w io.Writer, fs *flag.FlagSet, cf *common) {
 			if value != "" {
 				head += " " + value
 			}
-			if f.DefValue != "" && f.DefValue != "false" && f.DefValue != "0" {
+			if f.DefValue != "" && f.DefValue != "false" && f.DefValue != "0" && f.DefValue != "-1" {
 				text += " (default " + f.DefValue + ")"
 			}
 			if len(head) <= 20 {

@@ -18,7 +18,7 @@ probabilities. When the model's output is not already a probability distribution
 softmax is applied to it.`,
 	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
 		image := fs.String("image", "", "image `FILE` to classify (required)")
-		k := fs.Int("k", 5, "number of classes to list")
+		k := fs.Int("k", 5, "list the `N` most probable classes")
 		asJSON := fs.Bool("json", false, "print JSON instead of text")
 		return func(j *job) int {
 			if *image == "" {

@@ -21,8 +21,8 @@ Filters whose kernel is all zeros or nearly parallel to another get a frame.`,
 		cell := fs.Int("cell", 0, "`PIXELS` per weight (default: about 48 pixels per tile)")
 		sortNorm := fs.Bool("sort", false, "order tiles by decreasing L2 norm")
 		perFilter := fs.Bool("per-filter", false, "scale each filter by its own largest weight (default: one scale for all)")
-		slice := fs.Int("slice", -1, "input `CHANNEL` to draw; -1: 3-channel kernels as RGB, others channel 0")
-		columns := fs.Int("columns", 0, "tiles per row (default: about square)")
+		slice := fs.Int("slice", -1, "input `CHANNEL` to draw (default: 3-channel kernels as RGB, others channel 0)")
+		columns := fs.Int("columns", 0, "`N` tiles per row (default: about square)")
 		captions := fs.Bool("captions", false, "write index, norm and flag letters under each tile")
 		asJSON := fs.Bool("json", false, "print each tile's index, norm, place and flags as JSON")
 		return func(j *job) int {

@@ -20,11 +20,11 @@ channel's map over the image as the model saw it.`,
 		layer := fs.String("layer", "", "activation layer `NAME`, node or output tensor (default: the first)")
 		out := fs.String("out", "", "write the PNG to `FILE` (required; - for stdout)")
 		channel := fs.Int("channel", -1, "draw only this `CHANNEL` over the image instead of the grid")
-		opacity := fs.Float64("opacity", 0.6, "with --channel: weight of the map over the image, 0..1")
+		opacity := fs.Float64("opacity", 0.6, "with --channel: `WEIGHT` of the map over the image, 0..1")
 		zoom := fs.Int("zoom", 0, "`PIXELS` per map cell in the grid (default: about 48 pixels per tile)")
 		scale := fs.Int("scale", 0, "with --channel: enlarge the overlay by this `FACTOR` (default: to about 256 pixels)")
 		perTile := fs.Bool("per-tile", false, "scale each channel to its own range (default: one scale for all)")
-		columns := fs.Int("columns", 0, "tiles per row (default: about square)")
+		columns := fs.Int("columns", 0, "`N` tiles per row (default: about square)")
 		captions := fs.Bool("captions", false, "write the channel index under each tile")
 		asJSON := fs.Bool("json", false, "print each channel's min, max, mean and firing fraction as JSON")
 		return func(j *job) int {

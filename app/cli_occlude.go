@@ -16,8 +16,8 @@ var occludeCommand = &command{
 	summary: "occlusion sensitivity: which parts of the image the score depends on (PNG or JSON)",
 	about: `Hides one square patch of the image at a time and measures how much the score of
 the target class drops (Zeiler & Fergus 2014). The heatmap is drawn over the image
-as the model saw it (after resizing); red: hiding the patch lowered the score,
-blue: it raised it. With --versus the second class's map is drawn beside the first
+as the model saw it (after resizing): orange where hiding the patch lowered the
+score, blue where it raised it. With --versus the second class's map is drawn beside the first
 on the same scale.
 
 The map is evidence about this model on this image, not proof of what it looks at.`,
@@ -75,8 +75,8 @@ func (o *occlusionFlags) declare(fs *flag.FlagSet) {
 	fs.StringVar(&o.versus, "versus", "", "a second `CLASS` to compare with, e.g. the one the image should have been")
 	fs.IntVar(&o.patch, "patch", 0, "side of the hidden square in input `PIXELS` (default: a sixth of the shorter side)")
 	fs.IntVar(&o.stride, "stride", 0, "step between patch positions in `PIXELS` (default: half the patch)")
-	fs.StringVar(&o.fill, "fill", viz.FillGrey, "what hides the patch: `FILL` grey (0.5 before normalisation), mean, blur or zero")
-	fs.StringVar(&o.score, "score", viz.ScoreProbability, "the score compared: `SCORE` probability or logit")
+	fs.StringVar(&o.fill, "fill", viz.FillGrey, "`FILL` of the hidden patch: grey (0.5 on the 0-1 pixel scale, before normalisation), mean, blur or zero")
+	fs.StringVar(&o.score, "score", viz.ScoreProbability, "`SCORE` compared with and without the patch: probability or logit")
 }
 
 // occlusionResult is what occlude and report share.

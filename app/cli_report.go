@@ -24,7 +24,7 @@ evidence about this model on this image, not proof.`,
 		var o occlusionFlags
 		o.declare(fs)
 		out := fs.String("out", "", "write the PNG to `FILE` (required; - for stdout)")
-		k := fs.Int("k", 5, "rows of the top-k table")
+		k := fs.Int("k", 5, "`N` rows in the table of predictions")
 		date := fs.String("date", "", "`YYYY-MM-DD` printed on the page (default: today, or $SOURCE_DATE_EPOCH)")
 		return func(j *job) int {
 			if *out == "" {

@@ -26,7 +26,7 @@ training pipeline can stop a bad run.`,
 		probe := fs.String("probe", "", "folder `DIR` of probe images (default for the demo: its own probe images)")
 		asCSV := fs.Bool("csv", false, "print every channel as CSV")
 		asJSON := fs.Bool("json", false, "print the report as JSON")
-		maxDead := fs.Int("max-dead", -1, "exit with status 3 when more than `N` channels are dead (-1: no limit)")
+		maxDead := fs.Int("max-dead", -1, "exit with status 3 when more than `N` channels are dead (default: no limit)")
 		rare := fs.Float64("rare", viz.DefaultRare, "`FRACTION` of images under which a firing channel is rare")
 		skip := fs.Bool("skip-unreadable", false, "pass over probe files that cannot be read (listed in the report) instead of stopping")
 		all := fs.Bool("all", false, "list every channel in the table, not only flagged ones")
