@@ -19,7 +19,7 @@ type ReportInput struct {
 	// Versus is the class the image should have been, or -1 for none: the
 	// page then shows the predicted class's heatmap alone.
 	Versus    int
-	Occlusion viz.OcclusionSettings
+	Occlusion viz.OcclusionSettings // zero Patch and Stride: DefaultOcclusion
 	// Occlusions already computed for this image with the settings in force
 	// (the window has them): the first is drawn as the prediction's, a
 	// second as Versus's. nil = computed here for the predicted class and
@@ -50,6 +50,17 @@ func (w *Workspace) Report(ctx context.Context, in ReportInput, progress func(do
 	}
 	occ := in.Occlusions
 	if len(occ) == 0 {
+		if in.Occlusion.Patch == 0 && in.Occlusion.Stride == 0 {
+			c := cl.Input.Bounds()
+			fill, score := in.Occlusion.Fill, in.Occlusion.Score
+			in.Occlusion = DefaultOcclusion(c.Dx(), c.Dy())
+			if fill != "" {
+				in.Occlusion.Fill = fill
+			}
+			if score != "" {
+				in.Occlusion.Score = score
+			}
+		}
 		targets := []int{cl.Top[0].Index}
 		if in.Versus >= 0 && in.Versus != targets[0] {
 			targets = append(targets, in.Versus)
