@@ -114,16 +114,18 @@ func newModelView(u *ui) *modelView {
 	loadLabels := widget.NewButtonWithIcon("Load file…", theme.FolderOpenIcon(), u.chooseLabels)
 	useLabels := widget.NewButtonWithIcon("Apply", theme.ConfirmIcon(), v.applyLabels)
 
-	left := container.NewBorder(
-		container.NewVBox(heading("What the file holds"), v.summary, v.notes, widget.NewSeparator(),
-			container.NewBorder(nil, nil, heading("Class names"), container.NewHBox(useLabels, loadLabels)), v.labelsFrom),
-		nil, nil, nil, v.labels)
+	v.labels.SetMinRowsVisible(8)
+	left := container.NewVScroll(container.NewVBox(heading("What the file holds"), v.summary, v.notes))
 	right := container.NewVScroll(container.NewVBox(
 		heading("How images are prepared"),
 		v.prepFrom,
 		prepForm,
 		container.NewHBox(v.apply, undo),
-		hint("Settings are checked against the model's input and remembered for this model file (by its content), with the label file."),
+		hint("Settings are checked against the model's input and remembered for this model file (by its content), with the class names."),
+		widget.NewSeparator(),
+		container.NewBorder(nil, nil, heading("Class names"), container.NewHBox(useLabels, loadLabels)),
+		v.labelsFrom,
+		v.labels,
 	))
 	v.content = container.NewPadded(container.NewGridWithColumns(2, left, right))
 	return v
@@ -206,7 +208,11 @@ func (v *modelView) refresh() {
 		shape := out.Shape.String()
 		if out.Shape == nil {
 			if l, ok := ws.Layer(out.Name); ok && l.Shape != nil {
-				shape = l.Shape.String() + " (not declared; " + l.ShapeSource + ")"
+				how := "inferred"
+				if l.ShapeSource == modelio.SourceObserved {
+					how = "seen in a run"
+				}
+				shape = l.Shape.String() + " (" + how + "; the file does not declare it)"
 			}
 		}
 		add("Output", fmt.Sprintf("%s: %s %s", out.Name, out.ElemType, shape))
