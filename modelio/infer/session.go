@@ -74,7 +74,6 @@ type Session struct {
 	// preallocated outputs that point into the Result.
 	seen     map[int][][]int64
 	perImage []int     // values per image of each returned tensor (0 = not yet known)
-	noBatch  []bool    // tensor j has no batch dimension (then chunks are 1 image)
 	imgShape [][]int64 // per-image shape of each returned tensor
 	single   bool      // outputs do not carry the batch: run one image at a time
 	estBytes int64     // estimated result bytes per image before the first run
@@ -195,7 +194,6 @@ func NewSession(m *modelio.Model, opt Options) (*Session, error) {
 		return nil, runtimeError(file, err)
 	}
 	s.perImage = make([]int, len(s.names))
-	s.noBatch = make([]bool, len(s.names))
 	s.imgShape = make([][]int64, len(s.names))
 	s.estimate()
 	s.batch = s.chooseBatch(opt.Batch)
@@ -551,7 +549,7 @@ func (s *Session) learn(c int, raw []ort.Value) error {
 			img = slices.Clone(sh)
 		}
 		if s.perImage[j] == 0 && s.imgShape[j] == nil {
-			s.perImage[j], s.imgShape[j], s.noBatch[j] = per, img, !batched
+			s.perImage[j], s.imgShape[j] = per, img
 		} else if !slices.Equal(img, s.imgShape[j]) {
 			return fmt.Errorf("infer: %s: %q has per-image shape %v in a chunk of %d but %v before; shapes that change with the batch are not supported", s.file, s.names[j], img, c, s.imgShape[j])
 		}
