@@ -34,14 +34,14 @@ test: deps-test build ort check-format vet unit fuzz
 # /tmp/fovea-bench.txt and prints the table of ratios with their goals. The
 # demo's capture ratio is infer's BenchmarkCaptureRatio, which repeats its
 # short runs for -benchtime 2s; the others interleave the measured operation
-# with its bound for 5 iterations and report the median ratio. About 3
+# with its bound for 10 iterations and report the median ratio. About 4
 # minutes on 2 cores when nobody else is using them.
 bench: deps-test build ort
 	@dir=$$(mktemp -d "$${TMPDIR:-/tmp}/fovea-bench.XXXXXX"); trap 'rm -rf "$$dir"' EXIT; \
 	$(GO) run ./modelio/internal/synth/synthbench models "$$dir"; \
 	status=0; \
 	{ r=0; $(GO) test -p 1 -count 1 -run '^$$' -bench '^BenchmarkCaptureRatio$$' -benchtime 2s ./modelio/infer || r=1; \
-	  FOVEA_BENCH_MODELS="$$dir" $(GO) test -p 1 -count 1 -timeout 30m -run '^$$' -benchtime 5x \
+	  FOVEA_BENCH_MODELS="$$dir" $(GO) test -p 1 -count 1 -timeout 30m -run '^$$' -benchtime 10x \
 	    -bench '^Benchmark(OcclusionRatio|ScanRatio|CaptureRatioResNet18|OpenRatio)$$' ./viz ./modelio/infer ./modelio || r=1; \
 	  exit $$r; } 2>&1 | tee /tmp/fovea-bench.txt || status=$$?; \
 	echo; $(GO) run ./modelio/internal/synth/synthbench table /tmp/fovea-bench.txt || status=1; \
