@@ -10,8 +10,10 @@ export CGO_ENABLED := 1
 
 # Debian packages: a C compiler and the OpenGL/X11 headers Fyne's cgo needs,
 # npm to fetch the ONNX Runtime library, and for the tests the ONNX
-# conformance data.
-RUN_DEBS  := gcc libc6-dev pkg-config libgl1-mesa-dev xorg-dev npm ca-certificates
+# conformance data. An entry `command:package` is satisfied by the command
+# being on the PATH however it got there (Node.js from elsewhere ships its own
+# npm and conflicts with Debian's); a plain `package` must be installed.
+RUN_DEBS  := gcc:gcc libc6-dev pkg-config:pkg-config libgl1-mesa-dev xorg-dev npm:npm ca-certificates
 TEST_DEBS := $(RUN_DEBS) libonnx-testdata
 # Go release named in go.mod; an older or missing go gets it from the Go module proxy.
 GO_WANT   := $(shell sed -n 's/^go \([0-9.]*\)$$/\1/p' go.mod)
@@ -56,7 +58,9 @@ deps-test: go-toolchain
 # install_debs installs the Debian packages of $(1) that are missing, with
 # sudo when not root, and says so; it says one line when nothing is missing.
 define install_debs
-missing=(); for p in $(1); do dpkg-query -W -f='$${Status}' "$$p" 2>/dev/null | grep -q 'ok installed' || missing+=("$$p"); done; \
+missing=(); for e in $(1); do p=$${e#*:}; \
+  if [ "$$e" != "$$p" ]; then command -v "$${e%%:*}" >/dev/null 2>&1 && continue; \
+  else dpkg-query -W -f='$${Status}' "$$p" 2>/dev/null | grep -q 'ok installed' && continue; fi; missing+=("$$p"); done; \
 if [ $${#missing[@]} -eq 0 ]; then echo "system packages: all present ($(words $(1)))"; exit 0; fi; \
 if ! command -v apt-get >/dev/null; then echo "error: missing $${missing[*]} and no apt-get here: install them by hand" >&2; exit 1; fi; \
 sudo=""; if [ "$$(id -u)" != 0 ]; then if command -v sudo >/dev/null; then sudo=sudo; else echo "error: need root or sudo to install: $${missing[*]}" >&2; exit 1; fi; fi; \
