@@ -618,53 +618,61 @@ func TestDemoMatchesReference(t *testing.T) {
 		t.Fatal(err)
 	}
 	for _, p := range []string{standIn, demoModel} {
-		b, err := os.ReadFile(p)
-		if err != nil {
-			t.Fatalf("%v (the demo model is made by assets/make_demo.py)", err)
-		}
-		pb := &onnxpb.ModelProto{}
-		if err := proto.Unmarshal(b, pb); err != nil {
-			t.Fatalf("%s: %v", p, err)
-		}
-		var opset int64
-		for _, o := range pb.GetOpsetImport() {
-			if o.GetDomain() == "" || o.GetDomain() == "ai.onnx" {
-				opset = o.GetVersion()
-			}
-		}
-		g := pb.GetGraph()
-		var capture []string
-		for _, n := range g.GetNode() {
-			capture = append(capture, n.GetOutput()[0])
-		}
-		m, err := modelio.Open(p)
-		if err != nil {
-			t.Fatal(err)
-		}
-		s := newSession(t, m, Options{Capture: capture})
-		dims, err := s.ImageDims()
-		if err != nil {
-			t.Fatal(err)
-		}
-		per := int64(1)
-		for _, d := range dims {
-			per *= d
-		}
-		x := randn(21, 3*int(per), 1)
-		r, err := s.Run(context.Background(), x, 3)
-		if err != nil {
-			t.Fatal(err)
-		}
-		vals := map[string]refconv.Tensor{m.Inputs[0].Name: {Shape: append([]int64{3}, dims...), Data: x}}
-		for name, tt := range r.Maps {
-			vals[name] = refconv.Tensor{Shape: tt.Shape, Data: tt.Data}
-		}
-		n := checkLayers(t, filepath.Base(p), g, opset, vals)
-		if n != len(g.GetNode()) {
-			t.Errorf("%s: the reference checked %d of %d nodes", filepath.Base(p), n, len(g.GetNode()))
-		}
-		t.Logf("%s: %d nodes checked against the reference", filepath.Base(p), n)
+		checkFileAgainstReference(t, p)
 	}
+}
+
+// checkFileAgainstReference opens the model at p, runs 3 pseudo-random
+// images with every node's first output captured, and checks every node
+// against refconv (see checkLayers).
+func checkFileAgainstReference(t *testing.T, p string) {
+	t.Helper()
+	b, err := os.ReadFile(p)
+	if err != nil {
+		t.Fatalf("%v (the demo model is made by assets/make_demo.py)", err)
+	}
+	pb := &onnxpb.ModelProto{}
+	if err := proto.Unmarshal(b, pb); err != nil {
+		t.Fatalf("%s: %v", p, err)
+	}
+	var opset int64
+	for _, o := range pb.GetOpsetImport() {
+		if o.GetDomain() == "" || o.GetDomain() == "ai.onnx" {
+			opset = o.GetVersion()
+		}
+	}
+	g := pb.GetGraph()
+	var capture []string
+	for _, n := range g.GetNode() {
+		capture = append(capture, n.GetOutput()[0])
+	}
+	m, err := modelio.Open(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	s := newSession(t, m, Options{Capture: capture})
+	dims, err := s.ImageDims()
+	if err != nil {
+		t.Fatal(err)
+	}
+	per := int64(1)
+	for _, d := range dims {
+		per *= d
+	}
+	x := randn(21, 3*int(per), 1)
+	r, err := s.Run(context.Background(), x, 3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	vals := map[string]refconv.Tensor{m.Inputs[0].Name: {Shape: append([]int64{3}, dims...), Data: x}}
+	for name, tt := range r.Maps {
+		vals[name] = refconv.Tensor{Shape: tt.Shape, Data: tt.Data}
+	}
+	n := checkLayers(t, filepath.Base(p), g, opset, vals)
+	if n != len(g.GetNode()) {
+		t.Errorf("%s: the reference checked %d of %d nodes", filepath.Base(p), n, len(g.GetNode()))
+	}
+	t.Logf("%s: %d nodes checked against the reference", filepath.Base(p), n)
 }
 
 // Declared shapes are checked before ONNX Runtime sees the model: an input
