@@ -77,9 +77,10 @@ type ChannelScan struct {
 // reluLike are the activation ops the scan looks at: their output is > 0
 // exactly where their input is > 0, so "fires" (any value > 0) means the
 // same for all of them and a channel that never fires passes no signal (or,
-// for the leaky kinds, only the negative slope). Clip is assumed to be the
-// ReLU6 kind (min 0); a Clip with a negative minimum would count values in
-// (min, 0] as not firing, which is what "fires" means anyway.
+// for the leaky kinds, only the negative slope; PRelu with a non-negative
+// slope). Clip is assumed to be the ReLU6 kind (min 0); a Clip with a
+// negative minimum would count values in (min, 0] as not firing, which is
+// what "fires" means anyway. ThresholdedRelu fires above its threshold.
 var reluLike = map[string]bool{
 	"Relu": true, "LeakyRelu": true, "PRelu": true, "Clip": true, "ThresholdedRelu": true,
 	"Elu": true, "Celu": true, "Selu": true, "Gelu": true, "HardSwish": true,
@@ -87,7 +88,9 @@ var reluLike = map[string]bool{
 
 // ScanLayers returns the layers a scan of m looks at: those whose op is
 // ReLU-like (Relu, LeakyRelu, PRelu, Clip, ThresholdedRelu, Elu, Celu, Selu,
-// Gelu, HardSwish), in execution order.
+// Gelu, HardSwish), in execution order. Their channel axis is 1, ONNX's
+// convention for every operator after a Conv; a ReLU after a Gemm has one
+// value per feature, and each feature counts as a channel.
 func ScanLayers(m *modelio.Model) []modelio.Layer {
 	var out []modelio.Layer
 	for _, l := range m.Layers {
@@ -109,9 +112,11 @@ func ScanCapture(m *modelio.Model) []string {
 }
 
 // feedingConv returns the Conv whose output reaches layer i of m through at
-// most a BatchNormalization, or -1. Layers are in execution order; a
-// node's immediate predecessor in that order is taken as its input, and the
-// Conv is accepted only when its output channels match.
+// most a BatchNormalization, or -1. modelio.Layer does not say which
+// tensors a node reads, so a node's immediate predecessor in execution
+// order is taken as its input: right for the Conv [→ BatchNormalization] →
+// ReLU chains exporters write, and the Conv is used only when its number of
+// filters matches the layer's channels (see kernelFlags).
 func feedingConv(m *modelio.Model, i int) int {
 	for j := i - 1; j >= 0 && j >= i-2; j-- {
 		switch m.Layers[j].Op {
@@ -272,12 +277,15 @@ type scanBatch struct {
 // kernels feeding it (KernelFlags) zero_kernel and duplicate.
 //
 // s must capture the activations: create it with
-// infer.Options{Capture: ScanCapture(m)}. Files are decoded by one
-// goroutine while the model runs on the previous batch; at most three
-// batches of images exist at any time, so memory does not depend on the
-// number of files. progress, when not nil, gets the number of files done and
-// the total. A cancelled ctx makes Scan return ctx.Err() promptly, with its
-// goroutine finished.
+// infer.Options{Capture: ScanCapture(m)}. Files are decoded in batches of
+// s.BatchSize() by one goroutine while the model runs on the previous batch
+// and another goroutine gathers the statistics of the batch before; a third
+// compares the Conv kernels meanwhile. At most three batches of images and
+// two of activation maps exist at any time, so memory does not depend on
+// the number of files. progress, when not nil, gets the number of files
+// done and the total. A cancelled ctx makes Scan return ctx.Err() promptly
+// (after the batch in the model, and at most one Conv's kernel comparison),
+// with all its goroutines finished.
 //
 // A file that cannot be loaded stops the scan with an error naming it,
 // unless o.SkipUnreadable is set, in which case it is listed in
