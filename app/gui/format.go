@@ -64,13 +64,13 @@ func percent(p float64) string {
 	return fmt.Sprintf("%.1f %%", 100*p)
 }
 
-// number renders a measured value with four significant digits, values
+// number renders a measured value with three significant digits, values
 // under 0.01 in exponent form, so that table cells stay short.
 func number(v float64) string {
 	if v != 0 && math.Abs(v) < 0.01 {
 		return strconv.FormatFloat(v, 'e', 1, 64)
 	}
-	return strconv.FormatFloat(v, 'g', 4, 64)
+	return strconv.FormatFloat(v, 'g', 3, 64)
 }
 
 // wrapText breaks s into lines of at most width runes, at spaces where it can

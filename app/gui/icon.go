@@ -1,7 +1,12 @@
 package gui
 
-import "fyne.io/fyne/v2"
+import (
+	"fyne.io/fyne/v2"
 
-// appIcon is the window's icon; nil keeps Fyne's own until the project's
-// icon is embedded.
-func appIcon() fyne.Resource { return nil }
+	"fovea/assets"
+)
+
+// appIcon is the window's icon, the project's own drawing (assets/icon.png).
+func appIcon() fyne.Resource {
+	return fyne.NewStaticResource("fovea.png", assets.Icon())
+}

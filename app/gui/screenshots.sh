@@ -49,6 +49,7 @@ for theme in $themes; do
 		extra=()
 		[ "$view" = health ] && [ -n "${FOVEA_PROBE:-}" ] && extra+=(--probe "$FOVEA_PROBE")
 		[ "$view" = occlusion ] && [ -n "${FOVEA_EXPECT:-}" ] && extra+=(--expect "$FOVEA_EXPECT")
+		rm -rf "$home/.config"  # every shot starts from no remembered state
 		"$bin" "${args[@]}" "${extra[@]}" --view "$view" --theme "$theme" >"$home/log" 2>&1 &
 		app=$!
 		sleep "$wait"

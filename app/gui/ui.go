@@ -6,6 +6,7 @@ import (
 	"image"
 	"os"
 	"path/filepath"
+	"runtime"
 	"strings"
 	"sync"
 	"unicode"
@@ -88,7 +89,7 @@ type ui struct {
 	errShown  int // errors shown so far (tests read it)
 }
 
-func run(o Options) int {
+func run(o Options) (status int) {
 	if !validTheme(o.Theme) {
 		fmt.Fprintf(os.Stderr, "fovea: theme %q: use light, dark or leave it out for the system's\n", o.Theme)
 		return 2
@@ -97,6 +98,19 @@ func run(o Options) int {
 		fmt.Fprintf(os.Stderr, "fovea: view %q: use one of %s\n", o.View, viewNames())
 		return 2
 	}
+	if runtime.GOOS == "linux" && os.Getenv("DISPLAY") == "" && os.Getenv("WAYLAND_DISPLAY") == "" {
+		fmt.Fprintln(os.Stderr, "fovea: no display to open the window on (DISPLAY and WAYLAND_DISPLAY are unset); the command-line mode needs none: see `fovea help`")
+		return 1
+	}
+	// The graphics driver panics when the display cannot be opened (a DISPLAY
+	// naming no server): say so instead of a stack trace.
+	defer func() {
+		if r := recover(); r != nil {
+			fmt.Fprintf(os.Stderr, "fovea: cannot open the window: %v\n", r)
+			status = 1
+		}
+	}()
+	quietCLocale()
 	a := app.NewWithID(appID)
 	a.SetIcon(appIcon())
 	w := a.NewWindow("Fovea")
@@ -108,6 +122,23 @@ func run(o Options) int {
 	u.start()
 	w.ShowAndRun()
 	return 0
+}
+
+// quietCLocale sets LANGUAGE=en when the locale names no language ("C",
+// "C.UTF-8", "POSIX"): Fyne reads LANGUAGE first and otherwise logs an error
+// for "C.UTF-8", the locale of scripts and containers.
+func quietCLocale() {
+	if os.Getenv("LANGUAGE") != "" {
+		return
+	}
+	for _, k := range []string{"LC_ALL", "LC_MESSAGES", "LANG"} {
+		if v := os.Getenv(k); v != "" {
+			if base, _, _ := strings.Cut(v, "."); base == "C" || base == "POSIX" {
+				os.Setenv("LANGUAGE", "en")
+			}
+			return
+		}
+	}
 }
 
 // validView reports whether name is one of Views.

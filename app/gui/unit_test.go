@@ -48,7 +48,7 @@ func TestNumberFormats(t *testing.T) {
 	for _, c := range []struct {
 		v    float64
 		want string
-	}{{0, "0"}, {3.6129, "3.613"}, {0.0002637, "2.6e-04"}, {-0.5, "-0.5"}} {
+	}{{0, "0"}, {3.6129, "3.61"}, {0.0234, "0.0234"}, {20.56, "20.6"}, {0.0002637, "2.6e-04"}, {-0.5, "-0.5"}} {
 		if got := number(c.v); got != c.want {
 			t.Errorf("number(%v) = %q, want %q", c.v, got, c.want)
 		}
