@@ -606,8 +606,8 @@ func TestObserveShapes(t *testing.T) {
 	}
 }
 
-// The demo model (assets/demo/parts.onnx, made by assets/make_demo.py) and
-// the stand-in of its architecture: every Conv, Relu, MaxPool, Flatten and
+// The demo models (assets/demo/parts.onnx and its unhealthy twin, made by
+// assets/make_demo.py) and the stand-in of their architecture: every Conv, Relu, MaxPool, Flatten and
 // Gemm output ONNX Runtime returns is reproduced by the direct reference
 // from the runtime's input to that node, to 1e-4 (see
 // TestActivationsMatchReference), on 3 pseudo-random images.
@@ -617,7 +617,7 @@ func TestDemoMatchesReference(t *testing.T) {
 	if err := os.WriteFile(standIn, modelBytes(t, partsLikeCNN(), 13, nil), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	for _, p := range []string{standIn, demoModel} {
+	for _, p := range []string{standIn, demoModel, filepath.Join(filepath.Dir(demoModel), "parts_unhealthy.onnx")} {
 		checkFileAgainstReference(t, p)
 	}
 }
