@@ -10,10 +10,17 @@ import (
 // The bridge: the only methods that job goroutines call, and the only
 // callers of fyne.Do. Each hops onto the UI goroutine and does the least it
 // can there.
+//
+// Each callback also holds u.uiMu. In the window that lock is never
+// contended (every holder runs on the UI goroutine); Fyne's headless test
+// driver, though, runs fyne.Do callbacks on the job's own goroutine, and the
+// tests hold the lock (ui.do) while they tap widgets a running job updates.
 
 // progress moves t's progress bar to done of total.
 func (u *ui) progress(t *task, done, total int) {
 	fyne.Do(func() {
+		u.uiMu.Lock()
+		defer u.uiMu.Unlock()
 		r := t.r
 		if r.cur != t {
 			return
@@ -32,6 +39,8 @@ func (u *ui) progress(t *task, done, total int) {
 // so that when a job's goroutine ends, the window shows its outcome.
 func (u *ui) finish(t *task, res result, err error) {
 	fyne.DoAndWait(func() {
+		u.uiMu.Lock()
+		defer u.uiMu.Unlock()
 		r := t.r
 		current := false
 		switch {

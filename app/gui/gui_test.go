@@ -61,12 +61,21 @@ func openWindowIn(t *testing.T, a fyne.App, o Options) *ui {
 	w := test.NewTempWindow(t, nil)
 	u := newUI(a, w, o)
 	t.Cleanup(func() { u.close(); u.wait() })
-	u.start()
+	u.do(u.start)
 	u.wait()
 	if u.errShown > 0 {
 		t.Fatalf("the window showed an error at start: %s", dialogText(u))
 	}
 	return u
+}
+
+// do runs f as the bridge's callbacks run: under the lock that keeps it
+// from touching widgets while a job's callback does (the headless driver
+// runs those on the job's goroutine).
+func (u *ui) do(f func()) {
+	u.uiMu.Lock()
+	defer u.uiMu.Unlock()
+	f()
 }
 
 // dialogText returns the text of the dialog on top of the window, "" when
@@ -217,10 +226,10 @@ func TestStartsOnDemoAndShowsEveryView(t *testing.T) {
 	if rows, cols := u.layers.table.Length(); rows != len(layers) || cols != len(layerColumns) {
 		t.Fatalf("layer table is %d×%d, want %d×%d", rows, cols, len(layers), len(layerColumns))
 	}
-	shown := labelsIn(u.layers.table)
-	for _, want := range []string{layers[0].Name, layers[0].WHD(), "W × H × D", "RF"} {
-		if !slices.Contains(shown, want) {
-			t.Errorf("layer panel does not show %q (shows %q)", want, shown)
+	shown := test.RenderToMarkup(u.win.Canvas())
+	for _, want := range []string{layers[0].Name, layers[0].WHD(), layers[len(layers)-1].Name, "W × H × D", "RF"} {
+		if !strings.Contains(shown, ">"+want+"<") {
+			t.Errorf("the window does not show %q in the layer panel", want)
 		}
 	}
 
@@ -345,7 +354,7 @@ func TestOcclusionShowsOverlayAndFullProgress(t *testing.T) {
 	u.showView(viewOcclusion)
 	v.patch.SetText("12")
 	v.stride.SetText("8")
-	test.Tap(v.runBtn)
+	u.do(func() { test.Tap(v.runBtn) })
 	u.wait()
 	if v.pic.img.Image == nil || len(u.occ) != 1 || u.errShown > 0 {
 		t.Fatalf("no heatmap after running occlusion (error: %s)", dialogText(u))
@@ -375,7 +384,7 @@ func TestOcclusionShowsOverlayAndFullProgress(t *testing.T) {
 	// Explain a misclassification: choose another class as the expected one.
 	other := u.acts.Class.Top[1]
 	v.expect.SetSelected(other.Label)
-	test.Tap(v.runBtn)
+	u.do(func() { test.Tap(v.runBtn) })
 	u.wait()
 	if len(u.occ) != 2 || u.occ[1].Target != other.Index {
 		t.Fatalf("with %q expected the occlusion ran for %d classes", other.Label, len(u.occ))
@@ -395,7 +404,9 @@ func TestOcclusionShowsOverlayAndFullProgress(t *testing.T) {
 
 	// The one-page picture, saved where the save dialog would have put it.
 	out := filepath.Join(t.TempDir(), "explained.png")
-	v.writeReport(out, core.ReportInput{Image: u.img, ImageName: u.imgName, Versus: other.Index, Occlusion: v.set, Occlusions: u.occ})
+	u.do(func() {
+		v.writeReport(out, core.ReportInput{Image: u.img, ImageName: u.imgName, Versus: other.Index, Occlusion: v.set, Occlusions: u.occ})
+	})
 	u.wait()
 	checkPNG(t, out, viz.ReportWidth, viz.ReportHeight)
 
@@ -403,8 +414,8 @@ func TestOcclusionShowsOverlayAndFullProgress(t *testing.T) {
 	// and leaves the heatmap shown before.
 	v.stride.SetText("1")
 	v.patch.SetText("2")
-	test.Tap(v.runBtn)
-	test.Tap(v.jobs.stop)
+	u.do(func() { test.Tap(v.runBtn) })
+	u.do(func() { test.Tap(v.jobs.stop) })
 	u.wait()
 	if !strings.HasSuffix(v.jobs.note.Text, "stopped") || len(u.occ) != 2 {
 		t.Errorf("after Stop the note says %q and %d heatmaps are kept", v.jobs.note.Text, len(u.occ))
@@ -430,13 +441,14 @@ func checkPNG(t *testing.T, path string, w, h int) {
 // table, in the filter tiles of both views, and in the CSV export.
 func TestScanMarksDeadFiltersOfUnhealthyDemo(t *testing.T) {
 	u := openWindow(t, Options{View: viewHealth})
-	test.Tap(button(t, u, "Unhealthy demo"))
+	sick := button(t, u, "Unhealthy demo")
+	u.do(func() { test.Tap(sick) })
 	u.wait()
 	if u.ws == nil || u.ws.Demo != "unhealthy" {
 		t.Fatalf("the unhealthy demo did not open (error: %s)", dialogText(u))
 	}
 	v := u.vHealth
-	test.Tap(v.scanBtn)
+	u.do(func() { test.Tap(v.scanBtn) })
 	u.wait()
 	if u.scan == nil || u.errShown > 0 {
 		t.Fatalf("no scan (error: %s)", dialogText(u))
@@ -522,7 +534,7 @@ func TestScanMarksDeadFiltersOfUnhealthyDemo(t *testing.T) {
 
 	// The CSV export, written where the save dialog would have put it.
 	out := filepath.Join(t.TempDir(), "scan.csv")
-	v.writeCSV(out)
+	u.do(func() { v.writeCSV(out) })
 	u.wait()
 	f, err := os.Open(out)
 	if err != nil {
@@ -573,7 +585,7 @@ func TestBadFilesShowErrorsAndTheWindowGoesOn(t *testing.T) {
 	dir := t.TempDir()
 	demo := u.ws
 	drop := func(path string) {
-		u.dropped(fyne.NewPos(10, 10), []fyne.URI{storage.NewFileURI(path)})
+		u.do(func() { u.dropped(fyne.NewPos(10, 10), []fyne.URI{storage.NewFileURI(path)}) })
 		u.wait()
 	}
 	cases := []struct{ name, content string }{
@@ -638,13 +650,13 @@ func TestOwnModelSettingsAreRemembered(t *testing.T) {
 	}
 	v := u.vModel
 	v.mean.SetText("0.5, 0.5, 0.5")
-	test.Tap(v.apply)
+	u.do(func() { test.Tap(v.apply) })
 	u.wait()
 	c, from := u.ws.Prep()
 	if c.Mean != [3]float32{0.5, 0.5, 0.5} || from != core.FromChosen || u.errShown > 0 {
 		t.Fatalf("after Apply the mean is %v (%s), errors %d: %s", c.Mean, from, u.errShown, dialogText(u))
 	}
-	u.openModel(path)
+	u.do(func() { u.openModel(path) })
 	u.wait()
 	c, from = u.ws.Prep()
 	if c.Mean != [3]float32{0.5, 0.5, 0.5} || from != core.FromSaved {

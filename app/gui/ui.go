@@ -53,6 +53,7 @@ type ui struct {
 	ctx    context.Context    // cancelled when the window closes
 	cancel context.CancelFunc //
 	jobs   sync.WaitGroup     // running job goroutines
+	uiMu   sync.Mutex         // held by the bridge's callbacks (see bridge.go)
 	perWS  map[*core.Workspace]*sync.WaitGroup
 
 	// What is open.
@@ -274,10 +275,12 @@ func (u *ui) start() {
 	}
 }
 
-// showView selects a view's tab.
+// showView selects a view's tab (and remembers it, also when it was
+// already selected).
 func (u *ui) showView(name string) {
 	if it, ok := u.tabByView[name]; ok {
 		u.tabs.Select(it)
+		u.prefs.SetString(prefView, name)
 	}
 }
 
