@@ -1,0 +1,199 @@
+package viz
+
+import (
+	"math"
+	"math/rand/v2"
+	"slices"
+	"testing"
+	"time"
+
+	"fovea/modelio"
+)
+
+// duplicatesSlow is the obviously correct reference for [Duplicates]: the
+// cosine of every pair of non-zero filters in full, float64.
+func duplicatesSlow(k *modelio.Kernels) []Pair {
+	if checkKernels(k) != nil {
+		return nil
+	}
+	per := k.C * k.KH * k.KW
+	norms := filterNorms(k)
+	zero := zeroFilters(k)
+	var out []Pair
+	for i := range k.M {
+		for j := i + 1; j < k.M; j++ {
+			if zero[i] || zero[j] {
+				continue
+			}
+			dot := 0.0
+			for t := range per {
+				dot += float64(k.W[i*per+t]) * float64(k.W[j*per+t])
+			}
+			if c := dot / (norms[i] * norms[j]); c > DuplicateCosine {
+				out = append(out, Pair{i, j, c})
+			}
+		}
+	}
+	return out
+}
+
+// randomUnit returns a random direction of n values (Gaussian components,
+// normalised: uniform on the sphere, common practice).
+func randomUnit(r *rand.Rand, n int) []float64 {
+	u := make([]float64, n)
+	s := 0.0
+	for i := range u {
+		u[i] = r.NormFloat64()
+		s += u[i] * u[i]
+	}
+	for i := range u {
+		u[i] /= math.Sqrt(s)
+	}
+	return u
+}
+
+// atCosine returns a unit vector whose cosine with the unit vector u is c:
+// c·u + √(1−c²)·w with w a random unit vector orthogonal to u (Gram–Schmidt).
+func atCosine(r *rand.Rand, u []float64, c float64) []float64 {
+	w := randomUnit(r, len(u))
+	d := 0.0
+	for i := range u {
+		d += w[i] * u[i]
+	}
+	s := 0.0
+	for i := range w {
+		w[i] -= d * u[i]
+		s += w[i] * w[i]
+	}
+	out := make([]float64, len(u))
+	for i := range u {
+		out[i] = c*u[i] + math.Sqrt(1-c*c)*w[i]/math.Sqrt(s)
+	}
+	return out
+}
+
+// planted is a pair of filters built at a chosen cosine.
+type planted struct {
+	i, j int
+	cos  float64
+}
+
+// plantedKernels returns m random filters of c×kh×kw (random scales over six
+// decades) with near-duplicates planted at cosines just above and below
+// DuplicateCosine, and under the bound at which Duplicates stops looking
+// (0.9495), a scaled copy, a negated copy and a zero filter, when m allows.
+func plantedKernels(r *rand.Rand, m, c, kh, kw int) (*modelio.Kernels, []planted) {
+	per := c * kh * kw
+	w := make([]float32, m*per)
+	put := func(f int, v []float64, scale float64) {
+		for t := range per {
+			w[f*per+t] = float32(scale * v[t])
+		}
+	}
+	vec := make([][]float64, m)
+	for f := range m {
+		vec[f] = randomUnit(r, per)
+		put(f, vec[f], math.Pow(10, 3*r.Float64()-3))
+	}
+	var plants []planted
+	cosines := []float64{0.95 + 1e-4, 0.95 - 1e-4, 0.95 + 1e-5, 0.95 - 1e-5, 0.9497, 0.9999, 1, -1}
+	for n, cs := range cosines {
+		i, j := 2*n, 2*n+1
+		if j >= m {
+			break
+		}
+		if per == 1 && math.Abs(cs) != 1 {
+			continue // one weight: every cosine is ±1
+		}
+		vec[j] = atCosine(r, vec[i], cs)
+		put(j, vec[j], math.Pow(10, 3*r.Float64()-3))
+		plants = append(plants, planted{i, j, cs})
+	}
+	if z := 2 * len(cosines); z < m {
+		put(z, vec[z], 0)
+	}
+	return &modelio.Kernels{Node: "planted", M: m, C: c, KH: kh, KW: kw, Group: 1, W: w}, plants
+}
+
+func TestDuplicatesMatchesAllPairs(t *testing.T) {
+	// Duplicates against the all-pairs reference, pair for pair and bit for
+	// bit, on random kernels (seeded) with planted near-duplicates. The
+	// planted cosines are exact up to float32 rounding of the weights
+	// (relative 2⁻²⁴ per value, ≪ 1e-5), so the reference itself must find
+	// those planted 1e-5 above 0.95 and miss those 1e-5 below (construction).
+	shapes := []struct{ m, c, kh, kw int }{
+		{1, 3, 3, 3}, {2, 1, 1, 1}, {7, 1, 1, 1}, {20, 1, 1, 5}, {24, 3, 7, 7},
+		{40, 16, 3, 3}, {64, 64, 3, 3}, {33, 7, 1, 1}, {18, 2, 2, 17},
+	}
+	r := rand.New(rand.NewPCG(1, 2))
+	for _, sh := range shapes {
+		for range 3 {
+			k, plants := plantedKernels(r, sh.m, sh.c, sh.kh, sh.kw)
+			want := duplicatesSlow(k)
+			got := Duplicates(k)
+			if !slices.Equal(got, want) {
+				t.Errorf("%d×%d×%d×%d: Duplicates %v, all pairs %v", sh.m, sh.c, sh.kh, sh.kw, got, want)
+			}
+			for _, p := range plants {
+				found := slices.ContainsFunc(want, func(q Pair) bool { return q.I == p.i && q.J == p.j })
+				if p.cos >= DuplicateCosine+1e-5 && !found || p.cos <= DuplicateCosine-1e-5 && found {
+					t.Errorf("%d×%d×%d×%d: pair (%d,%d) planted at cosine %v: found %v", sh.m, sh.c, sh.kh, sh.kw, p.i, p.j, p.cos, found)
+				}
+			}
+		}
+	}
+}
+
+// resnet18Convs are the Conv weight shapes (M, C, kH, kW) of ResNet-18 (He
+// et al. 2016, table 1, with the 1×1 projection shortcuts of torchvision's
+// resnet18): 20 Convs, 11.2 M weights.
+var resnet18Convs = [][4]int{
+	{64, 3, 7, 7},
+	{64, 64, 3, 3}, {64, 64, 3, 3}, {64, 64, 3, 3}, {64, 64, 3, 3},
+	{128, 64, 3, 3}, {128, 128, 3, 3}, {128, 64, 1, 1}, {128, 128, 3, 3}, {128, 128, 3, 3},
+	{256, 128, 3, 3}, {256, 256, 3, 3}, {256, 128, 1, 1}, {256, 256, 3, 3}, {256, 256, 3, 3},
+	{512, 256, 3, 3}, {512, 512, 3, 3}, {512, 256, 1, 1}, {512, 512, 3, 3}, {512, 512, 3, 3},
+}
+
+// BenchmarkDuplicatesSpeedup reports how many times faster Duplicates is than
+// the all-pairs reference over ResNet-18's Convs with random weights (each
+// filter's direction uniform, a few planted near-duplicates per layer), the
+// two interleaved and alternated so both see the same load: "speedup" is the
+// median of slow/fast over the pairs. Random directions are the easy case
+// for the early exit; a trained layer's filters are more alike.
+func BenchmarkDuplicatesSpeedup(b *testing.B) {
+	r := rand.New(rand.NewPCG(3, 4))
+	var ks []*modelio.Kernels
+	for _, s := range resnet18Convs {
+		k, _ := plantedKernels(r, s[0], s[1], s[2], s[3])
+		ks = append(ks, k)
+	}
+	run := func(f func(*modelio.Kernels) []Pair) time.Duration {
+		t0 := time.Now()
+		for _, k := range ks {
+			f(k)
+		}
+		return time.Since(t0)
+	}
+	var ratios []float64
+	var fastTotal time.Duration
+	b.ReportAllocs()
+	for b.Loop() {
+		var slow, fast time.Duration
+		if len(ratios)%2 == 0 {
+			slow, fast = run(duplicatesSlow), run(Duplicates)
+		} else {
+			fast, slow = run(Duplicates), run(duplicatesSlow)
+		}
+		fastTotal += fast
+		ratios = append(ratios, float64(slow)/float64(fast))
+	}
+	slices.Sort(ratios)
+	med := ratios[len(ratios)/2]
+	if len(ratios)%2 == 0 {
+		med = (ratios[len(ratios)/2-1] + med) / 2
+	}
+	b.ReportMetric(med, "speedup")
+	b.ReportMetric(ratios[0], "min-speedup")
+	b.ReportMetric(float64(fastTotal.Milliseconds())/float64(len(ratios)), "fast-ms")
+}
