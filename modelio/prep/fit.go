@@ -102,23 +102,31 @@ func flatten(img image.Image, r image.Rectangle, bg color.NRGBA) *image.NRGBA {
 	}
 	switch src := img.(type) {
 	case *image.NRGBA:
+		// An opaque pixel composites to itself (α = 1: out = c), so each row is
+		// copied whole and only the pixels with α < 255 are composited: an
+		// opaque picture (PNG without alpha, most photos) is a plain copy.
 		for y := range h {
 			s := src.PixOffset(r.Min.X, r.Min.Y+y)
 			d := y * dst.Stride
+			copy(dst.Pix[d:d+4*w], src.Pix[s:s+4*w])
 			for x := range w {
-				p := src.Pix[s+4*x : s+4*x+4 : s+4*x+4]
-				cr, cg, cb, ca := color.NRGBA{p[0], p[1], p[2], p[3]}.RGBA()
-				put(d+4*x, cr, cg, cb, ca)
+				if p := src.Pix[s+4*x : s+4*x+4 : s+4*x+4]; p[3] != 0xff {
+					cr, cg, cb, ca := color.NRGBA{p[0], p[1], p[2], p[3]}.RGBA()
+					put(d+4*x, cr, cg, cb, ca)
+				}
 			}
 		}
 	case *image.RGBA:
+		// As for NRGBA: with α = 255 premultiplied and straight are the same.
 		for y := range h {
 			s := src.PixOffset(r.Min.X, r.Min.Y+y)
 			d := y * dst.Stride
+			copy(dst.Pix[d:d+4*w], src.Pix[s:s+4*w])
 			for x := range w {
-				p := src.Pix[s+4*x : s+4*x+4 : s+4*x+4]
-				cr, cg, cb, ca := color.RGBA{p[0], p[1], p[2], p[3]}.RGBA()
-				put(d+4*x, cr, cg, cb, ca)
+				if p := src.Pix[s+4*x : s+4*x+4 : s+4*x+4]; p[3] != 0xff {
+					cr, cg, cb, ca := color.RGBA{p[0], p[1], p[2], p[3]}.RGBA()
+					put(d+4*x, cr, cg, cb, ca)
+				}
 			}
 		}
 	case *image.YCbCr:

@@ -99,3 +99,78 @@ func (c Config) Batch(imgs []image.Image) ([]float32, []int64, error) {
 	}
 	return out, c.Shape(len(imgs)), nil
 }
+
+// TensorFromImage writes img, already [Fit] to c.Width×c.Height, into dst (len c.Len())
+// in c.Layout: the same values as c.Tensor(Planes(img), dst), bit for bit, without the
+// planes in between. For three channels each output value depends on one 8-bit sample,
+// so the 256 values of each channel are made once by [Config.Tensor] itself and the
+// image is a table look-up; one channel (luminance) is computed per pixel as Tensor does.
+// It panics when c is invalid or a size is wrong, like Tensor.
+func (c Config) TensorFromImage(img *image.NRGBA, dst []float32) {
+	if err := c.Validate(); err != nil {
+		panic(fmt.Sprintf("prep: TensorFromImage with %v", err))
+	}
+	w, h := img.Rect.Dx(), img.Rect.Dy()
+	if w != c.Width || h != c.Height {
+		panic(fmt.Sprintf("prep: TensorFromImage: image is %d×%d, want %d×%d (Fit it first)", w, h, c.Width, c.Height))
+	}
+	if len(dst) != c.Len() {
+		panic(fmt.Sprintf("prep: TensorFromImage: dst has %d values, want %d×%d×%d = %d", len(dst), c.Channels, c.Height, c.Width, c.Len()))
+	}
+	hw := w * h
+	if c.Channels == 1 {
+		// Tensor's arithmetic on the values Planes makes (layouts agree for one channel).
+		rows := c
+		rows.Width, rows.Height = w, 1
+		planes := make([]float32, 3*w)
+		for y := range h {
+			row := img.Pix[y*img.Stride:]
+			for x := range w {
+				planes[x] = float32(row[4*x]) / 255
+				planes[w+x] = float32(row[4*x+1]) / 255
+				planes[2*w+x] = float32(row[4*x+2]) / 255
+			}
+			rows.Tensor(planes, dst[y*w:(y+1)*w])
+		}
+		return
+	}
+	// table[ch*256+v]: channel ch of a pixel whose three samples are all v. Channel ch
+	// reads sample ch, or 2−ch when BGR.
+	tc := c
+	tc.Width, tc.Height, tc.Layout = 256, 1, LayoutNCHW
+	planes := make([]float32, 3*256)
+	for v := range 256 {
+		p := float32(v) / 255
+		planes[v], planes[256+v], planes[512+v] = p, p, p
+	}
+	var table [3 * 256]float32
+	tc.Tensor(planes, table[:])
+	src := [3]int{0, 1, 2}
+	if c.BGR {
+		src = [3]int{2, 1, 0}
+	}
+	t0, t1, t2 := table[0:256], table[256:512], table[512:768]
+	s0, s1, s2 := src[0], src[1], src[2]
+	for y := range h {
+		row := img.Pix[y*img.Stride : y*img.Stride+4*w]
+		if c.Layout == LayoutNHWC {
+			out := dst[y*w*3 : (y+1)*w*3]
+			for x := range w {
+				px := row[4*x : 4*x+4 : 4*x+4]
+				out[3*x] = t0[px[s0]]
+				out[3*x+1] = t1[px[s1]]
+				out[3*x+2] = t2[px[s2]]
+			}
+			continue
+		}
+		o0 := dst[y*w : (y+1)*w]
+		o1 := dst[hw+y*w : hw+(y+1)*w]
+		o2 := dst[2*hw+y*w : 2*hw+(y+1)*w]
+		for x := range w {
+			px := row[4*x : 4*x+4 : 4*x+4]
+			o0[x] = t0[px[s0]]
+			o1[x] = t1[px[s1]]
+			o2[x] = t2[px[s2]]
+		}
+	}
+}
