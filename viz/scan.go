@@ -493,7 +493,7 @@ func decodeProbes(ctx context.Context, files []string, c prep.Config, bs, size i
 				b.err = fmt.Errorf("viz: scan: %w", err)
 				break
 			}
-			c.Tensor(prep.Planes(prep.Fit(img, c)), buf[b.n*size:(b.n+1)*size])
+			c.TensorFromImage(prep.Fit(img, c), buf[b.n*size:(b.n+1)*size])
 			b.n++
 		}
 		b.consumed = next
