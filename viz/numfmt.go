@@ -65,3 +65,25 @@ func stepDecimals(step float64) int {
 	}
 	return d
 }
+
+// formatProbability prints a probability for a caption: three decimals
+// ("0.62", "0.213"), more when three would round a value below 1 up to "1"
+// (0.9995 -> "0.9995", up to six decimals, then "> 0.999999"), and "< 0.001"
+// for values above 0 that three decimals would show as 0 (the report's
+// "<0.1%" threshold). Exactly 0 and 1 print as "0" and "1"; NaN as "?".
+func formatProbability(p float64) string {
+	switch {
+	case math.IsNaN(p):
+		return "?"
+	case p > 0 && p < 0.001:
+		return "< 0.001"
+	case p > 0 && p < 1:
+		for d := 3; d <= 6; d++ {
+			if s := formatFixed(p, d); s != "1" {
+				return s
+			}
+		}
+		return "> 0.999999"
+	}
+	return formatFixed(p, 3)
+}

@@ -147,7 +147,7 @@ func renderOcclusion(base image.Image, occ []*Occlusion, o HeatOptions) (*image.
 			}
 			y := heatMargin + ph + 6
 			DrawText(img, at.X, y, fitText(label, pw, heatLabelStyle), heatLabelStyle)
-			prob := "p = " + formatFixed(r.Probability, 3)
+			prob := "p = " + formatProbability(r.Probability)
 			if r.Score == ScoreLogit {
 				prob += ", logit " + fmtG(r.Base)
 			}
