@@ -147,7 +147,11 @@ func renderOcclusion(base image.Image, occ []*Occlusion, o HeatOptions) (*image.
 			}
 			y := heatMargin + ph + 6
 			DrawText(img, at.X, y, fitText(label, pw, heatLabelStyle), heatLabelStyle)
-			prob := "p = " + formatProbability(r.Probability)
+			ps := formatProbability(r.Probability)
+			prob := "p = " + ps
+			if ps[0] == '<' || ps[0] == '>' {
+				prob = "p " + ps // "p < 0.001", not "p = < 0.001"
+			}
 			if r.Score == ScoreLogit {
 				prob += ", logit " + fmtG(r.Base)
 			}
