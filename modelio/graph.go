@@ -250,7 +250,12 @@ func (g *graph) findWeightInputs() {
 }
 
 // constTensor returns the initializer or Constant-node tensor named name,
-// following Identity nodes (exporters put them on shared weights).
+// following Identity nodes (exporters put them on shared weights) and
+// Casts to float32 or float64 (models stored in float16 or bfloat16 to
+// halve their size cast each weight to float at run time). Callers read
+// the result as float32 (Model.floats converts from the stored type), which
+// is what such a Cast computes; a Cast to a narrower type would round, so it
+// is not followed.
 func (g *graph) constTensor(name string) *onnxpb.TensorProto {
 	for range 16 {
 		if t, ok := g.inits[name]; ok {
@@ -260,7 +265,16 @@ func (g *graph) constTensor(name string) *onnxpb.TensorProto {
 			return t
 		}
 		p, ok := g.producer[name]
-		if !ok || g.nodes[p].GetOpType() != "Identity" || g.nodes[p].GetDomain() != "" || len(g.nodes[p].GetInput()) != 1 {
+		if !ok || g.nodes[p].GetDomain() != "" || len(g.nodes[p].GetInput()) != 1 {
+			return nil
+		}
+		switch n := g.nodes[p]; n.GetOpType() {
+		case "Identity":
+		case "Cast":
+			if to := attrInt(n, "to", 0); to != 1 && to != 11 { // FLOAT, DOUBLE
+				return nil
+			}
+		default:
 			return nil
 		}
 		name = g.nodes[p].GetInput()[0]
