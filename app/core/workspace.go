@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"path/filepath"
 	"slices"
+	"strings"
 	"sync"
 
 	"fovea/modelio"
@@ -298,6 +299,10 @@ func (w *Workspace) sessionLocked(capture bool) (*infer.Session, error) {
 		}
 		if weights > 0 {
 			return nil, inputf(w.Model.Name, "%d weight tensors are declared as inputs without data (an architecture-only model): it cannot be run", weights)
+		}
+		if err := w.cfg.Validate(); err != nil {
+			// e.g. an image input of 4 channels: no picture can fill it.
+			return nil, inputf(w.Model.Name, "the image input cannot be fed from a picture: %s", strings.TrimPrefix(err.Error(), "prep: bad settings: "))
 		}
 		s, err := infer.NewSession(w.Model, opt)
 		if err != nil {

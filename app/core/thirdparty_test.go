@@ -1,0 +1,50 @@
+package core
+
+// Models from other exporters: the PyTorch-exported single-layer models of
+// the ONNX conformance data (Debian libonnx-testdata), whose inputs and
+// outputs are not those of an image classifier.
+
+import (
+	"context"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"fovea/viz"
+)
+
+const conformanceData = "/usr/share/libonnx-testdata/data/pytorch-converted"
+
+func openConformance(t *testing.T, name string) *Workspace {
+	t.Helper()
+	start(t)
+	w, err := OpenModel(filepath.Join(conformanceData, name, "model.onnx"))
+	if err != nil {
+		t.Fatalf("%s (Debian package libonnx-testdata): %v", name, err)
+	}
+	t.Cleanup(func() { w.Close() })
+	return w
+}
+
+// A 4-channel image input (test_Conv2d_depthwise takes [2,4,6,6]) cannot be
+// filled from a picture: every job returns an input error naming the model
+// and the channel count instead of panicking in prep.
+func TestFourChannelInput(t *testing.T) {
+	w := openConformance(t, "test_Conv2d_depthwise")
+	img := demoImage(t, 0)
+	ctx := context.Background()
+	check := func(what string, err error) {
+		t.Helper()
+		if err == nil || !IsInput(err) || !strings.Contains(err.Error(), "model.onnx") || !strings.Contains(err.Error(), "4 channels") {
+			t.Errorf("%s: %v, want an input error naming model.onnx and its 4 channels", what, err)
+		}
+	}
+	_, err := w.Classify(ctx, img, 3)
+	check("Classify", err)
+	_, err = w.Activations(ctx, img)
+	check("Activations", err)
+	_, _, err = w.Occlude(ctx, img, DefaultOcclusion(6, 6), nil, nil)
+	check("Occlude", err)
+	_, err = w.Scan(ctx, []string{"unused.png"}, viz.ScanOptions{}, nil)
+	check("Scan", err)
+}
