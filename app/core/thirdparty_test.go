@@ -48,3 +48,14 @@ func TestFourChannelInput(t *testing.T) {
 	_, err = w.Scan(ctx, []string{"unused.png"}, viz.ScanOptions{}, nil)
 	check("Scan", err)
 }
+
+// A model without a ReLU-like layer (test_Sigmoid is one Sigmoid) has
+// nothing to scan: an input error naming the model, which the command line
+// turns into exit 2, not a failure while running.
+func TestScanNothingToScan(t *testing.T) {
+	w := openConformance(t, "test_Sigmoid")
+	_, err := w.Scan(context.Background(), []string{"unused.png"}, viz.ScanOptions{}, nil)
+	if err == nil || !IsInput(err) || !strings.Contains(err.Error(), "model.onnx") || !strings.Contains(err.Error(), "ReLU-like") {
+		t.Errorf("Scan: %v, want an input error naming model.onnx and the missing ReLU-like layer", err)
+	}
+}
