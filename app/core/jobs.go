@@ -217,14 +217,14 @@ func (w *Workspace) Scan(ctx context.Context, files []string, o viz.ScanOptions,
 	if len(files) == 0 {
 		return nil, inputf("", "no probe images to scan")
 	}
-	if len(viz.ScanLayers(w.Model)) == 0 {
-		// A property of the model the user chose, not a failure while running.
-		return nil, inputf(w.Model.Name, "no ReLU-like activation layer to scan (a scan counts how often the channels after Relu, Clip, LeakyRelu and the like fire)")
-	}
 	c, _ := w.snapshot()
 	s, err := w.session(true)
 	if err != nil {
 		return nil, err
+	}
+	if len(viz.ScanLayers(w.Model)) == 0 {
+		// A property of the model the user chose, not a failure while running.
+		return nil, inputf(w.Model.Name, "no ReLU-like activation layer to scan (a scan counts how often the channels after Relu, Clip, LeakyRelu and the like fire)")
 	}
 	r, err := viz.Scan(ctx, s, w.Model, c, files, o, progress)
 	if err != nil {
