@@ -59,3 +59,33 @@ func TestScanNothingToScan(t *testing.T) {
 		t.Errorf("Scan: %v, want an input error naming model.onnx and the missing ReLU-like layer", err)
 	}
 }
+
+// Classes, read from the file, equals the number of scores a run returns
+// per image (infer.Result.Scores), so class numbers and label files are
+// checked against what classification shows. The conformance models'
+// outputs are feature maps like [2,4,5,3]: a per-image count of 60 (not the
+// last dimension, 3). Before this was checked, occlusion and the report
+// refused the predicted class ("class 54 is outside 0…3").
+func TestClassesMatchScores(t *testing.T) {
+	img := demoImage(t, 0)
+	ran := 0
+	for _, name := range []string{"test_Conv2d", "test_Conv2d_strided", "test_ReLU", "test_MaxPool2d", "test_Sigmoid"} {
+		w := openConformance(t, name)
+		cl, err := w.Classify(context.Background(), img, 1)
+		if err != nil {
+			t.Errorf("%s: %v", name, err)
+			continue
+		}
+		ran++
+		if n := w.Classes(); n != len(cl.Scores) {
+			t.Errorf("%s: Classes() = %d, a run gives %d scores per image (output %s)", name, n, len(cl.Scores), w.Model.Outputs[0].Shape)
+		}
+		// The predicted class is a valid class for occlusion.
+		if _, _, err := w.Occlude(context.Background(), img, DefaultOcclusion(w.cfg.Width, w.cfg.Height), []int{cl.Top[0].Index}, nil); err != nil {
+			t.Errorf("%s: occlusion of the predicted class %d: %v", name, cl.Top[0].Index, err)
+		}
+	}
+	if ran < 3 {
+		t.Errorf("only %d conformance models ran", ran)
+	}
+}

@@ -224,14 +224,54 @@ func (w *Workspace) Labels() ([]string, string) {
 	return append([]string(nil), w.labels...), w.labelsFrom
 }
 
-// Classes is the number of classes the model scores, from the last dimension
-// of its first output; 0 when that dimension is not fixed.
+// Classes is the number of scores the model gives one image, in the output
+// infer reads them from (Result.Score: the first output with exactly one
+// dimension above 1 after the batch, else the first output): the product of
+// that output's dimensions after the batch, as Result.Scores returns them.
+// A convolutional head's [N,10,1,1] scores 10 classes, a [N,10] output 10,
+// an output without a batch axis ([10]) 10. 0 when the dimensions that
+// decide are not fixed in the file.
 func (w *Workspace) Classes() int {
-	sh := w.Model.Outputs[0].Shape
-	if len(sh) == 0 || sh[len(sh)-1].Size <= 0 {
+	perImage := func(s modelio.Shape) modelio.Shape {
+		if len(s) <= 1 {
+			return s // no batch axis: infer treats the whole output as one image's
+		}
+		return s[1:]
+	}
+	pick := -1
+	for j, o := range w.Model.Outputs {
+		big := 0
+		for _, d := range perImage(o.Shape) {
+			if d.Size < 0 {
+				return 0 // the run decides whether this output holds the scores
+			}
+			if d.Size > 1 {
+				big++
+			}
+		}
+		if big == 1 {
+			pick = j
+			break
+		}
+	}
+	if pick < 0 {
+		pick = 0
+	}
+	sh := perImage(w.Model.Outputs[pick].Shape)
+	if len(sh) == 0 {
 		return 0
 	}
-	return int(sh[len(sh)-1].Size)
+	n := int64(1)
+	for _, d := range sh {
+		if d.Size < 0 || d.Size > 1<<30 {
+			return 0
+		}
+		n *= d.Size
+		if n > 1<<30 {
+			return 0
+		}
+	}
+	return int(n)
 }
 
 // LoadLabels reads class labels from path (infer.ReadLabels: one per line,
