@@ -3,10 +3,12 @@ package gui
 import (
 	"bytes"
 	"context"
+	"encoding/json"
 	"fmt"
 	"image"
 	"io"
 	"os"
+	"path"
 	"path/filepath"
 	"slices"
 	"strings"
@@ -16,6 +18,7 @@ import (
 	"fyne.io/fyne/v2/storage"
 
 	"fovea/app/core"
+	"fovea/assets"
 )
 
 // Kinds of file the window opens, decided by openKind.
@@ -324,14 +327,14 @@ func (u *ui) openImage(path string) {
 	u.runImage(filepath.Base(path), path, func() (image.Image, error) { return core.LoadImage(path) })
 }
 
-// openDemoImage opens one of the embedded demo images ("" = the first).
+// openDemoImage opens one of the embedded demo images ("" = the one the
+// demo model gets wrong, else the first).
 func (u *ui) openDemoImage(name string) {
 	if name == "" {
-		names := core.DemoImages()
-		if len(names) == 0 {
+		name = startImage()
+		if name == "" {
 			return
 		}
-		name = names[0]
 	}
 	u.runImage(name, "", func() (image.Image, error) { return core.DemoImage(name) })
 }
@@ -361,10 +364,10 @@ func (u *ui) runImage(name, path string, load func() (image.Image, error)) {
 			if path != "" {
 				u.addRecent(prefImages, path)
 			}
-			u.setActivations(acts)
 			if path == "" {
 				u.vOcc.expectDemoTruth(name)
 			}
+			u.setActivations(acts)
 		}, nil
 	})
 }
@@ -475,4 +478,25 @@ func shortPath(p string) string {
 		dir = "~" + strings.TrimPrefix(dir, home)
 	}
 	return filepath.Base(p) + "  —  " + dir
+}
+
+// startImage is the demo image the window opens on: the genuine mistake of
+// the demo model that demo.json names, so that the explanation flow has
+// something to explain; the first demo image when there is none.
+func startImage() string {
+	names := core.DemoImages()
+	var info struct {
+		Wrong struct {
+			File string `json:"file"`
+		} `json:"misclassified"`
+	}
+	if b, err := assets.Files.ReadFile(assets.InfoFile); err == nil && json.Unmarshal(b, &info) == nil {
+		if n := path.Base(info.Wrong.File); slices.Contains(names, n) {
+			return n
+		}
+	}
+	if len(names) > 0 {
+		return names[0]
+	}
+	return ""
 }

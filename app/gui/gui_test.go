@@ -242,6 +242,13 @@ func TestStartsOnDemoAndShowsEveryView(t *testing.T) {
 	if !slices.Equal(labels, info.Labels) {
 		t.Errorf("labels in force %q, demo.json says %q", labels, info.Labels)
 	}
+	// The window opens on the demo model's genuine mistake, with its true
+	// class chosen as the one it should have been.
+	for _, im := range info.Images {
+		if im.Wrong && (filepath.Base(im.File) != u.imgName || u.vOcc.expect.Selected != im.Label) {
+			t.Errorf("the window opens on %s expecting %q; demo.json's mistake is %s, a %s", u.imgName, u.vOcc.expect.Selected, im.File, im.Label)
+		}
+	}
 
 	for i, v := range Views {
 		u.tabs.SelectIndex(i)
@@ -354,6 +361,7 @@ func TestOcclusionShowsOverlayAndFullProgress(t *testing.T) {
 	u.showView(viewOcclusion)
 	v.patch.SetText("12")
 	v.stride.SetText("8")
+	v.expect.SetSelected(noExpected)
 	u.do(func() { test.Tap(v.runBtn) })
 	u.wait()
 	if v.pic.img.Image == nil || len(u.occ) != 1 || u.errShown > 0 {

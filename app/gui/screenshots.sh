@@ -6,8 +6,9 @@
 #   app/gui/screenshots.sh [OUTDIR]        (default: assets/screenshots)
 #
 # Environment: FOVEA (binary, default: builds bin/fovea), FOVEA_MODEL,
-# FOVEA_IMAGE, FOVEA_PROBE (default: the embedded demo), FOVEA_EXPECT (the
-# class the occlusion view explains against), SHOT_VIEWS, SHOT_THEMES,
+# FOVEA_IMAGE, FOVEA_PROBE (default: the embedded demo, and for the health
+# view its unhealthy twin scanning the demo's probe images), FOVEA_EXPECT
+# (the class the occlusion view explains against), SHOT_VIEWS, SHOT_THEMES,
 # SHOT_WAIT (seconds to let a view settle, default 6).
 # Needs Xvfb, ImageMagick (import, convert) and xwininfo.
 set -euo pipefail
@@ -48,6 +49,9 @@ for theme in $themes; do
 	for view in $views; do
 		extra=()
 		[ "$view" = health ] && [ -n "${FOVEA_PROBE:-}" ] && extra+=(--probe "$FOVEA_PROBE")
+		# The health view shows the demo's unhealthy twin: it has dead filters.
+		[ "$view" = health ] && [ -z "${FOVEA_MODEL:-}" ] &&
+			extra+=(--model "$root/assets/demo/parts_unhealthy.onnx" --probe "$root/assets/demo/probe")
 		[ "$view" = occlusion ] && [ -n "${FOVEA_EXPECT:-}" ] && extra+=(--expect "$FOVEA_EXPECT")
 		rm -rf "$home/.config"  # every shot starts from no remembered state
 		"$bin" "${args[@]}" "${extra[@]}" --view "$view" --theme "$theme" >"$home/log" 2>&1 &
@@ -62,8 +66,15 @@ for theme in $themes; do
 			cp "$home/full.png" "$shot"
 		fi
 		kill "$app" 2>/dev/null || true
+		for _ in 1 2 3 4 5 6 7 8 9 10; do kill -0 "$app" 2>/dev/null || break; sleep 0.5; done
+		if kill -0 "$app" 2>/dev/null; then
+			echo "screenshots: $view ($theme) did not exit on SIGTERM; its goroutines:" >&2
+			kill -QUIT "$app" 2>/dev/null || true
+			sleep 1
+			kill -KILL "$app" 2>/dev/null || true
+		fi
 		wait "$app" 2>/dev/null || true
-		if grep -qi 'error\|panic' "$home/log"; then
+		if grep -qi 'error\|panic\|goroutine' "$home/log"; then
 			echo "screenshots: $view ($theme) logged:" >&2
 			cat "$home/log" >&2
 		fi

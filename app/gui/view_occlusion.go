@@ -122,21 +122,25 @@ func (v *occlusionView) modelChanged() {
 }
 
 // expectDemoTruth chooses the true class of a demo image as the expected
-// one: demo images are named "NN-<class>.png", spaces written as "-".
+// one (unless the command line chose one).
 func (v *occlusionView) expectDemoTruth(name string) {
-	ws := v.u.ws
 	if v.u.opts.Expect != "" {
-		return // the command line chose
+		return
 	}
+	if i, ok := demoTruth(v.u.ws, name); ok && i+1 < len(v.expect.Options) {
+		v.expect.SetSelected(v.expect.Options[i+1])
+	}
+}
+
+// demoTruth is the true class of a demo image: they are named
+// "NN-<class>.png", with spaces written as "-".
+func demoTruth(ws *core.Workspace, name string) (int, bool) {
 	base := strings.TrimSuffix(name, filepath.Ext(name))
 	if i := strings.IndexByte(base, '-'); i > 0 {
 		base = base[i+1:]
 	}
 	i, err := ws.ClassIndex(strings.ReplaceAll(base, "-", " "))
-	if err != nil || i+1 >= len(v.expect.Options) {
-		return
-	}
-	v.expect.SetSelected(v.expect.Options[i+1])
+	return i, err == nil
 }
 
 // imageChanged clears the heatmap: it belonged to another image or model.

@@ -36,7 +36,7 @@ func newPredictView(u *ui) *predictView {
 			u.openDemoImage(name)
 		}
 	})
-	v.demo.PlaceHolder = "Demo images"
+	v.demo.PlaceHolder = "(choose one)"
 	open := widget.NewButtonWithIcon("Open image…", theme.FileImageIcon(), u.chooseImage)
 	explain := widget.NewButtonWithIcon("Explain with occlusion", theme.NavigateNextIcon(), func() { u.showView(viewOcclusion) })
 	v.pic = newPicture(fyne.NewSize(256, 256), 8)
@@ -47,7 +47,8 @@ func newPredictView(u *ui) *predictView {
 	left := container.NewBorder(container.NewVBox(heading("What the model sees"), v.caption), nil, nil, nil, v.pic.box)
 	right := container.NewVBox(heading("Most probable classes"), v.rows, v.note, layout.NewSpacer(), container.NewHBox(explain))
 	v.content = container.NewBorder(
-		container.NewHBox(open, v.demo),
+		container.NewHBox(open, widget.NewLabel("  or a demo image:"),
+			container.NewGridWrap(fyne.NewSize(230, v.demo.MinSize().Height), v.demo)),
 		nil, nil, nil,
 		container.NewGridWithColumns(2, left, container.NewPadded(right)))
 	return v
@@ -76,8 +77,12 @@ func (v *predictView) refresh() {
 	a := u.acts
 	v.pic.set(a.Input)
 	c, _ := u.ws.Prep()
+	name := u.imgName
+	if i, ok := demoTruth(u.ws, name); ok && u.imgPath == "" && i < len(labelsOf(u.ws)) {
+		name += " (demo image of a " + labelsOf(u.ws)[i] + ")"
+	}
 	v.caption.SetText(fmt.Sprintf("%s, %d×%d after %s resizing; prepared as %s.",
-		u.imgName, a.Input.Bounds().Dx(), a.Input.Bounds().Dy(), c.Resize, c.String()))
+		name, a.Input.Bounds().Dx(), a.Input.Bounds().Dy(), c.Resize, c.String()))
 	cl := a.Class
 	for i, p := range cl.Top {
 		if i >= topK {
@@ -104,4 +109,9 @@ func (v *predictView) refresh() {
 		v.note.SetText("Probabilities are the softmax of the model's raw scores.")
 	}
 	v.rows.Refresh()
+}
+
+func labelsOf(ws *core.Workspace) []string {
+	l, _ := ws.Labels()
+	return l
 }
