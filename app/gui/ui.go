@@ -205,7 +205,9 @@ func newUI(a fyne.App, w fyne.Window, o Options) *ui {
 	u.tabs.OnSelected = func(item *container.TabItem) {
 		for name, it := range u.tabByView {
 			if it == item {
-				u.prefs.SetString(prefView, name)
+				if u.prefs.String(prefView) != name {
+					u.prefs.SetString(prefView, name)
+				}
 				u.redraw(name)
 			}
 		}
@@ -280,7 +282,9 @@ func (u *ui) start() {
 func (u *ui) showView(name string) {
 	if it, ok := u.tabByView[name]; ok {
 		u.tabs.Select(it)
-		u.prefs.SetString(prefView, name)
+		if u.prefs.String(prefView) != name {
+			u.prefs.SetString(prefView, name)
+		}
 	}
 }
 

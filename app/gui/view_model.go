@@ -114,18 +114,19 @@ func newModelView(u *ui) *modelView {
 	loadLabels := widget.NewButtonWithIcon("Load file…", theme.FolderOpenIcon(), u.chooseLabels)
 	useLabels := widget.NewButtonWithIcon("Apply", theme.ConfirmIcon(), v.applyLabels)
 
-	v.labels.SetMinRowsVisible(8)
-	left := container.NewVScroll(container.NewVBox(heading("What the file holds"), v.summary, v.notes))
+	v.labels.SetMinRowsVisible(7)
+	left := container.NewVScroll(container.NewVBox(heading("What the file holds"), v.summary, v.notes,
+		widget.NewSeparator(),
+		container.NewBorder(nil, nil, heading("Class names"), container.NewHBox(useLabels, loadLabels)),
+		v.labelsFrom,
+		v.labels,
+	))
 	right := container.NewVScroll(container.NewVBox(
 		heading("How images are prepared"),
 		v.prepFrom,
 		prepForm,
 		container.NewHBox(v.apply, undo),
 		hint("Settings are checked against the model's input and remembered for this model file (by its content), with the class names."),
-		widget.NewSeparator(),
-		container.NewBorder(nil, nil, heading("Class names"), container.NewHBox(useLabels, loadLabels)),
-		v.labelsFrom,
-		v.labels,
 	))
 	v.content = container.NewPadded(container.NewGridWithColumns(2, left, right))
 	return v

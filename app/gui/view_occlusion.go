@@ -243,9 +243,12 @@ func (v *occlusionView) show(occ []*viz.Occlusion, pic *image.NRGBA, set viz.Occ
 	add(name(occ[0]), widget.RichTextStyleStrong)
 	switch {
 	case len(occ) > 1:
-		add("   versus expected ", widget.RichTextStyleInline)
+		add(" versus expected ", widget.RichTextStyleInline)
 		add(name(occ[1]), widget.RichTextStyleStrong)
 		add(". Both heatmaps share one colour scale: warm where hiding the patch lowered that class's "+scoreNoun(occ[0].Score)+", cool where it raised it.", widget.RichTextStyleInline)
+		if occ[1].Score != viz.ScoreLogit && occ[1].Probability < 0.05 {
+			add(" The expected class is so improbable that its changes look faint on this scale; Score: logit shows them plainly.", widget.RichTextStyleInline)
+		}
 	case exp >= 0:
 		add(". The expected class is the predicted one: nothing to contrast.", widget.RichTextStyleInline)
 	default:
