@@ -52,7 +52,7 @@ func (u *ui) finish(t *task, res result, err error) {
 		case r.cur != t || t.ws != nil && t.ws != u.ws:
 			r.ended(t, "")
 		default:
-			r.ended(t, fmt.Sprintf("%s: done in %s", t.what, t.elapsed()))
+			r.ended(t, fmt.Sprintf("%s took %s", t.what, t.elapsed()))
 			current = true
 		}
 		if res != nil {

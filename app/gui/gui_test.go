@@ -380,7 +380,7 @@ func TestOcclusionShowsOverlayAndFullProgress(t *testing.T) {
 	if bar.Max != float64(runs) || bar.Value != bar.Max {
 		t.Errorf("progress ended at %v of %v, want %d of %d", bar.Value, bar.Max, runs, runs)
 	}
-	if !strings.Contains(v.jobs.note.Text, "done") || v.jobs.stop.Visible() {
+	if !strings.Contains(v.jobs.note.Text, "took") || v.jobs.stop.Visible() {
 		t.Errorf("after the run the note says %q and Stop is visible: %v", v.jobs.note.Text, v.jobs.stop.Visible())
 	}
 	pred := u.acts.Class.Top[0]
