@@ -562,6 +562,15 @@ func TestScanMarksDeadFiltersOfUnhealthyDemo(t *testing.T) {
 	if n != tr.DeadTotal {
 		t.Errorf("the CSV export has %d dead rows, want %d", n, tr.DeadTotal)
 	}
+
+	// Stop: a scan stopped at once keeps the report shown before.
+	before := u.scan
+	u.do(func() { test.Tap(v.scanBtn) })
+	u.do(func() { test.Tap(v.jobs.stop) })
+	u.wait()
+	if !strings.HasSuffix(v.jobs.note.Text, "stopped") || u.scan != before {
+		t.Errorf("after Stop the note says %q; report kept: %v", v.jobs.note.Text, u.scan == before)
+	}
 }
 
 func deadTiles(info []viz.TileInfo) []int {

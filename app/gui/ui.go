@@ -6,6 +6,7 @@ import (
 	"image"
 	"os"
 	"path/filepath"
+	"regexp"
 	"runtime"
 	"strings"
 	"sync"
@@ -376,6 +377,8 @@ func (u *ui) rememberDir(path string) {
 	u.prefs.SetString(prefDir, filepath.Dir(path))
 }
 
+var samePath = regexp.MustCompile(`([^\s:]*/([^/\s:]+)): ([^/\s:]+): `)
+
 // plainError is an error's message without the package prefixes ("core: ",
 // "modelio: ", ...) that help in logs but not in a dialog.
 func plainError(err error) string {
@@ -383,6 +386,13 @@ func plainError(err error) string {
 	for _, p := range []string{"core: ", "modelio: ", "infer: ", "prep: ", "viz: "} {
 		msg = strings.ReplaceAll(msg, p, "")
 	}
+	// "/dir/model.onnx: model.onnx: …" names the file twice.
+	msg = samePath.ReplaceAllStringFunc(msg, func(m string) string {
+		if g := samePath.FindStringSubmatch(m); g[2] == g[3] {
+			return g[1] + ": "
+		}
+		return m
+	})
 	if msg == "" {
 		return msg
 	}

@@ -1,6 +1,7 @@
 package gui
 
 import (
+	"errors"
 	"os"
 	"path/filepath"
 	"strings"
@@ -134,5 +135,20 @@ func TestRunRefusesBadOptions(t *testing.T) {
 	}
 	if !strings.Contains(viewNames(), "health") {
 		t.Errorf("view names %q", viewNames())
+	}
+}
+
+// Dialogs drop the package prefixes and a file named twice.
+func TestPlainError(t *testing.T) {
+	cases := []struct{ in, want string }{
+		{"/tmp/a/broken.onnx: modelio: broken.onnx: not an ONNX model", "/tmp/a/broken.onnx: not an ONNX model"},
+		{"core: /x/labels.txt: 6 labels, but model m.onnx has 7 classes", "/x/labels.txt: 6 labels, but model m.onnx has 7 classes"},
+		{"/x/y.png: other.png: mismatch", "/x/y.png: other.png: mismatch"},
+		{"open a model first", "Open a model first"},
+	}
+	for _, c := range cases {
+		if got := plainError(errors.New(c.in)); got != c.want {
+			t.Errorf("plainError(%q) = %q, want %q", c.in, got, c.want)
+		}
 	}
 }
