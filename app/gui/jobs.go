@@ -30,8 +30,8 @@ type runner struct {
 	keep bool
 }
 
-// A task is one run of a job. Its fields other than done/total/permille are
-// used on the UI goroutine only.
+// A task is one run of a job. Its fields other than permille are used on
+// the UI goroutine only.
 type task struct {
 	r       *runner
 	what    string          // "Occlusion", shown in the note
@@ -41,8 +41,7 @@ type task struct {
 	started time.Time
 	unit    string // what progress counts: "positions", "images"
 
-	permille    atomic.Int64 // last progress shown, in thousandths, to skip needless redraws
-	done, total atomic.Int64 // last progress reported by the job
+	permille atomic.Int64 // last progress shown, in thousandths, to skip needless redraws
 }
 
 // newRunner makes a runner; keep says whether its bar stays visible (with the
@@ -63,9 +62,6 @@ func (u *ui) newRunner(keep bool) *runner {
 	r.box.Hide() // until the first job
 	return r
 }
-
-// busy reports whether a job is running here.
-func (r *runner) busy() bool { return r.cur != nil }
 
 // cancel stops the running job, if any; its end is reported by finish.
 func (r *runner) cancel() {
@@ -118,14 +114,12 @@ func (r *runner) launch(what, unit string, ws *core.Workspace, job work) *task {
 	return t
 }
 
-// report is the job's progress callback: it keeps the numbers and forwards a
-// change of at least a thousandth (and always the end) to the window.
+// report is the job's progress callback: it forwards a change of at least a
+// thousandth (and always the end) to the window.
 func (t *task) report(done, total int) {
 	if total <= 0 {
 		return
 	}
-	t.done.Store(int64(done))
-	t.total.Store(int64(total))
 	pm := int64(1000 * done / total)
 	if old := t.permille.Swap(pm); old == pm && done != total {
 		return

@@ -121,6 +121,7 @@ func run(o Options) (status int) {
 		u.close()
 		w.Close()
 	})
+	a.Lifecycle().SetOnStopped(u.close) // File ▸ Quit does not pass the intercept
 	u.start()
 	w.ShowAndRun()
 	return 0
@@ -302,7 +303,8 @@ func (u *ui) redraw(view string) {
 	}
 }
 
-// close cancels every job; called when the window closes.
+// close remembers the window's size and cancels every job; called when the
+// window closes (more than once is harmless).
 func (u *ui) close() {
 	s := u.win.Canvas().Size()
 	if s.Width > 100 && s.Height > 100 {
