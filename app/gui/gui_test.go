@@ -28,11 +28,6 @@ import (
 // embedded demo model and the real ONNX Runtime library. A missing library
 // fails the tests: it is installed by `make test`.
 func TestMain(m *testing.M) {
-	// Fyne reads the language from LANGUAGE before LANG, and logs an error
-	// for LANG=C.UTF-8 (the Makefile's) when LANGUAGE is unset.
-	if os.Getenv("LANGUAGE") == "" {
-		os.Setenv("LANGUAGE", "en")
-	}
 	lib, err := infer.FindLibrary("")
 	if err == nil {
 		err = core.Start(lib)
