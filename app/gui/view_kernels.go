@@ -29,6 +29,7 @@ type kernelView struct {
 	pic       *picture
 	about     *widget.Label
 	flagged   *widget.Label
+	legend    *widget.Label
 
 	convs []modelio.Layer
 	info  []viz.TileInfo // the tiles drawn last (tests read them)
@@ -56,9 +57,14 @@ func flagText(flags []string) string {
 	return strings.Join(out, ", ")
 }
 
-const legendText = "Mid-grey is zero; colours show each filter's weights on one shared scale unless each filter is scaled on its own. " +
-	"Frames: solid red = dead or all-zero weights, dashed amber = rare, constant or near-duplicate. " +
-	"Letters under a tile: X dead, R rare, C constant, Z zero weights, D duplicate."
+// Legends of the tiles: how weights become colours, then the marks.
+const (
+	legendRGB = "Each weight is a colour made of its three input channels, mid-grey for zero"
+	legendOne = "Each weight of the chosen input channel is orange when positive, blue when negative, pale when near zero"
+	legendEnd = ", on one scale for all filters unless each is scaled on its own. " +
+		"Frames: solid red = dead or all-zero weights, dashed amber = rare, constant or near-duplicate. " +
+		"Letters under a tile: X dead, R rare, C constant, Z zero weights, D duplicate."
+)
 
 func newKernelView(u *ui) *kernelView {
 	v := &kernelView{u: u}
@@ -74,10 +80,14 @@ func newKernelView(u *ui) *kernelView {
 	v.flagged = widget.NewLabel("")
 	v.flagged.Wrapping = fyne.TextWrapWord
 	v.flagged.Importance = widget.DangerImportance
-	controls := container.NewHBox(widget.NewLabel("Convolution"), v.layer, v.slice, v.perFilter, v.byNorm, v.numbers)
+	v.legend = hint(legendRGB + legendEnd)
+	slice := container.NewGridWrap(fyne.NewSize(170, v.slice.MinSize().Height), v.slice)
+	controls := container.NewVBox(
+		container.NewHBox(widget.NewLabel("Convolution"), v.layer, slice),
+		container.NewHBox(v.perFilter, v.byNorm, v.numbers))
 	v.content = container.NewBorder(
 		container.NewVBox(controls, v.about),
-		container.NewVBox(v.flagged, hint(legendText)),
+		container.NewVBox(v.flagged, v.legend),
 		nil, nil, v.pic.box)
 	return v
 }
@@ -151,6 +161,11 @@ func (v *kernelView) draw() {
 	slice := -1
 	if s, ok := strings.CutPrefix(v.slice.Selected, "input channel "); ok && (k.C != 1) {
 		slice, _ = strconv.Atoi(s)
+	}
+	if slice == -1 && k.C == 3 {
+		v.legend.SetText(legendRGB + legendEnd)
+	} else {
+		v.legend.SetText(legendOne + legendEnd)
 	}
 	// Frames, gaps and the number line under each tile take about 30
 	// pixels; the rows above and below the picture about 170.
