@@ -6,6 +6,8 @@ SHELL := /bin/bash
 .SHELLFLAGS := -eu -o pipefail -c
 export LANG := C.UTF-8
 export LC_ALL := C.UTF-8
+# Fyne reads LANG=C.UTF-8 as an unknown locale and logs an error; LANGUAGE wins.
+export LANGUAGE := en
 export CGO_ENABLED := 1
 
 # Debian packages: a C compiler and the OpenGL/X11 headers Fyne's cgo needs,
