@@ -6,7 +6,9 @@ package main
 // the libraries called directly in the test (modelio, infer, prep, viz) and,
 // where the demo's generator measured something independently (the dead
 // channels of the unhealthy checkpoint, measured with PyTorch), against that.
-// PNGs are compared with goldens in testdata/golden/cli; rewrite them with
+// PNGs are also compared with goldens in testdata/golden/cli: pictures drawn
+// by this program and checked by eye, a regression pin rather than an
+// outside reference; rewrite them with
 //
 //	go test ./app -run CLI -update
 //

@@ -255,6 +255,7 @@ var tpModels = []tpModel{
 			b.Output(b.Op("MatMul", []string{x, fw}))
 		},
 		check: func(t *testing.T, r *tpRuns) {
+			// conv_w_const above is [4, 3, 3, 3]: M × C × kH × kW (ONNX Operators.md, Conv).
 			if r.filt.Filters != 4 || r.filt.Channels != 3 || r.filt.Height != 3 {
 				t.Errorf("filters of the Constant-node conv: %+v, want 4 of 3×3×3", r.filt)
 			}
@@ -278,6 +279,7 @@ var tpModels = []tpModel{
 			if im == nil || im.Channels != 1 || im.Height != 28 || im.Width != 28 {
 				t.Errorf("image input %+v, want 1 channel 28×28", im)
 			}
+			// As built above: Conv(x, 1, 4, 5, ...), 4 filters of 5×5 on 1 channel.
 			if r.filt.Channels != 1 || r.filt.Filters != 4 || r.filt.Height != 5 {
 				t.Errorf("filters %+v, want 4 of 5×5×1", r.filt)
 			}
@@ -411,6 +413,7 @@ var tpModels = []tpModel{
 			if im := r.layers.Image; im == nil || im.Layout != "nhwc" || im.Name != "input_1:0" {
 				t.Errorf("image input %+v, want input_1:0 in nhwc", im)
 			}
+			// As built above: Conv(x, 3, 6, 3, 1, 1) after the Transpose.
 			if r.filt.Filters != 6 || r.filt.Channels != 3 {
 				t.Errorf("filters %+v, want 6 of 3 channels (through Mul, Add, Transpose)", r.filt)
 			}
@@ -457,6 +460,8 @@ var tpModels = []tpModel{
 			b.Output(b.Gemm(x, 4*8*8, 6))
 		},
 		check: func(t *testing.T, r *tpRuns) {
+			// K·N weights + N biases, K = 4·8·8 (ONNX Operators.md, Gemm: B is N×K with
+			// transB = 1, as tpBuilder.Gemm stores it; the bias C has N).
 			if l := layerByOp(r, "Gemm"); l == nil || l.Params != 4*8*8*6+6 {
 				t.Errorf("Gemm after the view chain: %+v, want %d params", l, 4*8*8*6+6)
 			}

@@ -55,6 +55,8 @@ func TestImageLayoutAndFirstKernels(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	// 2 filters of 3×3 over 3 channels, as nhwcModel builds c1 (W is
+	// M × C/group × kH × kW, ONNX Operators.md, Conv).
 	if k.Node != "c1" || k.M != 2 || k.C != 3 || k.KH != 3 || k.KW != 3 || k.Group != 1 {
 		t.Errorf("kernels %+v", k)
 	}
@@ -73,6 +75,8 @@ func TestImageLayoutAndFirstKernels(t *testing.T) {
 	if l.WHD() != "14×14×2" || l.RF != 3 || l.Shape.String() != "batch×2×14×14" {
 		t.Errorf("first conv %s RF %d shape %s", l.WHD(), l.RF, l.Shape)
 	}
+	// The Transpose of the 16×16×3 input moves no pixel across positions:
+	// same volume, receptive field 1 (ONNX Operators.md, Transpose).
 	tr := m.Layers[0]
 	if tr.Op != "Transpose" || tr.WHD() != "16×16×3" || tr.RF != 1 {
 		t.Errorf("transpose layer %s %s RF %d", tr.Op, tr.WHD(), tr.RF)

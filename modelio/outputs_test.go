@@ -101,6 +101,8 @@ func TestObserve(t *testing.T) {
 	}
 	m.Observe(map[string][]int64{"mystery": {1, 8, 6, 6}})
 	my := layerOf(t, m, "mystery")
+	// The observed shape given above, read as N×C×H×W; 4 bytes per float32
+	// (ONNX TensorProto FLOAT).
 	if my.ShapeSource != SourceObserved || my.Shape.String() != "1×8×6×6" || my.WHD() != "6×6×8" || my.Bytes != 6*6*8*4 {
 		t.Errorf("observed layer: %s %s %s bytes %d", my.ShapeSource, my.Shape, my.WHD(), my.Bytes)
 	}

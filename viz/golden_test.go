@@ -33,6 +33,12 @@ const (
 // difference is a change of behaviour. On a mismatch the picture drawn is
 // written to testdata/failed/name for inspection. With -update it rewrites
 // the golden file instead (atomically).
+//
+// Source: the golden pictures were drawn by this package and checked by eye
+// (testdata/README.md), so they pin behaviour against regressions; they are
+// not an outside reference. The outside checks of the same drawing (colour
+// maps measured with the CIE formulas, tile and map colours and geometry by
+// hand) are in colormap_test.go, tiles_test.go and maps_test.go.
 func checkGolden(t *testing.T, name string, img *image.NRGBA) {
 	t.Helper()
 	path := filepath.Join(goldenDir, name)

@@ -100,6 +100,7 @@ func TestMapGridLayoutsAgree(t *testing.T) {
 	if !slices.Equal(a.Pix, b.Pix) || !slices.Equal(sa, sb) {
 		t.Error("NCHW and NHWC pictures or stats differ")
 	}
+	// By hand: mean of 10..15 is 12.5, max 15.
 	if sa[1].Mean != 12.5 || sa[1].Max != 15 {
 		t.Errorf("channel 1 stats %+v, want mean 12.5, max 15", sa[1])
 	}

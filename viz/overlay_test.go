@@ -84,6 +84,8 @@ func TestOverlayScoresAutoScaleAndNaN(t *testing.T) {
 	if a.NRGBAAt(0, 0) != b.NRGBAAt(0, 0) || a.NRGBAAt(1, 0) != b.NRGBAAt(1, 0) {
 		t.Error("automatic scale differs from the largest |score|")
 	}
+	// By hand: max(|−4|, |2|, |5|) = 5; all zero falls back to 1 (our choice,
+	// so nothing is divided by zero).
 	if ScoreScale([][]float64{{-4, 2}}, [][]float64{{5}}) != 5 || ScoreScale([][]float64{{0}}) != 1 {
 		t.Error("ScoreScale wrong")
 	}

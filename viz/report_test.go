@@ -44,6 +44,7 @@ func TestComposeLayout(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	// By hand: 10×20 scaled to height 40 is 20 wide; gap 4 each side.
 	if b := sheet.Bounds(); b.Dx() != 4+20+4 || b.Dy() <= 4+40+4 {
 		t.Errorf("scaled sheet %v, want 28 wide and taller than 48", b)
 	}

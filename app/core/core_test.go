@@ -82,6 +82,7 @@ func TestDemoSettings(t *testing.T) {
 	if !slices.Equal(labels, assets.Labels()) || lfrom != FromModel {
 		t.Errorf("labels %q from %s, want %q from the metadata", labels, lfrom, assets.Labels())
 	}
+	// Seven bins: the demo's own scenario (assets/assets.go, demo/labels.txt).
 	if w.Classes() != 7 || w.Demo != DemoHealthy {
 		t.Errorf("%d classes, demo %q; want 7, healthy", w.Classes(), w.Demo)
 	}

@@ -90,6 +90,7 @@ func TestTopK(t *testing.T) {
 	p := []float32{0.1, 0.4, 0.1, float32(math.NaN()), 0.4}
 	labels := []string{"bolt", "nut", ""}
 	got := TopK(p, labels, 10)
+	// By hand from p and the ordering rule above (our convention for ties).
 	want := []Prediction{
 		{1, "nut", 0.4}, {4, "class 4", 0.4}, {0, "bolt", 0.1}, {2, "class 2", 0.1},
 	}

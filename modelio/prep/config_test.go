@@ -251,6 +251,8 @@ func TestGuessFrom(t *testing.T) {
 		t.Errorf("no metadata: %v, notes %q", c, notes)
 	}
 
+	// 224×224: the usual ImageNet classifier input (common practice); with
+	// one side known, a square input is assumed (our choice).
 	c, notes = GuessFrom(&Input{Layout: "nchw", Channels: 3}, nil)
 	if c.Width != 224 || c.Height != 224 || !hasNote(notes, "input size symbolic: assumed 224x224") {
 		t.Errorf("symbolic: %v %q", c, notes)
