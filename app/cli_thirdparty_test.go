@@ -24,15 +24,14 @@ import (
 	"time"
 
 	"fovea/modelio"
+	"fovea/modelio/onnxbuild"
 	"fovea/modelio/onnxpb"
-
-	"google.golang.org/protobuf/proto"
 )
 
 // tpModel is one generated third-party model.
 type tpModel struct {
 	name string // file name (spaces and non-ASCII letters on purpose in some)
-	make func(b *tpBuilder, dir string)
+	make func(b *onnxbuild.Builder, dir string)
 	// opset of the builder.
 	opset int64
 	// fails: the model cannot be fed (exit 2 expected for every command that
@@ -51,7 +50,7 @@ type tpRuns struct {
 	maps   map[string]mapsDoc // by layer name
 	occ    occDoc
 	codes  map[string]int
-	b      *tpBuilder
+	b      *onnxbuild.Builder
 }
 
 // tpResult is one in-process run; a panic is caught and reported as such.
@@ -114,17 +113,17 @@ func f16Tensor(name string, dims []int64, data []float32) *onnxpb.TensorProto {
 	for i, v := range data {
 		binary.LittleEndian.PutUint16(raw[2*i:], f16(v))
 	}
-	return &onnxpb.TensorProto{Name: name, Dims: dims, DataType: elemFloat16, RawData: raw}
+	return &onnxpb.TensorProto{Name: name, Dims: dims, DataType: onnxbuild.Float16, RawData: raw}
 }
 
 // constNode puts a float tensor into a Constant node and returns its output.
-func constNode(b *tpBuilder, name string, dims []int64, data []float32) string {
-	b.Node("Constant", nil, []string{name}, aTensor("value", floatTensor(name, dims, data)))
+func constNode(b *onnxbuild.Builder, name string, dims []int64, data []float32) string {
+	b.Node("Constant", nil, []string{name}, onnxbuild.TensorAttr("value", onnxbuild.FloatTensor(name, dims, data)))
 	return name
 }
 
 // matmulHead adds MatMul + Add (as tf2onnx writes Dense) from in to out.
-func matmulHead(b *tpBuilder, x string, in, out int) string {
+func matmulHead(b *onnxbuild.Builder, x string, in, out int) string {
 	w := b.Weight(b.Name("dense_kernel"), int64(in), int64(out))
 	bias := b.Weight(b.Name("dense_bias"), int64(out))
 	return b.Op("Add", []string{b.Op("MatMul", []string{x, w}), bias})
@@ -135,13 +134,13 @@ var tpModels = []tpModel{
 		// (a) tf2onnx from Keras: NHWC input, Transpose to NCHW, convs,
 		// ReduceMean over the spatial axes, Dense as MatMul+Add, Softmax.
 		name: "keras nhwc ü.onnx", opset: 13,
-		make: func(b *tpBuilder, dir string) {
+		make: func(b *onnxbuild.Builder, dir string) {
 			b.Model.ProducerName, b.Model.ProducerVersion = "tf2onnx", "1.16.1 15c810"
-			x := b.Input("input_1", elemFloat, "unk__12", 32, 32, 3)
-			x = b.Op("Transpose", []string{x}, aInts("perm", 0, 3, 1, 2))
+			x := b.Input("input_1", onnxbuild.Float, "unk__12", 32, 32, 3)
+			x = b.Op("Transpose", []string{x}, onnxbuild.Ints("perm", 0, 3, 1, 2))
 			x = b.Relu(b.Conv(x, 3, 8, 3, 1, 1))
 			x = b.Relu(b.Conv(x, 8, 16, 3, 2, 1))
-			x = b.Op("ReduceMean", []string{x}, aInts("axes", 2, 3), aInt("keepdims", 0))
+			x = b.Op("ReduceMean", []string{x}, onnxbuild.Ints("axes", 2, 3), onnxbuild.Int("keepdims", 0))
 			x = matmulHead(b, x, 16, 10)
 			p := b.Softmax(x)
 			b.Node("Identity", []string{p}, []string{"dense_1"})
@@ -167,13 +166,13 @@ var tpModels = []tpModel{
 		// Dropout, Clip with attributes, Flatten, Reshape with a constant
 		// shape initializer.
 		name: "opset9 fixed.onnx", opset: 9,
-		make: func(b *tpBuilder, dir string) {
-			x := b.Input("data", elemFloat, 1, 3, 24, 24)
+		make: func(b *onnxbuild.Builder, dir string) {
+			x := b.Input("data", onnxbuild.Float, 1, 3, 24, 24)
 			x = b.Conv(x, 3, 6, 3, 1, 0) // 22
 			x = b.BatchNorm(x, 6)
-			x = b.Op("Clip", []string{x}, aFloat("min", 0), aFloat("max", 6))
+			x = b.Op("Clip", []string{x}, onnxbuild.FloatAttr("min", 0), onnxbuild.FloatAttr("max", 6))
 			x = b.MaxPool(x, 2, 2, 0) // 11
-			x = b.Op("Dropout", []string{x}, aFloat("ratio", 0.5))
+			x = b.Op("Dropout", []string{x}, onnxbuild.FloatAttr("ratio", 0.5))
 			x = b.Op("Reshape", []string{x, b.Ints64("shape_const", 1, -1)})
 			x = b.Gemm(x, 6*11*11, 20)
 			x = b.Relu(x)
@@ -197,18 +196,18 @@ var tpModels = []tpModel{
 		// (c) MobileNet-like: depthwise and grouped convs, Clip(0,6) with
 		// min/max inputs, HardSwish, an Add residual, a Concat of branches.
 		name: "mobile like.onnx", opset: 14,
-		make: func(b *tpBuilder, dir string) {
+		make: func(b *onnxbuild.Builder, dir string) {
 			lo := b.Init("clip_min", nil, []float32{0})
 			hi := b.Init("clip_max", nil, []float32{6})
 			relu6 := func(x string) string { return b.Op("Clip", []string{x, lo, hi}) }
-			x := b.Input("pixel_values", elemFloat, "batch", 3, 32, 32)
-			x = relu6(b.ConvWith(x, tpConvSpec{In: 3, Out: 16, K: 3, Stride: 2, Pad: 1})) // 16
-			d := relu6(b.ConvWith(x, tpConvSpec{In: 16, Out: 16, K: 3, Pad: 1, Group: 16}))
-			d = b.ConvWith(d, tpConvSpec{In: 16, Out: 16, K: 1, NoBias: true})
+			x := b.Input("pixel_values", onnxbuild.Float, "batch", 3, 32, 32)
+			x = relu6(b.ConvWith(x, onnxbuild.ConvSpec{In: 3, Out: 16, K: 3, Stride: 2, Pad: 1})) // 16
+			d := relu6(b.ConvWith(x, onnxbuild.ConvSpec{In: 16, Out: 16, K: 3, Pad: 1, Group: 16}))
+			d = b.ConvWith(d, onnxbuild.ConvSpec{In: 16, Out: 16, K: 1, NoBias: true})
 			x = b.Add(x, d)
-			g := b.Op("HardSwish", []string{b.ConvWith(x, tpConvSpec{In: 16, Out: 8, K: 3, Pad: 1, Group: 4})})
-			m := b.ConvWith(x, tpConvSpec{In: 16, Out: 32, K: 3, Pad: 1, Group: 16}) // depth multiplier 2
-			x = b.Op("Concat", []string{g, m}, aInt("axis", 1))                      // 40 channels
+			g := b.Op("HardSwish", []string{b.ConvWith(x, onnxbuild.ConvSpec{In: 16, Out: 8, K: 3, Pad: 1, Group: 4})})
+			m := b.ConvWith(x, onnxbuild.ConvSpec{In: 16, Out: 32, K: 3, Pad: 1, Group: 16}) // depth multiplier 2
+			x = b.Op("Concat", []string{g, m}, onnxbuild.Int("axis", 1))                     // 40 channels
 			x = b.Flatten(b.GlobalAveragePool(x))
 			b.Output(b.Gemm(x, 40, 7))
 		},
@@ -222,12 +221,12 @@ var tpModels = []tpModel{
 	{
 		// (d) auto_pad SAME_UPPER with even kernels, MaxPool ceil_mode.
 		name: "same upper.onnx", opset: 13,
-		make: func(b *tpBuilder, dir string) {
-			x := b.Input("x", elemFloat, "N", 3, 30, 30)
-			x = b.Relu(b.ConvWith(x, tpConvSpec{In: 3, Out: 4, K: 4, Stride: 2, AutoPad: "SAME_UPPER"})) // 15
-			x = b.Relu(b.ConvWith(x, tpConvSpec{In: 4, Out: 4, K: 2, AutoPad: "SAME_UPPER"}))            // 15
-			x = b.Op("MaxPool", []string{x}, aInts("kernel_shape", 2, 2), aInts("strides", 2, 2),
-				aInt("ceil_mode", 1)) // ceil((15-2)/2)+1 = 8
+		make: func(b *onnxbuild.Builder, dir string) {
+			x := b.Input("x", onnxbuild.Float, "N", 3, 30, 30)
+			x = b.Relu(b.ConvWith(x, onnxbuild.ConvSpec{In: 3, Out: 4, K: 4, Stride: 2, AutoPad: "SAME_UPPER"})) // 15
+			x = b.Relu(b.ConvWith(x, onnxbuild.ConvSpec{In: 4, Out: 4, K: 2, AutoPad: "SAME_UPPER"}))            // 15
+			x = b.Op("MaxPool", []string{x}, onnxbuild.Ints("kernel_shape", 2, 2), onnxbuild.Ints("strides", 2, 2),
+				onnxbuild.Int("ceil_mode", 1)) // ceil((15-2)/2)+1 = 8
 			x = b.Flatten(x)
 			b.Output(b.Gemm(x, 4*8*8, 3))
 		},
@@ -243,15 +242,15 @@ var tpModels = []tpModel{
 	{
 		// (e) weights in Constant nodes; float16 initializers through Cast.
 		name: "constants fp16.onnx", opset: 13,
-		make: func(b *tpBuilder, dir string) {
-			x := b.Input("input", elemFloat, "N", 3, 16, 16)
+		make: func(b *onnxbuild.Builder, dir string) {
+			x := b.Input("input", onnxbuild.Float, "N", 3, 16, 16)
 			w := constNode(b, "conv_w_const", []int64{4, 3, 3, 3}, eighths(4*3*3*3, 1))
-			bias := b.Op("Cast", []string{b.InitTensor(f16Tensor("conv_b_half", []int64{4}, eighths(4, 2)))}, aInt("to", 1))
-			x = b.Relu(b.Op("Conv", []string{x, w, bias}, aInts("kernel_shape", 3, 3), aInts("pads", 1, 1, 1, 1)))
-			w2 := b.Op("Cast", []string{b.InitTensor(f16Tensor("conv2_w_half", []int64{6, 4, 3, 3}, eighths(6*4*9, 3)))}, aInt("to", 1))
-			x = b.Relu(b.Op("Conv", []string{x, w2}, aInts("kernel_shape", 3, 3), aInts("strides", 2, 2)))
+			bias := b.Op("Cast", []string{b.InitTensor(f16Tensor("conv_b_half", []int64{4}, eighths(4, 2)))}, onnxbuild.Int("to", 1))
+			x = b.Relu(b.Op("Conv", []string{x, w, bias}, onnxbuild.Ints("kernel_shape", 3, 3), onnxbuild.Ints("pads", 1, 1, 1, 1)))
+			w2 := b.Op("Cast", []string{b.InitTensor(f16Tensor("conv2_w_half", []int64{6, 4, 3, 3}, eighths(6*4*9, 3)))}, onnxbuild.Int("to", 1))
+			x = b.Relu(b.Op("Conv", []string{x, w2}, onnxbuild.Ints("kernel_shape", 3, 3), onnxbuild.Ints("strides", 2, 2)))
 			x = b.Flatten(b.GlobalAveragePool(x))
-			fw := b.Op("Cast", []string{b.InitTensor(f16Tensor("fc_w_half", []int64{6, 4}, eighths(24, 4)))}, aInt("to", 1))
+			fw := b.Op("Cast", []string{b.InitTensor(f16Tensor("fc_w_half", []int64{6, 4}, eighths(24, 4)))}, onnxbuild.Int("to", 1))
 			b.Output(b.Op("MatMul", []string{x, fw}))
 		},
 		check: func(t *testing.T, r *tpRuns) {
@@ -268,8 +267,8 @@ var tpModels = []tpModel{
 	{
 		// (f) grayscale 28×28, LeNet-like.
 		name: "gray 28.onnx", opset: 13,
-		make: func(b *tpBuilder, dir string) {
-			x := b.Input("Input3", elemFloat, 1, 1, 28, 28)
+		make: func(b *onnxbuild.Builder, dir string) {
+			x := b.Input("Input3", onnxbuild.Float, 1, 1, 28, 28)
 			x = b.MaxPool(b.Relu(b.Conv(x, 1, 4, 5, 1, 0)), 2, 2, 0) // 12
 			x = b.MaxPool(b.Relu(b.Conv(x, 4, 8, 5, 1, 0)), 2, 2, 0) // 4
 			b.Output(b.Gemm(b.Flatten(x), 8*4*4, 10))
@@ -292,8 +291,8 @@ var tpModels = []tpModel{
 	{
 		// (g) symbolic height and width.
 		name: "any size.onnx", opset: 13,
-		make: func(b *tpBuilder, dir string) {
-			x := b.Input("images", elemFloat, "batch", 3, "height", "width")
+		make: func(b *onnxbuild.Builder, dir string) {
+			x := b.Input("images", onnxbuild.Float, "batch", 3, "height", "width")
 			x = b.Relu(b.Conv(x, 3, 8, 3, 2, 1))
 			x = b.Relu(b.Conv(x, 8, 8, 3, 1, 1))
 			b.Output(b.Gemm(b.Flatten(b.GlobalAveragePool(x)), 8, 4))
@@ -316,9 +315,9 @@ var tpModels = []tpModel{
 		// (h) two outputs (logits and features), names with spaces,
 		// unicode and slashes.
 		name: "two outputs.onnx", opset: 13,
-		make: func(b *tpBuilder, dir string) {
-			x := b.Input("input/image 0", elemFloat, "N", 3, 20, 20)
-			x = b.Relu(b.ConvWith(x, tpConvSpec{In: 3, Out: 6, K: 3, Pad: 1, WeightName: "stem/conv weight é"}))
+		make: func(b *onnxbuild.Builder, dir string) {
+			x := b.Input("input/image 0", onnxbuild.Float, "N", 3, 20, 20)
+			x = b.Relu(b.ConvWith(x, onnxbuild.ConvSpec{In: 3, Out: 6, K: 3, Pad: 1, WeightName: "stem/conv weight é"}))
 			f := b.Flatten(b.GlobalAveragePool(x))
 			b.Node("Identity", []string{f}, []string{"features/pooled ✓"})
 			logits := b.Gemm(f, 6, 9)
@@ -340,8 +339,8 @@ var tpModels = []tpModel{
 	{
 		// (h) as above with the features first and the logits second.
 		name: "features first.onnx", opset: 13,
-		make: func(b *tpBuilder, dir string) {
-			x := b.Input("input", elemFloat, "N", 3, 20, 20)
+		make: func(b *onnxbuild.Builder, dir string) {
+			x := b.Input("input", onnxbuild.Float, "N", 3, 20, 20)
 			x = b.Relu(b.Conv(x, 3, 12, 3, 1, 1))
 			f := b.Flatten(b.GlobalAveragePool(x))
 			b.Output(f, "N", 12)
@@ -355,12 +354,12 @@ var tpModels = []tpModel{
 		// A convolutional head, as SqueezeNet exports: scores [N,10,1,1],
 		// with a labels file of 10 lines beside the model.
 		name: "conv head.onnx", opset: 13,
-		make: func(b *tpBuilder, dir string) {
-			x := b.Input("data_0", elemFloat, "N", 3, 24, 24)
+		make: func(b *onnxbuild.Builder, dir string) {
+			x := b.Input("data_0", onnxbuild.Float, "N", 3, 24, 24)
 			x = b.MaxPool(b.Relu(b.Conv(x, 3, 8, 3, 2, 0)), 3, 2, 0)
 			x = b.Relu(b.Conv(x, 8, 10, 1, 1, 0))
 			x = b.GlobalAveragePool(x)
-			b.Node("Softmax", []string{x}, []string{"softmaxout_1"}, aInt("axis", 1))
+			b.Node("Softmax", []string{x}, []string{"softmaxout_1"}, onnxbuild.Int("axis", 1))
 			b.Output("softmaxout_1", "N", 10, 1, 1)
 			writeLabels(dir, "conv head.txt", 10)
 		},
@@ -373,8 +372,8 @@ var tpModels = []tpModel{
 	{
 		// Fixed batch 1 whose scores lost the batch axis: output [6].
 		name: "no batch axis.onnx", opset: 13,
-		make: func(b *tpBuilder, dir string) {
-			x := b.Input("input", elemFloat, 1, 3, 16, 16)
+		make: func(b *onnxbuild.Builder, dir string) {
+			x := b.Input("input", onnxbuild.Float, 1, 3, 16, 16)
 			x = b.Relu(b.Conv(x, 3, 4, 3, 1, 1))
 			x = b.Gemm(b.Flatten(b.GlobalAveragePool(x)), 4, 6)
 			b.Output(b.Op("Reshape", []string{x, b.Ints64("to_1d", 6)}), 6)
@@ -388,8 +387,8 @@ var tpModels = []tpModel{
 	{
 		// Fixed batch 4 (an exporter's dummy input of 4 images).
 		name: "batch four.onnx", opset: 13,
-		make: func(b *tpBuilder, dir string) {
-			x := b.Input("input", elemFloat, 4, 3, 16, 16)
+		make: func(b *onnxbuild.Builder, dir string) {
+			x := b.Input("input", onnxbuild.Float, 4, 3, 16, 16)
 			x = b.Relu(b.Conv(x, 3, 4, 3, 1, 1))
 			b.Output(b.Gemm(b.Flatten(b.GlobalAveragePool(x)), 4, 3), 4, 3)
 		},
@@ -398,13 +397,13 @@ var tpModels = []tpModel{
 		// tf2onnx with Keras Rescaling before the Transpose, a named
 		// input "input_1:0", opset 18 (ReduceMean's axes as an input).
 		name: "keras rescale.onnx", opset: 18,
-		make: func(b *tpBuilder, dir string) {
-			x := b.Input("input_1:0", elemFloat, "unk__7", 28, 28, 3)
+		make: func(b *onnxbuild.Builder, dir string) {
+			x := b.Input("input_1:0", onnxbuild.Float, "unk__7", 28, 28, 3)
 			x = b.Op("Mul", []string{x, b.Init("scale", nil, []float32{1.0 / 127.5})})
 			x = b.Op("Add", []string{x, b.Init("offset", nil, []float32{-1})})
-			x = b.Op("Transpose", []string{x}, aInts("perm", 0, 3, 1, 2))
+			x = b.Op("Transpose", []string{x}, onnxbuild.Ints("perm", 0, 3, 1, 2))
 			x = b.Relu(b.Conv(x, 3, 6, 3, 1, 1))
-			x = b.Op("ReduceMean", []string{x, b.Ints64("axes", 2, 3)}, aInt("keepdims", 0))
+			x = b.Op("ReduceMean", []string{x, b.Ints64("axes", 2, 3)}, onnxbuild.Int("keepdims", 0))
 			x = b.Softmax(matmulHead(b, x, 6, 3))
 			b.Node("Identity", []string{x}, []string{"dense:0"})
 			b.Output("dense:0", "unk__8", 3)
@@ -422,8 +421,8 @@ var tpModels = []tpModel{
 	{
 		// (i) weights in an external data file beside the model.
 		name: "external data.onnx", opset: 13,
-		make: func(b *tpBuilder, dir string) {
-			x := b.Input("input", elemFloat, "N", 3, 16, 16)
+		make: func(b *onnxbuild.Builder, dir string) {
+			x := b.Input("input", onnxbuild.Float, "N", 3, 16, 16)
 			x = b.Relu(b.Conv(x, 3, 4, 3, 1, 1))
 			b.Output(b.Gemm(b.Flatten(b.GlobalAveragePool(x)), 4, 3))
 			var blob []byte
@@ -449,19 +448,19 @@ var tpModels = []tpModel{
 	{
 		// (j) x.view(x.size(0), -1) as PyTorch exports it.
 		name: "torch view.onnx", opset: 13,
-		make: func(b *tpBuilder, dir string) {
-			x := b.Input("input.1", elemFloat, "batch_size", 3, 16, 16)
+		make: func(b *onnxbuild.Builder, dir string) {
+			x := b.Input("input.1", onnxbuild.Float, "batch_size", 3, 16, 16)
 			x = b.MaxPool(b.Relu(b.Conv(x, 3, 4, 3, 1, 1)), 2, 2, 0) // 8
 			s := b.Op("Shape", []string{x})
-			g := b.Op("Gather", []string{s, b.InitTensor(int64Tensor("zero", nil, []int64{0}))}, aInt("axis", 0))
+			g := b.Op("Gather", []string{s, b.InitTensor(onnxbuild.Int64Tensor("zero", nil, []int64{0}))}, onnxbuild.Int("axis", 0))
 			u := b.Op("Unsqueeze", []string{g, b.Ints64("axes0", 0)})
-			c := b.Op("Concat", []string{u, b.Ints64("minus1", -1)}, aInt("axis", 0))
+			c := b.Op("Concat", []string{u, b.Ints64("minus1", -1)}, onnxbuild.Int("axis", 0))
 			x = b.Op("Reshape", []string{x, c})
 			b.Output(b.Gemm(x, 4*8*8, 6))
 		},
 		check: func(t *testing.T, r *tpRuns) {
 			// K·N weights + N biases, K = 4·8·8 (ONNX Operators.md, Gemm: B is N×K with
-			// transB = 1, as tpBuilder.Gemm stores it; the bias C has N).
+			// transB = 1, as onnxbuild.Builder.Gemm stores it; the bias C has N).
 			if l := layerByOp(r, "Gemm"); l == nil || l.Params != 4*8*8*6+6 {
 				t.Errorf("Gemm after the view chain: %+v, want %d params", l, 4*8*8*6+6)
 			}
@@ -470,9 +469,9 @@ var tpModels = []tpModel{
 	{
 		// (k) an integer image input.
 		name: "uint8 input.onnx", opset: 13, fails: true,
-		make: func(b *tpBuilder, dir string) {
-			x := b.Input("image_uint8", elemUint8, "N", 3, 16, 16)
-			x = b.Op("Cast", []string{x}, aInt("to", 1))
+		make: func(b *onnxbuild.Builder, dir string) {
+			x := b.Input("image_uint8", onnxbuild.Uint8, "N", 3, 16, 16)
+			x = b.Op("Cast", []string{x}, onnxbuild.Int("to", 1))
 			x = b.Relu(b.Conv(x, 3, 4, 3, 1, 1))
 			b.Output(b.Gemm(b.Flatten(b.GlobalAveragePool(x)), 4, 3))
 		},
@@ -480,9 +479,9 @@ var tpModels = []tpModel{
 	{
 		// (k) two float 4-D inputs.
 		name: "two images.onnx", opset: 13, fails: true,
-		make: func(b *tpBuilder, dir string) {
-			x := b.Input("left", elemFloat, "N", 3, 16, 16)
-			y := b.Input("right", elemFloat, "N", 3, 16, 16)
+		make: func(b *onnxbuild.Builder, dir string) {
+			x := b.Input("left", onnxbuild.Float, "N", 3, 16, 16)
+			y := b.Input("right", onnxbuild.Float, "N", 3, 16, 16)
 			x = b.Relu(b.Conv(b.Add(x, y), 3, 4, 3, 1, 1))
 			b.Output(b.Gemm(b.Flatten(b.GlobalAveragePool(x)), 4, 3))
 		},
@@ -719,227 +718,13 @@ func TestCLIThirdPartyModels(t *testing.T) {
 	}
 }
 
-// ---- a small model builder (modelio/internal/onnxbuild is internal to
-// modelio, so the command-line tests carry their own) ----
-
-// Element types (onnx.proto TensorProto.DataType).
-const (
-	elemFloat   int32 = 1
-	elemUint8   int32 = 2
-	elemInt64   int32 = 7
-	elemFloat16 int32 = 10
-)
-
-// tpBuilder assembles one model; tensors are named by strings and each
-// helper returns its output's name.
-type tpBuilder struct {
-	Model *onnxpb.ModelProto
-	Graph *onnxpb.GraphProto
-	seed  uint32
-	count map[string]int
-}
-
-func tpNew(opset int64) *tpBuilder {
-	g := &onnxpb.GraphProto{Name: "graph"}
-	return &tpBuilder{
-		Model: &onnxpb.ModelProto{IrVersion: 7, ProducerName: "fovea-test",
-			OpsetImport: []*onnxpb.OperatorSetIdProto{{Domain: "", Version: opset}}, Graph: g},
-		Graph: g, seed: 2463534242, count: map[string]int{},
-	}
-}
-
-func (b *tpBuilder) Name(prefix string) string {
-	b.count[prefix]++
-	return fmt.Sprintf("%s%d", prefix, b.count[prefix])
-}
-
-// valueInfo: dims are int (negative: no value) or string (symbolic).
-func valueInfo(name string, elem int32, dims ...any) *onnxpb.ValueInfoProto {
-	tt := &onnxpb.TypeProto_Tensor{ElemType: elem}
-	if dims != nil {
-		tt.Shape = &onnxpb.TensorShapeProto{}
-		for _, d := range dims {
-			dim := &onnxpb.TensorShapeProto_Dimension{}
-			switch v := d.(type) {
-			case int:
-				if v >= 0 {
-					dim.Value = &onnxpb.TensorShapeProto_Dimension_DimValue{DimValue: int64(v)}
-				}
-			case string:
-				dim.Value = &onnxpb.TensorShapeProto_Dimension_DimParam{DimParam: v}
-			}
-			tt.Shape.Dim = append(tt.Shape.Dim, dim)
-		}
-	}
-	return &onnxpb.ValueInfoProto{Name: name, Type: &onnxpb.TypeProto{Value: &onnxpb.TypeProto_TensorType{TensorType: tt}}}
-}
-
-func (b *tpBuilder) Input(name string, elem int32, dims ...any) string {
-	b.Graph.Input = append(b.Graph.Input, valueInfo(name, elem, dims...))
-	return name
-}
-
-func (b *tpBuilder) Output(name string, dims ...any) {
-	b.Graph.Output = append(b.Graph.Output, valueInfo(name, elemFloat, dims...))
-}
-
-func (b *tpBuilder) Node(op string, inputs, outputs []string, attrs ...*onnxpb.AttributeProto) {
-	b.Graph.Node = append(b.Graph.Node, &onnxpb.NodeProto{Name: outputs[0], OpType: op, Input: inputs, Output: outputs, Attribute: attrs})
-}
-
-func (b *tpBuilder) Op(op string, inputs []string, attrs ...*onnxpb.AttributeProto) string {
-	out := b.Name(strings.ToLower(op))
-	b.Node(op, inputs, []string{out}, attrs...)
-	return out
-}
-
-func aInt(name string, v int64) *onnxpb.AttributeProto {
-	return &onnxpb.AttributeProto{Name: name, Type: onnxpb.AttributeProto_INT, I: v}
-}
-
-func aInts(name string, v ...int64) *onnxpb.AttributeProto {
-	return &onnxpb.AttributeProto{Name: name, Type: onnxpb.AttributeProto_INTS, Ints: v}
-}
-
-func aFloat(name string, v float32) *onnxpb.AttributeProto {
-	return &onnxpb.AttributeProto{Name: name, Type: onnxpb.AttributeProto_FLOAT, F: v}
-}
-
-func aString(name, v string) *onnxpb.AttributeProto {
-	return &onnxpb.AttributeProto{Name: name, Type: onnxpb.AttributeProto_STRING, S: []byte(v)}
-}
-
-func aTensor(name string, t *onnxpb.TensorProto) *onnxpb.AttributeProto {
-	return &onnxpb.AttributeProto{Name: name, Type: onnxpb.AttributeProto_TENSOR, T: t}
-}
-
-func floatTensor(name string, dims []int64, data []float32) *onnxpb.TensorProto {
-	raw := make([]byte, 4*len(data))
-	for i, v := range data {
-		binary.LittleEndian.PutUint32(raw[4*i:], math.Float32bits(v))
-	}
-	return &onnxpb.TensorProto{Name: name, Dims: dims, DataType: elemFloat, RawData: raw}
-}
-
-func int64Tensor(name string, dims []int64, data []int64) *onnxpb.TensorProto {
-	raw := make([]byte, 8*len(data))
-	for i, v := range data {
-		binary.LittleEndian.PutUint64(raw[8*i:], uint64(v))
-	}
-	return &onnxpb.TensorProto{Name: name, Dims: dims, DataType: elemInt64, RawData: raw}
-}
-
-func (b *tpBuilder) Init(name string, dims []int64, data []float32) string {
-	return b.InitTensor(floatTensor(name, dims, data))
-}
-
-func (b *tpBuilder) InitTensor(t *onnxpb.TensorProto) string {
-	b.Graph.Initializer = append(b.Graph.Initializer, t)
-	return t.GetName()
-}
-
-func (b *tpBuilder) Ints64(name string, v ...int64) string {
-	return b.InitTensor(int64Tensor(name, []int64{int64(len(v))}, v))
-}
-
-// Weight adds a float initializer of pseudo-random values in [-0.25, 0.25)
-// (xorshift32, so every run builds the same model).
-func (b *tpBuilder) Weight(name string, dims ...int64) string {
-	n := int64(1)
-	for _, d := range dims {
-		n *= d
-	}
-	v := make([]float32, n)
-	for i := range v {
-		b.seed ^= b.seed << 13
-		b.seed ^= b.seed >> 17
-		b.seed ^= b.seed << 5
-		v[i] = float32(b.seed%1000)/2000 - 0.25
-	}
-	return b.Init(name, dims, v)
-}
-
-// tpConvSpec describes a convolution; zero values: stride 1, no padding,
-// one group, with bias.
-type tpConvSpec struct {
-	In, Out, K, Stride, Pad, Group int
-	NoBias                         bool
-	AutoPad, WeightName            string
-}
-
-func (b *tpBuilder) Conv(x string, in, out, k, stride, pad int) string {
-	return b.ConvWith(x, tpConvSpec{In: in, Out: out, K: k, Stride: stride, Pad: pad})
-}
-
-func (b *tpBuilder) ConvWith(x string, s tpConvSpec) string {
-	name := b.Name("conv")
-	g, st, k := max(s.Group, 1), int64(max(s.Stride, 1)), int64(s.K)
-	wname := s.WeightName
-	if wname == "" {
-		wname = name + "_w"
-	}
-	inputs := []string{x, b.Weight(wname, int64(s.Out), int64(s.In/g), k, k)}
-	if !s.NoBias {
-		inputs = append(inputs, b.Weight(name+"_b", int64(s.Out)))
-	}
-	attrs := []*onnxpb.AttributeProto{aInts("kernel_shape", k, k), aInts("strides", st, st)}
-	if s.AutoPad != "" {
-		attrs = append(attrs, aString("auto_pad", s.AutoPad))
-	} else {
-		p := int64(s.Pad)
-		attrs = append(attrs, aInts("pads", p, p, p, p))
-	}
-	if g > 1 {
-		attrs = append(attrs, aInt("group", int64(g)))
-	}
-	b.Node("Conv", inputs, []string{name}, attrs...)
-	return name
-}
-
-func (b *tpBuilder) Relu(x string) string { return b.Op("Relu", []string{x}) }
-
-func (b *tpBuilder) MaxPool(x string, k, stride, pad int) string {
-	p := int64(pad)
-	return b.Op("MaxPool", []string{x}, aInts("kernel_shape", int64(k), int64(k)),
-		aInts("strides", int64(stride), int64(stride)), aInts("pads", p, p, p, p))
-}
-
-func (b *tpBuilder) GlobalAveragePool(x string) string { return b.Op("GlobalAveragePool", []string{x}) }
-
-// BatchNorm: the five inputs of BatchNormalization (X, scale, B, mean, var).
-func (b *tpBuilder) BatchNorm(x string, c int) string {
-	name := b.Name("bn")
-	ones := make([]float32, c)
-	for i := range ones {
-		ones[i] = 1
-	}
-	in := []string{x, b.Weight(name+"_scale", int64(c)), b.Weight(name+"_bias", int64(c)),
-		b.Weight(name+"_mean", int64(c)), b.Init(name+"_var", []int64{int64(c)}, ones)}
-	b.Node("BatchNormalization", in, []string{name}, aFloat("epsilon", 1e-5))
-	return name
-}
-
-func (b *tpBuilder) Add(x, y string) string { return b.Op("Add", []string{x, y}) }
-
-func (b *tpBuilder) Flatten(x string) string { return b.Op("Flatten", []string{x}, aInt("axis", 1)) }
-
-// Gemm: a fully connected layer in → out, weights [out, in] with transB.
-func (b *tpBuilder) Gemm(x string, in, out int) string {
-	name := b.Name("fc")
-	w := b.Weight(name+"_w", int64(out), int64(in))
-	bias := b.Weight(name+"_b", int64(out))
-	b.Node("Gemm", []string{x, w, bias}, []string{name}, aInt("transB", 1))
-	return name
-}
-
-func (b *tpBuilder) Softmax(x string) string { return b.Op("Softmax", []string{x}, aInt("axis", 1)) }
-
-func (b *tpBuilder) Write(path string) error {
-	data, err := proto.MarshalOptions{Deterministic: true}.Marshal(b.Model)
-	if err != nil {
-		return err
-	}
-	return os.WriteFile(path, data, 0o644)
+// tpNew starts a model for the third-party tests: onnxbuild with its
+// Xorshift weights, IR version 7 and producer "fovea-test" (the values
+// these tests were written with; some models override them).
+func tpNew(opset int64) *onnxbuild.Builder {
+	b := onnxbuild.New(opset, onnxbuild.Xorshift)
+	b.Model.IrVersion, b.Model.ProducerName = 7, "fovea-test"
+	return b
 }
 
 // The PyTorch-exported conformance models (Debian libonnx-testdata) that

@@ -11,7 +11,7 @@ import (
 	"google.golang.org/protobuf/proto"
 	"google.golang.org/protobuf/runtime/protoiface"
 
-	"fovea/modelio/internal/onnxbuild"
+	"fovea/modelio/onnxbuild"
 	"fovea/modelio/onnxpb"
 )
 

@@ -9,7 +9,7 @@ import (
 	"strings"
 	"testing"
 
-	"fovea/modelio/internal/onnxbuild"
+	"fovea/modelio/onnxbuild"
 	"fovea/modelio/onnxpb"
 )
 

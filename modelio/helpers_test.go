@@ -3,7 +3,7 @@ package modelio
 import (
 	"testing"
 
-	"fovea/modelio/internal/onnxbuild"
+	"fovea/modelio/onnxbuild"
 )
 
 // build decodes the model of b, failing the test on error.

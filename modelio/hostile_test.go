@@ -11,7 +11,7 @@ import (
 
 	"google.golang.org/protobuf/encoding/protowire"
 
-	"fovea/modelio/internal/onnxbuild"
+	"fovea/modelio/onnxbuild"
 	"fovea/modelio/onnxpb"
 )
 

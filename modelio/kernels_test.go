@@ -11,7 +11,7 @@ import (
 	"strings"
 	"testing"
 
-	"fovea/modelio/internal/onnxbuild"
+	"fovea/modelio/onnxbuild"
 	"fovea/modelio/onnxpb"
 )
 

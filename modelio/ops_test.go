@@ -4,7 +4,7 @@ import (
 	"strings"
 	"testing"
 
-	"fovea/modelio/internal/onnxbuild"
+	"fovea/modelio/onnxbuild"
 	"fovea/modelio/onnxpb"
 )
 

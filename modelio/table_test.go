@@ -3,7 +3,7 @@ package modelio
 import (
 	"testing"
 
-	"fovea/modelio/internal/onnxbuild"
+	"fovea/modelio/onnxbuild"
 )
 
 // TestOutputSizeRule checks the output-size rule (W − F + 2P)/S + 1

@@ -4,7 +4,7 @@ import (
 	"testing"
 
 	"fovea/modelio"
-	"fovea/modelio/internal/onnxbuild"
+	"fovea/modelio/onnxbuild"
 )
 
 // Guess on a real decoded ONNX model: NHWC and NCHW inputs with fixed and symbolic

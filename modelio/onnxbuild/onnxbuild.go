@@ -1,6 +1,9 @@
-// Package onnxbuild builds ONNX models in Go with the onnxpb types, for
-// tests and benchmarks: hand-sized graphs a person can check, hostile ones,
-// and synthetic networks the size of VGG-16 or ResNet-18.
+// Package onnxbuild builds small ONNX models in Go with the onnxpb types,
+// for tests, benchmarks and examples: hand-sized graphs a person can check,
+// hostile ones, graphs shaped the way other exporters write them, and
+// synthetic networks the size of VGG-16 or ResNet-18. It is public (not
+// under modelio/internal) so that every package's tests build their models
+// with one builder instead of carrying copies.
 //
 // A Builder holds one ModelProto. Tensors are named by strings; the layer
 // helpers (Conv, Relu, MaxPool, Gemm, ...) take the input tensor's name and
@@ -13,8 +16,9 @@
 //	err := b.Write("tiny.onnx")
 //
 // Weights are float32, NCHW/[M C kH kW] as ONNX wants them, and come in
-// three kinds: Random (seeded, reproducible), Zeros, or ArchitectureOnly
-// (declared as graph inputs with shapes and no data).
+// four kinds: Random (seeded, reproducible), Xorshift (seeded, smaller
+// values), Zeros, or ArchitectureOnly (declared as graph inputs with shapes
+// and no data).
 package onnxbuild
 
 import (
@@ -50,7 +54,15 @@ const (
 	Random           Weights = iota // seeded uniform values in [-0.5, 0.5)
 	Zeros                           // all zero (cheap, compresses well)
 	ArchitectureOnly                // graph inputs with shapes and no data
+	// Xorshift: values k/2000 - 0.25 in [-0.25, 0.25) with k = state mod
+	// 1000 from a xorshift32 generator (Marsaglia 2003, shifts 13, 17, 5)
+	// seeded with 2463534242. The command-line tests of package app were
+	// written against these exact weights.
+	Xorshift
 )
+
+// xorshiftSeed is the first state of the Xorshift weights.
+const xorshiftSeed uint32 = 2463534242
 
 // Builder assembles one model.
 type Builder struct {
@@ -58,6 +70,7 @@ type Builder struct {
 	Graph   *onnxpb.GraphProto
 	Weights Weights
 	rng     *rand.Rand
+	xs      uint32 // Xorshift state
 	count   map[string]int
 }
 
@@ -75,6 +88,7 @@ func New(opset int64, w Weights) *Builder {
 		Graph:   g,
 		Weights: w,
 		rng:     rand.New(rand.NewPCG(1, 2)),
+		xs:      xorshiftSeed,
 		count:   map[string]int{},
 	}
 }
@@ -224,9 +238,17 @@ func (b *Builder) Weight(name string, dims ...int64) string {
 		n *= d
 	}
 	raw := make([]byte, 4*n)
-	if b.Weights == Random {
+	switch b.Weights {
+	case Random:
 		for i := int64(0); i < n; i++ {
 			binary.LittleEndian.PutUint32(raw[4*i:], math.Float32bits(b.rng.Float32()-0.5))
+		}
+	case Xorshift:
+		for i := int64(0); i < n; i++ {
+			b.xs ^= b.xs << 13
+			b.xs ^= b.xs >> 17
+			b.xs ^= b.xs << 5
+			binary.LittleEndian.PutUint32(raw[4*i:], math.Float32bits(float32(b.xs%1000)/2000-0.25))
 		}
 	}
 	b.Graph.Initializer = append(b.Graph.Initializer, &onnxpb.TensorProto{Name: name, Dims: dims, DataType: Float, RawData: raw})
