@@ -100,35 +100,33 @@ func flatten(img image.Image, r image.Rectangle, bg color.NRGBA) *image.NRGBA {
 		dst.Pix[i+0], dst.Pix[i+1], dst.Pix[i+2] = o.over(cr, cg, cb, ca)
 		dst.Pix[i+3] = 0xff
 	}
+	// An opaque pixel composites to itself (α = 1: out = c), and with α = 255
+	// premultiplied and straight values are the same, so for NRGBA and RGBA
+	// each row is copied whole and only the pixels with α < 255 are
+	// composited: an opaque picture (PNG without alpha, most photos) is a
+	// plain copy.
+	copyRows := func(pix []byte, offset func(x, y int) int, rgba func(p []byte) (r, g, b, a uint32)) {
+		for y := range h {
+			s := offset(r.Min.X, r.Min.Y+y)
+			d := y * dst.Stride
+			copy(dst.Pix[d:d+4*w], pix[s:s+4*w])
+			for x := range w {
+				if p := pix[s+4*x : s+4*x+4 : s+4*x+4]; p[3] != 0xff {
+					cr, cg, cb, ca := rgba(p)
+					put(d+4*x, cr, cg, cb, ca)
+				}
+			}
+		}
+	}
 	switch src := img.(type) {
 	case *image.NRGBA:
-		// An opaque pixel composites to itself (α = 1: out = c), so each row is
-		// copied whole and only the pixels with α < 255 are composited: an
-		// opaque picture (PNG without alpha, most photos) is a plain copy.
-		for y := range h {
-			s := src.PixOffset(r.Min.X, r.Min.Y+y)
-			d := y * dst.Stride
-			copy(dst.Pix[d:d+4*w], src.Pix[s:s+4*w])
-			for x := range w {
-				if p := src.Pix[s+4*x : s+4*x+4 : s+4*x+4]; p[3] != 0xff {
-					cr, cg, cb, ca := color.NRGBA{p[0], p[1], p[2], p[3]}.RGBA()
-					put(d+4*x, cr, cg, cb, ca)
-				}
-			}
-		}
+		copyRows(src.Pix, src.PixOffset, func(p []byte) (uint32, uint32, uint32, uint32) {
+			return color.NRGBA{p[0], p[1], p[2], p[3]}.RGBA()
+		})
 	case *image.RGBA:
-		// As for NRGBA: with α = 255 premultiplied and straight are the same.
-		for y := range h {
-			s := src.PixOffset(r.Min.X, r.Min.Y+y)
-			d := y * dst.Stride
-			copy(dst.Pix[d:d+4*w], src.Pix[s:s+4*w])
-			for x := range w {
-				if p := src.Pix[s+4*x : s+4*x+4 : s+4*x+4]; p[3] != 0xff {
-					cr, cg, cb, ca := color.RGBA{p[0], p[1], p[2], p[3]}.RGBA()
-					put(d+4*x, cr, cg, cb, ca)
-				}
-			}
-		}
+		copyRows(src.Pix, src.PixOffset, func(p []byte) (uint32, uint32, uint32, uint32) {
+			return color.RGBA{p[0], p[1], p[2], p[3]}.RGBA()
+		})
 	case *image.YCbCr:
 		for y := range h {
 			d := y * dst.Stride
