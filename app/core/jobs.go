@@ -60,17 +60,27 @@ func classification(res *infer.Result, labels []string, k int, fit *image.NRGBA)
 // Classify runs the model on img with the settings in force and returns its
 // k most probable classes.
 func (w *Workspace) Classify(ctx context.Context, img image.Image, k int) (*Classification, error) {
-	c, labels := w.snapshot()
-	s, err := w.session(false)
+	res, fit, labels, err := w.runOne(ctx, img, false)
 	if err != nil {
 		return nil, err
+	}
+	return classification(res, labels, k, fit)
+}
+
+// runOne runs the model once on img with the settings and labels in force,
+// capturing every activation layer when capture is set.
+func (w *Workspace) runOne(ctx context.Context, img image.Image, capture bool) (*infer.Result, *image.NRGBA, []string, error) {
+	c, labels := w.snapshot()
+	s, err := w.session(capture)
+	if err != nil {
+		return nil, nil, nil, err
 	}
 	fit, in := tensor(img, c)
 	res, err := s.Run(ctx, in, 1)
 	if err != nil {
-		return nil, fmt.Errorf("core: %s: %w", w.Model.Name, err)
+		return nil, nil, nil, fmt.Errorf("core: %s: %w", w.Model.Name, err)
 	}
-	return classification(res, labels, k, fit)
+	return res, fit, labels, nil
 }
 
 func (w *Workspace) snapshot() (prep.Config, []string) {
@@ -95,15 +105,9 @@ const MapLayout = "nchw"
 // Activations runs the model once on img, capturing every activation layer
 // (modelio.Model.ActivationLayers).
 func (w *Workspace) Activations(ctx context.Context, img image.Image) (*Activations, error) {
-	c, labels := w.snapshot()
-	s, err := w.session(true)
+	res, fit, labels, err := w.runOne(ctx, img, true)
 	if err != nil {
 		return nil, err
-	}
-	fit, in := tensor(img, c)
-	res, err := s.Run(ctx, in, 1)
-	if err != nil {
-		return nil, fmt.Errorf("core: %s: %w", w.Model.Name, err)
 	}
 	cl, err := classification(res, labels, 5, fit)
 	if err != nil {
