@@ -60,7 +60,7 @@ func classification(res *infer.Result, labels []string, k int, fit *image.NRGBA)
 // Classify runs the model on img with the settings in force and returns its
 // k most probable classes.
 func (w *Workspace) Classify(ctx context.Context, img image.Image, k int) (*Classification, error) {
-	res, fit, labels, err := w.runOne(ctx, img, false)
+	res, fit, labels, err := w.runOne(ctx, img, plainRun)
 	if err != nil {
 		return nil, err
 	}
@@ -68,10 +68,10 @@ func (w *Workspace) Classify(ctx context.Context, img image.Image, k int) (*Clas
 }
 
 // runOne runs the model once on img with the settings and labels in force,
-// capturing every activation layer when capture is set.
-func (w *Workspace) runOne(ctx context.Context, img image.Image, capture bool) (*infer.Result, *image.NRGBA, []string, error) {
+// in the session of kind k.
+func (w *Workspace) runOne(ctx context.Context, img image.Image, k kind) (*infer.Result, *image.NRGBA, []string, error) {
 	c, labels := w.snapshot()
-	s, err := w.session(capture)
+	s, err := w.session(k)
 	if err != nil {
 		return nil, nil, nil, err
 	}
@@ -105,7 +105,7 @@ const MapLayout = "nchw"
 // Activations runs the model once on img, capturing every activation layer
 // (modelio.Model.ActivationLayers).
 func (w *Workspace) Activations(ctx context.Context, img image.Image) (*Activations, error) {
-	res, fit, labels, err := w.runOne(ctx, img, true)
+	res, fit, labels, err := w.runOne(ctx, img, layersRun)
 	if err != nil {
 		return nil, err
 	}
@@ -166,7 +166,7 @@ func (w *Workspace) Occlude(ctx context.Context, img image.Image, set viz.Occlus
 	if err := CheckOcclusion(set, c.Width, c.Height); err != nil {
 		return nil, nil, err
 	}
-	s, err := w.session(false)
+	s, err := w.session(plainRun)
 	if err != nil {
 		return nil, nil, err
 	}
@@ -222,7 +222,7 @@ func (w *Workspace) Scan(ctx context.Context, files []string, o viz.ScanOptions,
 		return nil, inputf("", "no probe images to scan")
 	}
 	c, _ := w.snapshot()
-	s, err := w.session(true)
+	s, err := w.session(scanRun)
 	if err != nil {
 		return nil, err
 	}

@@ -40,8 +40,7 @@ type Workspace struct {
 	notes      []string // what the guess assumed and why
 	labels     []string
 	labelsFrom string
-	plain      *infer.Session   // model outputs only: classification, occlusion
-	capture    *infer.Session   // model outputs plus every activation layer
+	sessions   [kinds]*infer.Session // by kind, made on first use
 	retired    []*infer.Session // replaced after a change of input size; closed by Close
 	observed   bool
 }
@@ -91,14 +90,14 @@ func (w *Workspace) Close() error {
 	w.mu.Lock()
 	defer w.mu.Unlock()
 	var first error
-	for _, s := range append(w.retired, w.plain, w.capture) {
+	for _, s := range append(w.retired, w.sessions[:]...) {
 		if s != nil {
 			if err := s.Close(); err != nil && first == nil {
 				first = err
 			}
 		}
 	}
-	w.plain, w.capture, w.retired = nil, nil, nil
+	w.sessions, w.retired = [kinds]*infer.Session{}, nil
 	return first
 }
 
@@ -123,10 +122,10 @@ func (w *Workspace) SetPrep(c prep.Config) error {
 	if !slices.Equal(dims(w.Model, w.cfg), dims(w.Model, c)) {
 		// Sessions of a model with symbolic input sizes are made for one
 		// size. Jobs still running keep theirs; they are closed with w.
-		for _, s := range []**infer.Session{&w.plain, &w.capture} {
-			if *s != nil {
-				w.retired = append(w.retired, *s)
-				*s = nil
+		for i, s := range w.sessions {
+			if s != nil {
+				w.retired = append(w.retired, s)
+				w.sessions[i] = nil
 			}
 		}
 	}
@@ -313,22 +312,36 @@ func CheckPrep(m *modelio.Model, c prep.Config) error {
 	return nil
 }
 
-// session returns the plain or the capturing session, creating it on first use.
-func (w *Workspace) session(capture bool) (*infer.Session, error) {
+// kind is what a session returns besides the model's outputs.
+type kind int
+
+const (
+	plainRun  kind = iota // nothing: classification, occlusion
+	layersRun             // every layer's output the window can show (infer.LayerOutputs)
+	scanRun               // the ReLU-like maps a scan reads (viz.ScanCapture)
+	kinds
+)
+
+// session returns the session of kind k, creating it on first use. A scan
+// has its own: it runs many images, and capturing only the maps it reads
+// keeps the runtime's merged steps (modelio.CaptureEffect).
+func (w *Workspace) session(k kind) (*infer.Session, error) {
 	w.mu.Lock()
 	defer w.mu.Unlock()
-	return w.sessionLocked(capture)
+	return w.sessionLocked(k)
 }
 
-func (w *Workspace) sessionLocked(capture bool) (*infer.Session, error) {
+func (w *Workspace) sessionLocked(k kind) (*infer.Session, error) {
 	if !infer.Initialized() {
 		return nil, fmt.Errorf("core: ONNX Runtime is not loaded (call core.Start first)")
 	}
-	slot := &w.plain
+	slot := &w.sessions[k]
 	opt := infer.Options{Dims: dims(w.Model, w.cfg)}
-	if capture {
-		slot = &w.capture
-		opt.Capture = captureNames(w.Model)
+	switch k {
+	case layersRun:
+		opt.Capture = infer.LayerOutputs(w.Model)
+	case scanRun:
+		opt.Capture = viz.ScanCapture(w.Model)
 	}
 	if *slot == nil {
 		weights := 0
@@ -378,14 +391,3 @@ func (w *Workspace) ObserveShapes(ctx context.Context) error {
 	return nil
 }
 
-// captureNames are the tensors the capturing session returns: every
-// activation layer the window shows and every layer a scan reads.
-func captureNames(m *modelio.Model) []string {
-	names := infer.ActivationOutputs(m)
-	for _, n := range viz.ScanCapture(m) {
-		if !slices.Contains(names, n) {
-			names = append(names, n)
-		}
-	}
-	return names
-}

@@ -22,7 +22,13 @@ type Options struct {
 	Threads int
 	// Capture names intermediate tensors to return besides the model's
 	// outputs, in Result.Maps; ActivationOutputs(m) lists every activation
-	// map. Names that are already model outputs are returned from those.
+	// map, LayerOutputs(m) every layer's output. Names that are already
+	// model outputs are returned from those. The model's outputs in a
+	// Result are always those of a plain run, bit for bit: when a captured
+	// tensor would stop a merge that rounds differently
+	// (modelio.CaptureShifts, e.g. a Conv output read only by a
+	// BatchNormalization), the session also runs the unchanged model on
+	// each chunk for the outputs, which costs one plain run more.
 	Capture []string
 	// Dims are the per-image dimensions (without the batch) of an image
 	// input whose dimensions the model leaves symbolic, in the model's
@@ -55,6 +61,9 @@ type Session struct {
 	model  *modelio.Model
 	ort    *ort.DynamicAdvancedSession
 	runOpt *ort.RunOptions
+	// twin runs the unchanged model for the model's outputs when the
+	// captures would change them (see Options.Capture); nil otherwise.
+	twin *ort.DynamicAdvancedSession
 
 	feeds    []modelio.Value // the inputs the session is fed, in graph order
 	image    int             // index in feeds of the input Run feeds; -1 when Run cannot be used
@@ -189,8 +198,17 @@ func NewSession(m *modelio.Model, opt Options) (*Session, error) {
 	if err != nil {
 		return nil, runtimeError(file, err)
 	}
+	if slices.ContainsFunc(extra, func(n string) bool { return m.CaptureEffect(n) == modelio.CaptureShifts }) {
+		if s.twin, err = ort.NewDynamicAdvancedSessionWithONNXData(m.Bytes(), in, s.names[:s.nOut], so); err != nil {
+			s.ort.Destroy()
+			return nil, runtimeError(file, err)
+		}
+	}
 	if s.runOpt, err = ort.NewRunOptions(); err != nil {
 		s.ort.Destroy()
+		if s.twin != nil {
+			s.twin.Destroy()
+		}
 		return nil, runtimeError(file, err)
 	}
 	s.perImage = make([]int, len(s.names))
@@ -377,7 +395,10 @@ func (s *Session) Close() error {
 	}
 	s.ort.Destroy()
 	s.runOpt.Destroy()
-	s.ort, s.runOpt = nil, nil
+	if s.twin != nil {
+		s.twin.Destroy()
+	}
+	s.ort, s.runOpt, s.twin = nil, nil, nil
 	return nil
 }
 
@@ -492,6 +513,9 @@ func (s *Session) runChunks(ctx context.Context, input []float32, n int, dst *Re
 				}
 			}
 			destroy(raw)
+			if err == nil {
+				err = s.exactOutputs(ctx, in, feed, c, res, start)
+			}
 			if err != nil {
 				return nil, err
 			}
@@ -503,8 +527,39 @@ func (s *Session) runChunks(ctx context.Context, input []float32, n int, dst *Re
 		if err := s.runInto(ctx, in, c, shapes, res, start); err != nil {
 			return nil, err
 		}
+		if err := s.exactOutputs(ctx, in, feed, c, res, start); err != nil {
+			return nil, err
+		}
 	}
 	return res, nil
+}
+
+// exactOutputs overwrites the model's outputs of the chunk (c images of the
+// feed images in in, starting at image start of res) with those of the
+// unchanged model, when the session has a twin.
+func (s *Session) exactOutputs(ctx context.Context, in []float32, feed, c int, res *Result, start int) error {
+	if s.twin == nil {
+		return nil
+	}
+	x, err := ort.NewTensor(s.inputShape(feed), in)
+	if err != nil {
+		return fmt.Errorf("infer: %s: input tensor: %w", s.file, err)
+	}
+	defer x.Destroy()
+	outs := make([]ort.Value, s.nOut)
+	defer destroy(outs)
+	if err := s.execOn(ctx, s.twin, []ort.Value{x}, outs); err != nil {
+		return err
+	}
+	for j, v := range outs {
+		t, ok := v.(*ort.Tensor[float32])
+		per := s.perImage[j]
+		if !ok || len(t.GetData()) < c*per {
+			return fmt.Errorf("infer: %s: output %q of the unchanged model does not match the rewritten one's", s.file, s.names[j])
+		}
+		copy(s.out(res, j)[start*per:(start+c)*per], t.GetData()[:c*per])
+	}
+	return nil
 }
 
 // out returns the slice of the Result that receives returned tensor j.
@@ -642,6 +697,10 @@ func (s *Session) inputShape(c int) ort.Shape {
 // flag, which it checks between nodes; the callback has finished before
 // exec returns, so no goroutine outlives the call.
 func (s *Session) exec(ctx context.Context, in, out []ort.Value) error {
+	return s.execOn(ctx, s.ort, in, out)
+}
+
+func (s *Session) execOn(ctx context.Context, sess *ort.DynamicAdvancedSession, in, out []ort.Value) error {
 	if err := s.runOpt.UnsetTerminate(); err != nil {
 		return runtimeError(s.file, err)
 	}
@@ -650,7 +709,7 @@ func (s *Session) exec(ctx context.Context, in, out []ort.Value) error {
 		defer close(fired)
 		_ = s.runOpt.Terminate()
 	})
-	err := s.ort.RunWithOptions(in, out, s.runOpt)
+	err := sess.RunWithOptions(in, out, s.runOpt)
 	if !stop() {
 		<-fired
 	}
