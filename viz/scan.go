@@ -222,11 +222,16 @@ func kernelFlags(ctx context.Context, m *modelio.Model, accs []*layerAcc) map[in
 		if ctx.Err() != nil {
 			return out
 		}
-		k, err := m.Kernels(m.Layers[a.conv].Name)
-		if err != nil {
-			continue
+		f, ok := memoFlags(m, m.Layers[a.conv].Name, func() (convFlags, bool) {
+			k, err := m.Kernels(m.Layers[a.conv].Name)
+			if err != nil {
+				return convFlags{}, false
+			}
+			return convFlags{m: k.M, flags: KernelFlags(k)}, true
+		})
+		if ok {
+			out[a.conv] = f
 		}
-		out[a.conv] = convFlags{m: k.M, flags: KernelFlags(k)}
 	}
 	return out
 }

@@ -308,7 +308,8 @@ func checkKernels(k *modelio.Kernels) error {
 		return fmt.Errorf("viz: kernels of %s: shape %d×%d×%d×%d needs %d weights, have %d", kname(k), k.M, k.C, k.KH, k.KW, n, len(k.W))
 	}
 	for i, v := range k.W {
-		if math.IsNaN(float64(v)) || math.IsInf(float64(v), 0) {
+		// NaN fails both comparisons; ±Inf fails one.
+		if !(v >= -math.MaxFloat32 && v <= math.MaxFloat32) {
 			per := k.C * k.KH * k.KW
 			return fmt.Errorf("viz: kernels of %s: filter %d has a non-finite weight (%v)", kname(k), i/per, v)
 		}
@@ -355,9 +356,13 @@ func Duplicates(k *modelio.Kernels) []Pair {
 	if checkKernels(k) != nil {
 		return nil
 	}
+	return duplicates(k, zeroFilters(k))
+}
+
+// duplicates is Duplicates for checked kernels whose zero filters are known.
+func duplicates(k *modelio.Kernels, zero []bool) []Pair {
 	per := k.C * k.KH * k.KW
 	norms := filterNorms(k)
-	zero := zeroFilters(k)
 	live := make([]int, 0, k.M)
 	for i := range k.M {
 		if !zero[i] {
@@ -442,10 +447,19 @@ func zeroFilters(k *modelio.Kernels) []bool {
 	layerMax := 0.0
 	maxAbs := make([]float64, k.M)
 	for m := range k.M {
+		// float32 comparisons: exact, and several times faster than
+		// math.Max on float64 (the weights are finite: checkKernels).
+		var hi float32
 		for _, v := range k.W[m*per : (m+1)*per] {
-			maxAbs[m] = math.Max(maxAbs[m], math.Abs(float64(v)))
+			if v < 0 {
+				v = -v
+			}
+			if v > hi {
+				hi = v
+			}
 		}
-		layerMax = math.Max(layerMax, maxAbs[m])
+		maxAbs[m] = float64(hi)
+		layerMax = max(layerMax, maxAbs[m])
 	}
 	out := make([]bool, k.M)
 	for m := range out {
@@ -464,13 +478,14 @@ func KernelFlags(k *modelio.Kernels) map[int][]string {
 	if checkKernels(k) != nil {
 		return out
 	}
-	for m, z := range zeroFilters(k) {
+	zero := zeroFilters(k)
+	for m, z := range zero {
 		if z {
 			out[m] = append(out[m], FlagZeroKernel)
 		}
 	}
 	dup := map[int]bool{}
-	for _, p := range Duplicates(k) {
+	for _, p := range duplicates(k, zero) {
 		dup[p.I], dup[p.J] = true, true
 	}
 	for m := range k.M {

@@ -41,7 +41,7 @@ type Workspace struct {
 	labels     []string
 	labelsFrom string
 	sessions   [kinds]*infer.Session // by kind, made on first use
-	retired    []*infer.Session // replaced after a change of input size; closed by Close
+	retired    []*infer.Session      // replaced after a change of input size; closed by Close
 	observed   bool
 }
 
@@ -342,6 +342,7 @@ func (w *Workspace) sessionLocked(k kind) (*infer.Session, error) {
 		opt.Capture = infer.LayerOutputs(w.Model)
 	case scanRun:
 		opt.Capture = viz.ScanCapture(w.Model)
+		opt.NoSpin = true // the scan decodes images on the same cores meanwhile
 	}
 	if *slot == nil {
 		weights := 0
@@ -390,4 +391,3 @@ func (w *Workspace) ObserveShapes(ctx context.Context) error {
 	w.observed = true
 	return nil
 }
-

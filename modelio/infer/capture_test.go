@@ -115,3 +115,31 @@ func TestCaptureKeepsOutputs(t *testing.T) {
 		})
 	}
 }
+
+// Options.NoSpin changes how the runtime's threads wait, not what they
+// compute: the outputs and maps equal the default session's bit for bit.
+func TestNoSpinSameResults(t *testing.T) {
+	m := openTiny(t, 0, false)
+	def := newSession(t, m, Options{Capture: tinyOutputs, Threads: 2})
+	quiet := newSession(t, m, Options{Capture: tinyOutputs, Threads: 2, NoSpin: true})
+	x := images(4)
+	a, err := def.Run(context.Background(), x, 4)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := quiet.Run(context.Background(), x, 4)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !bitsEqual(a.Outputs[0].Data, b.Outputs[0].Data) {
+		t.Error("outputs differ with NoSpin")
+	}
+	for name, ma := range a.Maps {
+		if !bitsEqual(ma.Data, b.Maps[name].Data) {
+			t.Errorf("map %s differs with NoSpin", name)
+		}
+	}
+	if len(a.Maps) != len(tinyOutputs) || len(b.Maps) != len(a.Maps) {
+		t.Errorf("maps: %d and %d, want %d", len(a.Maps), len(b.Maps), len(tinyOutputs))
+	}
+}

@@ -37,6 +37,14 @@ type Options struct {
 	// Batch overrides the preferred chunk size for a model whose batch
 	// dimension is symbolic; 0 chooses it from the memory budget.
 	Batch int
+	// NoSpin makes the runtime's worker threads sleep between operators
+	// instead of spinning (its session.intra_op.allow_spinning = 0). A
+	// session whose caller keeps Go goroutines busy meanwhile (a scan
+	// decoding the next images while the model runs) wants it: spinning
+	// workers take the cores those goroutines need, and a worker pre-empted
+	// in the middle of an operator makes the other spin longer. Left off,
+	// a lone run is a little faster.
+	NoSpin bool
 }
 
 // Limits that keep a run away from sizes that only a broken or hostile
@@ -173,6 +181,12 @@ func NewSession(m *modelio.Model, opt Options) (*Session, error) {
 		func() error { return so.SetIntraOpNumThreads(threads) },
 		func() error { return so.SetInterOpNumThreads(1) },
 		func() error { return so.SetExecutionMode(ort.ExecutionModeSequential) },
+		func() error {
+			if opt.NoSpin {
+				return so.AddSessionConfigEntry("session.intra_op.allow_spinning", "0")
+			}
+			return nil
+		},
 		// Failures come back as errors; the runtime need not also print
 		// them on standard error.
 		func() error { return so.SetLogSeverityLevel(ort.LoggingLevelFatal) },

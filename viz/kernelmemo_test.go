@@ -1,0 +1,63 @@
+package viz
+
+import (
+	"runtime"
+	"testing"
+	"time"
+	"weak"
+
+	"fovea/modelio"
+)
+
+// The memo computes a convolution's flags once per model and forgets the
+// model when it is collected (so a long session opening many models does not
+// keep their flags).
+func TestKernelMemo(t *testing.T) {
+	m := scanModel(t)
+	calls := 0
+	compute := func() (convFlags, bool) {
+		calls++
+		return convFlags{m: 3, flags: map[int][]string{1: {FlagZeroKernel}}}, true
+	}
+	for range 3 {
+		f, ok := memoFlags(m, "conv", compute)
+		if !ok || f.m != 3 || f.flags[1][0] != FlagZeroKernel {
+			t.Fatalf("memoFlags = %+v, %v", f, ok)
+		}
+	}
+	if calls != 1 {
+		t.Errorf("flags computed %d times for one model, want 1", calls)
+	}
+	if _, ok := memoFlags(m, "other", func() (convFlags, bool) { return convFlags{}, false }); ok {
+		t.Error("a failed computation was reported as ok")
+	}
+	if _, ok := memoFlags(m, "other", compute); !ok || calls != 2 {
+		t.Errorf("a failed computation was kept (calls %d)", calls)
+	}
+	if n := memoSize(); n < 1 {
+		t.Fatalf("memo holds %d models", n)
+	}
+	key := weak.Make(m)
+	m = nil // drop the last reference
+	deadline := time.Now().Add(5 * time.Second)
+	for memoHolds(key) && time.Now().Before(deadline) {
+		runtime.GC()
+		time.Sleep(10 * time.Millisecond)
+	}
+	if memoHolds(key) {
+		t.Error("the memo still holds the flags of a collected model")
+	}
+}
+
+func memoSize() int {
+	kernelMemo.Lock()
+	defer kernelMemo.Unlock()
+	return len(kernelMemo.byModel)
+}
+
+func memoHolds(key weak.Pointer[modelio.Model]) bool {
+	kernelMemo.Lock()
+	defer kernelMemo.Unlock()
+	_, ok := kernelMemo.byModel[key]
+	return ok
+}
