@@ -304,10 +304,10 @@ func BenchmarkScanRatio(b *testing.B) {
 func scanRatio(b *testing.B, bc benchCase) {
 	ctx := context.Background()
 	m, cfg := benchOpen(b, bc.path)
-	// The scan's session is made as the window's is (app/core: NoSpin, see
-	// infer.Options); the bound's with the default options, which are the
-	// fastest for runs that have the cores to themselves.
-	s, err := infer.NewSession(m, infer.Options{Capture: viz.ScanCapture(m), NoSpin: true})
+	// The scan's session is made as the window's is (viz.ScanSession); the
+	// bound's with the default options, the fastest for runs that have the
+	// cores to themselves.
+	s, err := infer.NewSession(m, viz.ScanSession(m, nil))
 	if err != nil {
 		b.Fatal(err)
 	}

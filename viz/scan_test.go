@@ -16,6 +16,7 @@ import (
 
 	"fovea/modelio"
 	"fovea/modelio/infer"
+	"fovea/modelio/onnxbuild"
 	"fovea/modelio/prep"
 )
 
@@ -428,5 +429,31 @@ func TestScanNotFinite(t *testing.T) {
 	var buf strings.Builder
 	if err := r.WriteJSON(&buf); err != nil {
 		t.Errorf("JSON of a report with an infinite channel: %v", err)
+	}
+}
+
+// ScanSession lets the runtime's workers sleep for a model light per pixel
+// and spin for a heavy one (the thresholds are this project's measurements,
+// see spinMACsPerPixel), and always captures the maps the scan reads.
+func TestScanSessionOptions(t *testing.T) {
+	light := scanModel(t)
+	if o := ScanSession(light, nil); !o.NoSpin || !slices.Equal(o.Capture, ScanCapture(light)) {
+		t.Errorf("light model (%d MACs for %d×%d pixels): %+v", light.Total.MACs, light.Image.Width, light.Image.Height, o)
+	}
+	b := onnxbuild.New(13, onnxbuild.Zeros)
+	x := b.Input("image", onnxbuild.Float, "N", 3, 32, 32)
+	x = b.Relu(b.Conv(x, 3, 256, 3, 1, 1))
+	x = b.Relu(b.Conv(x, 256, 256, 3, 1, 1)) // 256·256·9 ≈ 590,000 MACs per pixel
+	b.Output(b.Gemm(b.Flatten(b.GlobalAveragePool(x)), 256, 4))
+	p := filepath.Join(t.TempDir(), "heavy.onnx")
+	if err := b.Write(p); err != nil {
+		t.Fatal(err)
+	}
+	heavy, err := modelio.Open(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if o := ScanSession(heavy, nil); o.NoSpin {
+		t.Errorf("heavy model (%d MACs for 32×32 pixels): workers told to sleep", heavy.Total.MACs)
 	}
 }

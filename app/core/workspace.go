@@ -341,8 +341,7 @@ func (w *Workspace) sessionLocked(k kind) (*infer.Session, error) {
 	case layersRun:
 		opt.Capture = infer.LayerOutputs(w.Model)
 	case scanRun:
-		opt.Capture = viz.ScanCapture(w.Model)
-		opt.NoSpin = true // the scan decodes images on the same cores meanwhile
+		opt = viz.ScanSession(w.Model, opt.Dims)
 	}
 	if *slot == nil {
 		weights := 0
