@@ -4,6 +4,7 @@ import (
 	"flag"
 	"fmt"
 
+	"fovea/modelio"
 	"fovea/viz"
 )
 
@@ -79,15 +80,15 @@ type filtersDoc struct {
 }
 
 type tileDoc struct {
-	Index int      `json:"index"`
-	Norm  float64  `json:"norm"`
-	Rect  [4]int   `json:"rect"` // x, y, width, height in the PNG
-	Flags []string `json:"flags"`
+	Index int            `json:"index"`
+	Norm  float64        `json:"norm"`
+	Rect  [4]int         `json:"rect"` // x, y, width, height in the PNG
+	Flags []modelio.Flag `json:"flags"`
 }
 
-func nonNil(s []string) []string {
+func nonNil[T any](s []T) []T {
 	if s == nil {
-		return []string{}
+		return []T{}
 	}
 	return s
 }

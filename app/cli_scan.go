@@ -7,7 +7,8 @@ import (
 	"strings"
 
 	"fovea/app/core"
-	"fovea/viz"
+	"fovea/modelio"
+	"fovea/viz/analysis"
 )
 
 var scanCommand = &command{
@@ -27,7 +28,7 @@ training pipeline can stop a bad run.`,
 		asCSV := fs.Bool("csv", false, "print every channel as CSV")
 		asJSON := fs.Bool("json", false, "print the report as JSON")
 		maxDead := fs.Int("max-dead", -1, "exit with status 3 when more than `N` channels are dead (default: no limit)")
-		rare := fs.Float64("rare", viz.DefaultRare, "`FRACTION` of images under which a firing channel is rare")
+		rare := fs.Float64("rare", analysis.DefaultRare, "`FRACTION` of images under which a firing channel is rare")
 		skip := fs.Bool("skip-unreadable", false, "pass over probe files that cannot be read (listed in the report) instead of stopping")
 		all := fs.Bool("all", false, "list every channel in the table, not only flagged ones")
 		return func(j *job) int {
@@ -54,7 +55,7 @@ training pipeline can stop a bad run.`,
 			if err != nil {
 				return j.fail(err)
 			}
-			r, err := j.ws.Scan(j.ctx, files, viz.ScanOptions{Rare: *rare, SkipUnreadable: *skip}, j.progressFunc("scanning"))
+			r, err := j.ws.Scan(j.ctx, files, analysis.ScanOptions{Rare: *rare, SkipUnreadable: *skip}, j.progressFunc("scanning"))
 			if err != nil {
 				return j.fail(err)
 			}
@@ -74,7 +75,7 @@ training pipeline can stop a bad run.`,
 			if code != exitOK {
 				return code
 			}
-			if dead := r.Count(viz.FlagDead); *maxDead >= 0 && dead > *maxDead {
+			if dead := r.Count(modelio.FlagDead); *maxDead >= 0 && dead > *maxDead {
 				fmt.Fprintf(j.stderr, "fovea scan: %d dead channels, more than --max-dead %d\n", dead, *maxDead)
 				return exitGate
 			}
@@ -84,7 +85,7 @@ training pipeline can stop a bad run.`,
 }
 
 // writeScanTable prints the flagged channels (or all) and a summary per layer.
-func writeScanTable(j *job, r *viz.ScanReport, all bool) {
+func writeScanTable(j *job, r *analysis.ScanReport, all bool) {
 	w := j.stdout
 	fmt.Fprintf(w, "%s: %d probe images, rare below %g of them\n", j.ws.Name(), r.Images, r.Rare)
 	for _, s := range r.Skipped {
@@ -99,7 +100,7 @@ func writeScanTable(j *job, r *viz.ScanReport, all bool) {
 			continue
 		}
 		rows++
-		t.add(row.Layer, strconv.Itoa(row.Index), fmt.Sprintf("%.1f%%", 100*row.Fires), num(row.Max), num(row.Mean), strings.Join(row.Flags, " "))
+		t.add(row.Layer, strconv.Itoa(row.Index), fmt.Sprintf("%.1f%%", 100*row.Fires), num(row.Max), num(row.Mean), joinFlags(row.Flags))
 	}
 	if rows == 0 {
 		fmt.Fprintln(w, "no channel is flagged")
@@ -108,13 +109,18 @@ func writeScanTable(j *job, r *viz.ScanReport, all bool) {
 	}
 	fmt.Fprintln(w)
 	s := table{right: []bool{false, true, true, true, true, true, true}}
-	s.add("layer", "channels", viz.FlagDead, viz.FlagRare, viz.FlagConstant, viz.FlagZeroKernel, viz.FlagDuplicate)
+	countFlags := []modelio.Flag{modelio.FlagDead, modelio.FlagRare, modelio.FlagConstant, modelio.FlagZeroKernel, modelio.FlagDuplicate}
+	head := []string{"layer", "channels"}
+	for _, f := range countFlags {
+		head = append(head, string(f))
+	}
+	s.add(head...)
 	var total [6]int
 	for _, l := range r.Layers {
 		var n [6]int
 		n[0] = len(l.Channels)
 		for _, ch := range l.Channels {
-			for i, f := range []string{viz.FlagDead, viz.FlagRare, viz.FlagConstant, viz.FlagZeroKernel, viz.FlagDuplicate} {
+			for i, f := range countFlags {
 				for _, g := range ch.Flags {
 					if g == f {
 						n[i+1]++
@@ -140,3 +146,12 @@ func writeScanTable(j *job, r *viz.ScanReport, all bool) {
 
 // num prints a measured value with 4 significant digits.
 func num(v float64) string { return strconv.FormatFloat(v, 'g', 4, 64) }
+
+// joinFlags spells flags as the table shows them: separated by spaces.
+func joinFlags(flags []modelio.Flag) string {
+	s := make([]string, len(flags))
+	for i, f := range flags {
+		s[i] = string(f)
+	}
+	return strings.Join(s, " ")
+}

@@ -34,9 +34,11 @@ import (
 	"fovea/app/core"
 	"fovea/assets"
 	"fovea/modelio"
+	"fovea/modelio/classes"
 	"fovea/modelio/infer"
 	"fovea/modelio/prep"
 	"fovea/viz"
+	"fovea/viz/analysis"
 )
 
 var update = flag.Bool("update", false, "rewrite the golden PNGs in testdata/golden/cli instead of comparing")
@@ -353,11 +355,11 @@ func TestCLIClassify(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	p, already := infer.Probabilities(res.Scores(0))
+	p, already := classes.Probabilities(res.Scores(0))
 	if already {
 		t.Errorf("demo model returns logits (assets/assets.go), but Probabilities says they are probabilities")
 	}
-	want := infer.TopK(p, assets.Labels(), 3)
+	want := classes.TopK(p, assets.Labels(), 3)
 
 	var doc struct {
 		Top []struct {
@@ -376,7 +378,7 @@ func TestCLIClassify(t *testing.T) {
 		}
 	}
 	// Softmax by hand (its definition: exp(s_i) / Σ exp(s_j)), from the raw
-	// logits: independent of infer.Probabilities.
+	// logits: independent of classes.Probabilities.
 	scores := res.Scores(0)
 	var z float64
 	for _, s := range scores {
@@ -468,8 +470,8 @@ func TestCLIPreprocessingFlags(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	p, _ := infer.Probabilities(res.Scores(0))
-	want := infer.TopK(p, assets.Labels(), 7)
+	p, _ := classes.Probabilities(res.Scores(0))
+	want := classes.TopK(p, assets.Labels(), 7)
 
 	out, errs, code := runCLI(t, "classify", "--model", d.model, "--image", d.image, "--k", "7", "--json", "--verbose",
 		"--mean", "0.5,0.25,0.125", "--std", "0.5,0.5,2", "--bgr", "--resize", "crop", "--size", "64x64", "--range", "0-1", "--layout", "nchw")
@@ -663,10 +665,10 @@ func TestCLIOcclude(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	p, _ := infer.Probabilities(res.Scores(0))
-	top := infer.TopK(p, assets.Labels(), 2)
+	p, _ := classes.Probabilities(res.Scores(0))
+	top := classes.TopK(p, assets.Labels(), 2)
 	set := viz.OcclusionSettings{Patch: 16, Stride: 8, Fill: viz.FillGrey, Score: viz.ScoreProbability}
-	want, err := viz.Occlude(t.Context(), s, lib.cfg, lib.fit, set, []int{top[0].Index, top[1].Index}, nil)
+	want, err := analysis.Occlude(t.Context(), s, lib.cfg, lib.fit, set, []int{top[0].Index, top[1].Index}, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -718,7 +720,7 @@ func TestCLIOcclude(t *testing.T) {
 	decodeJSON(t, mustRun(t, "occlude", "--model", d.model, "--image", d.image, "--json", "--class", strconv.Itoa(top[1].Index),
 		"--fill", "zero", "--score", "logit", "--patch", "32", "--stride", "32"), &doc)
 	set = viz.OcclusionSettings{Patch: 32, Stride: 32, Fill: viz.FillZero, Score: viz.ScoreLogit}
-	w2, err := viz.Occlude(t.Context(), s, lib.cfg, lib.fit, set, []int{top[1].Index}, nil)
+	w2, err := analysis.Occlude(t.Context(), s, lib.cfg, lib.fit, set, []int{top[1].Index}, nil)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -1,10 +1,11 @@
-// Package viz turns a model and images into numbers and pictures: first-layer
-// filter tiles, activation-map grids and overlays, occlusion sensitivity, the
-// dead-filter scan, colour maps, colour bars and the one-page report.
+// Package viz draws pictures from data: first-layer filter tiles,
+// activation-map grids and overlays, occlusion heatmaps, colour maps, colour
+// bars, composed panels and the one-page report.
 //
-// The window and the command-line mode both call viz; viz imports no GUI
-// package (a test checks it with go list -deps). Every analysis returns its
-// data (for tables, CSV and tests) separately from its pictures.
+// The window and the command-line mode both call viz. It imports no GUI
+// package and no model runtime (a test checks both with go list -deps): the
+// analyses that run a model live in the sub-package analysis and hand their
+// results here as plain data.
 //
 // # Pictures
 //
@@ -25,7 +26,7 @@
 //
 // # Tensors
 //
-// Activation tensors are infer.Tensor values: float32, row-major, for one
+// Activation tensors are modelio.Tensor values: float32, row-major, for one
 // layer, in the model's layout, either NCHW ([n][c][h][w]) or NHWC
 // ([n][h][w][c]); the layout is passed beside the tensor as "nchw" or "nhwc".
 // Kernels are modelio.Kernels, [M][C][kH][kW] row-major.

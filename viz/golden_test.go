@@ -13,7 +13,6 @@ import (
 	"testing"
 
 	"fovea/modelio"
-	"fovea/modelio/infer"
 )
 
 // updateGolden rewrites the golden pictures instead of comparing with them:
@@ -158,7 +157,7 @@ func goldenKernels() *modelio.Kernels {
 
 func TestGoldenTiles(t *testing.T) {
 	k := goldenKernels()
-	img, _, err := Tiles(k, TileOptions{Slice: -1, Cell: 6, Labels: true, Columns: 3, Flags: map[int][]string{5: {FlagRare}}})
+	img, _, err := Tiles(k, TileOptions{Slice: -1, Cell: 6, Labels: true, Columns: 3, Flags: map[int][]modelio.Flag{5: {modelio.FlagRare}}})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -172,7 +171,7 @@ func TestGoldenTiles(t *testing.T) {
 
 // goldenMaps: one image, 4 channels of 5×5 (NCHW). Channel c at (y, x) is
 // max(0, (c+1)·sin(0.9·x + c)·cos(0.7·y)), channel 3 is all zero (dead).
-func goldenMaps() infer.Tensor {
+func goldenMaps() modelio.Tensor {
 	d := make([]float32, 4*5*5)
 	for c := range 3 {
 		for y := range 5 {
@@ -182,7 +181,7 @@ func goldenMaps() infer.Tensor {
 			}
 		}
 	}
-	return infer.Tensor{Name: "relu1", Shape: []int64{1, 4, 5, 5}, Data: d}
+	return modelio.Tensor{Name: "relu1", Shape: []int64{1, 4, 5, 5}, Data: d}
 }
 
 // goldenBase: a 40×40 picture: a horizontal blue-to-red gradient with a

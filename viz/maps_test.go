@@ -9,11 +9,10 @@ import (
 	"testing"
 
 	"fovea/modelio"
-	"fovea/modelio/infer"
 )
 
-func tensor(shape []int64, data ...float32) infer.Tensor {
-	return infer.Tensor{Name: "act", Shape: shape, Data: data}
+func tensor(shape []int64, data ...float32) modelio.Tensor {
+	return modelio.Tensor{Name: "act", Shape: shape, Data: data}
 }
 
 func TestMapGridStats(t *testing.T) {
@@ -135,7 +134,7 @@ func TestMapGridBatchAndChannels(t *testing.T) {
 func TestMapGridErrors(t *testing.T) {
 	for _, c := range []struct {
 		name   string
-		t      infer.Tensor
+		t      modelio.Tensor
 		layout string
 		o      GridOptions
 		want   string

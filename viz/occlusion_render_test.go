@@ -13,7 +13,7 @@ import (
 // fakeOcclusion is an occlusion result over a w×h image with every score
 // set to v (no model: the picture only reads the numbers).
 func fakeOcclusion(w, h, patch, stride int, v float64, target int, label string) *Occlusion {
-	ys, xs := patchPositions(h, patch, stride), patchPositions(w, patch, stride)
+	ys, xs := PatchPositions(h, patch, stride), PatchPositions(w, patch, stride)
 	o := &Occlusion{OcclusionSettings: OcclusionSettings{Patch: patch, Stride: stride, Fill: FillGrey, Score: ScoreProbability},
 		Target: target, Label: label, Base: 0.5, Probability: 0.5, Ys: ys, Xs: xs, Width: w, Height: h}
 	for range ys {

@@ -2,12 +2,11 @@ package viz
 
 import (
 	"fmt"
+	"fovea/modelio/classes"
 	"image"
 	"image/color"
 	"math"
 	"strings"
-
-	"fovea/modelio/infer"
 )
 
 // Caution is the sentence every report carries (house rule: pictures that
@@ -17,8 +16,8 @@ const Caution = "A heatmap is evidence about this model on this image, not proof
 
 // ReportInput is what the one-page report shows.
 type ReportInput struct {
-	Image image.Image        // the image as the model saw it
-	TopK  []infer.Prediction // the model's top predictions, most probable first (at most 8 drawn)
+	Image image.Image          // the image as the model saw it
+	TopK  []classes.Prediction // the model's top predictions, most probable first (at most 8 drawn)
 	// Expected is the label the user expected, when the report explains a
 	// misclassification; "" when none. A prediction with this label is marked.
 	Expected  string
@@ -184,7 +183,7 @@ func section(img *image.NRGBA, x, y, w int, title string) {
 	fill(img, image.Rect(x, y+26, x+w, y+28), repRule)
 }
 
-func quoteLabel(p infer.Prediction) string {
+func quoteLabel(p classes.Prediction) string {
 	if p.Label != "" {
 		return "\u201c" + p.Label + "\u201d"
 	}
@@ -199,7 +198,7 @@ func settingsHeight(lines []string) int {
 }
 
 // predictions draws the top-k list as labelled bars in r.
-func predictions(img *image.NRGBA, r image.Rectangle, top []infer.Prediction, expected string) {
+func predictions(img *image.NRGBA, r image.Rectangle, top []classes.Prediction, expected string) {
 	if len(top) == 0 {
 		DrawText(img, r.Min.X, r.Min.Y, "no predictions", TextStyle{Size: 20, Color: inkMuted})
 		return

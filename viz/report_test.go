@@ -2,14 +2,13 @@ package viz
 
 import (
 	"bytes"
+	"fovea/modelio/classes"
 	"image"
 	"image/color"
 	"os/exec"
 	"slices"
 	"strings"
 	"testing"
-
-	"fovea/modelio/infer"
 )
 
 func solid(w, h int, c color.NRGBA) *image.NRGBA {
@@ -78,7 +77,7 @@ func reportInput() ReportInput {
 	heat := OverlayScores(goldenBase(), g, pos, pos, 16, 0.4, 0.85)
 	return ReportInput{
 		Image:     goldenBase(),
-		TopK:      []infer.Prediction{{Index: 3, Label: "hex bolt", Probability: 0.62}, {Index: 1, Label: "wing nut", Probability: 0.21}},
+		TopK:      []classes.Prediction{{Index: 3, Label: "hex bolt", Probability: 0.62}, {Index: 1, Label: "wing nut", Probability: 0.21}},
 		Expected:  "wing nut",
 		Panels:    []Panel{{heat, "hex bolt"}, {heat, "wing nut"}},
 		Legend:    ColorBar(600, 90, -0.4, 0.4, "drop in probability", Diverging),

@@ -12,25 +12,6 @@ import (
 	"fovea/modelio"
 )
 
-// Flags that mark a filter. KernelFlags computes the first two from the
-// weights; the dead-filter scan adds the others from activations.
-const (
-	FlagZeroKernel = "zero_kernel" // every weight is (near) zero: the filter outputs only its bias
-	FlagDuplicate  = "duplicate"   // cosine similarity above DuplicateCosine with another filter
-	FlagDead       = "dead"        // never fires on the probe images
-	FlagRare       = "rare"        // fires on fewer than the rare fraction of probe images
-	FlagConstant   = "constant"    // its output does not change across positions and images
-)
-
-// DuplicateCosine is the cosine similarity above which two filters count as
-// near-duplicates.
-const DuplicateCosine = 0.95
-
-// zeroRel is the relative size below which a filter counts as zero: its
-// largest |weight| is at most zeroRel times the largest |weight| of the layer.
-// Exactly zero filters (pruned) always qualify.
-const zeroRel = 1e-6
-
 // TileOptions are the knobs of [Tiles]. The zero value gives a useful
 // picture for a 3-channel first layer except that Slice 0 selects input
 // channel 0: set Slice to -1 for the RGB rendering.
@@ -48,7 +29,7 @@ type TileOptions struct {
 	SortByNorm bool
 	// Flags adds flags per filter index (from a scan: "dead", "rare",
 	// "constant"); they are merged with KernelFlags of the kernels.
-	Flags map[int][]string
+	Flags map[int][]modelio.Flag
 	// Slice selects the input channel to draw with the Diverging map.
 	// -1 draws 3-channel kernels as RGB and 1-channel kernels with the
 	// Diverging map; for other channel counts -1 is an error.
@@ -70,12 +51,12 @@ type TileInfo struct {
 	Index int             // filter index m in the kernels
 	Norm  float64         // L2 norm of the whole filter (all input channels)
 	Rect  image.Rectangle // where the weights are drawn (without frame and label)
-	Flags []string        // merged flags, sorted
+	Flags []modelio.Flag  // merged flags, sorted
 }
 
 // flagLetter is the one-letter mark of a flag in tile labels.
-var flagLetter = map[string]string{
-	FlagZeroKernel: "Z", FlagDuplicate: "D", FlagDead: "X", FlagRare: "R", FlagConstant: "C",
+var flagLetter = map[modelio.Flag]string{
+	modelio.FlagZeroKernel: "Z", modelio.FlagDuplicate: "D", modelio.FlagDead: "X", modelio.FlagRare: "R", modelio.FlagConstant: "C",
 }
 
 // frameRing is the space reserved around every tile: a 1-pixel outline that
@@ -132,8 +113,8 @@ func Tiles(k *modelio.Kernels, o TileOptions) (*image.NRGBA, []TileInfo, error) 
 		bg = Dark
 	}
 
-	norms := filterNorms(k)
-	flags := KernelFlags(k)
+	norms := k.Norms()
+	flags := k.Flags()
 	for m, fs := range o.Flags {
 		if m >= 0 && m < k.M {
 			flags[m] = append(flags[m], fs...)
@@ -241,7 +222,7 @@ func Tiles(k *modelio.Kernels, o TileOptions) (*image.NRGBA, []TileInfo, error) 
 		frame(img, r.Inset(-1), 1, outlineFor(bg), false)
 		fs := uniqueSorted(flags[m])
 		if len(fs) > 0 {
-			severe := slices.Contains(fs, FlagZeroKernel) || slices.Contains(fs, FlagDead)
+			severe := slices.Contains(fs, modelio.FlagZeroKernel) || slices.Contains(fs, modelio.FlagDead)
 			fc := flagMild
 			if severe {
 				fc = flagSevere
@@ -264,7 +245,7 @@ func symByte(v, s float64) uint8 {
 	return uint8(math.Round(math.Max(-1, math.Min(1, v/s))*127 + 128))
 }
 
-func tileLabel(m int, norm float64, flags []string) string {
+func tileLabel(m int, norm float64, flags []modelio.Flag) string {
 	s := fmt.Sprintf("%d %s", m, fmtG(norm))
 	var letters []string
 	for _, f := range uniqueSorted(flags) {
@@ -278,7 +259,7 @@ func tileLabel(m int, norm float64, flags []string) string {
 	return s
 }
 
-func uniqueSorted(s []string) []string {
+func uniqueSorted(s []modelio.Flag) []modelio.Flag {
 	if len(s) == 0 {
 		return nil
 	}
@@ -294,204 +275,10 @@ func kname(k *modelio.Kernels) string {
 	return fmt.Sprintf("%q", k.Node)
 }
 
-// checkKernels validates the shape against the data and rejects non-finite
-// weights.
+// checkKernels is Kernels.Check with this package's prefix.
 func checkKernels(k *modelio.Kernels) error {
-	if k == nil {
-		return fmt.Errorf("viz: no kernels")
-	}
-	if k.M <= 0 || k.C <= 0 || k.KH <= 0 || k.KW <= 0 {
-		return fmt.Errorf("viz: kernels of %s: shape %d×%d×%d×%d has a non-positive dimension", kname(k), k.M, k.C, k.KH, k.KW)
-	}
-	n := int64(k.M) * int64(k.C) * int64(k.KH) * int64(k.KW)
-	if n != int64(len(k.W)) {
-		return fmt.Errorf("viz: kernels of %s: shape %d×%d×%d×%d needs %d weights, have %d", kname(k), k.M, k.C, k.KH, k.KW, n, len(k.W))
-	}
-	for i, v := range k.W {
-		// NaN fails both comparisons; ±Inf fails one.
-		if !(v >= -math.MaxFloat32 && v <= math.MaxFloat32) {
-			per := k.C * k.KH * k.KW
-			return fmt.Errorf("viz: kernels of %s: filter %d has a non-finite weight (%v)", kname(k), i/per, v)
-		}
+	if err := k.Check(); err != nil {
+		return fmt.Errorf("viz: %w", err)
 	}
 	return nil
-}
-
-// filterNorms returns the L2 norm of every filter.
-func filterNorms(k *modelio.Kernels) []float64 {
-	per := k.C * k.KH * k.KW
-	out := make([]float64, k.M)
-	for m := range k.M {
-		s := 0.0
-		for _, v := range k.W[m*per : (m+1)*per] {
-			s += float64(v) * float64(v)
-		}
-		out[m] = math.Sqrt(s)
-	}
-	return out
-}
-
-// Pair is two filters and the cosine similarity of their weight vectors.
-type Pair struct {
-	I, J   int // I < J
-	Cosine float64
-}
-
-// Duplicates returns every pair of filters whose weight vectors (all input
-// channels flattened) have cosine similarity above DuplicateCosine, ordered
-// by I then J. Zero filters have no direction and pair with nothing. Filters
-// that are negatives of each other (cosine near −1) are not duplicates: after
-// a ReLU they respond to opposite patterns. Kernels that fail validation
-// yield nil.
-//
-// For unit vectors û, v̂ the cosine is 1 − ‖û−v̂‖²/2, so cosine > 0.95 means
-// ‖û−v̂‖² < 2(1−0.95). Each filter is normalised once (float32), and a pair
-// is dropped as soon as the running sum of squared differences passes that
-// bound plus a margin (dupMargin) far larger than the rounding of the sum;
-// most pairs of a trained layer point apart and are dropped after a few
-// blocks. The cosine of every pair that survives is computed exactly as
-// before (float64 dot product over the product of the norms), so the result
-// is that of comparing every pair in full (a test checks it).
-func Duplicates(k *modelio.Kernels) []Pair {
-	if checkKernels(k) != nil {
-		return nil
-	}
-	return duplicates(k, zeroFilters(k))
-}
-
-// duplicates is Duplicates for checked kernels whose zero filters are known.
-func duplicates(k *modelio.Kernels, zero []bool) []Pair {
-	per := k.C * k.KH * k.KW
-	norms := filterNorms(k)
-	live := make([]int, 0, k.M)
-	for i := range k.M {
-		if !zero[i] {
-			live = append(live, i)
-		}
-	}
-	unit := make([]float32, len(live)*per)
-	for n, i := range live {
-		u := unit[n*per : (n+1)*per]
-		for t, v := range k.W[i*per : (i+1)*per] {
-			u[t] = float32(float64(v) / norms[i])
-		}
-	}
-	const bound = 2*(1-DuplicateCosine) + dupMargin
-	var out []Pair
-	for n, i := range live {
-		u := unit[n*per : (n+1)*per]
-		a := k.W[i*per : (i+1)*per]
-		for o := n + 1; o < len(live); o++ {
-			if !unitClose(u, unit[o*per:(o+1)*per], bound) {
-				continue
-			}
-			j := live[o]
-			b := k.W[j*per : (j+1)*per]
-			dot := 0.0
-			for t := range a {
-				dot += float64(a[t]) * float64(b[t])
-			}
-			if c := dot / (norms[i] * norms[j]); c > DuplicateCosine {
-				out = append(out, Pair{i, j, c})
-			}
-		}
-	}
-	return out
-}
-
-// dupMargin is added to the distance bound of [Duplicates]. The running sum
-// is float32 within a block of dupBlock values and float64 across blocks, so
-// its relative rounding error is below (dupBlock+3)·2⁻²⁴ ≈ 4e-6 (the +3:
-// normalising, subtracting, squaring), i.e. under 1e-6 of the bound 0.1;
-// 1e-3 leaves room to spare and costs only the exact check of a few more
-// pairs.
-const dupMargin = 1e-3
-
-// dupBlock is how many values unitClose adds up between checks of the bound.
-const dupBlock = 32
-
-// unitClose reports whether ‖u−v‖² ≤ bound, stopping at the first block
-// after which the running sum exceeds bound. len(v) must be len(u).
-func unitClose(u, v []float32, bound float64) bool {
-	v = v[:len(u)]
-	sum := 0.0
-	for t := 0; t < len(u); t += dupBlock {
-		e := min(t+dupBlock, len(u))
-		uu, vv := u[t:e], v[t:e]
-		var s0, s1, s2, s3 float32
-		x := 0
-		for ; x+4 <= len(uu); x += 4 {
-			d0 := uu[x] - vv[x]
-			d1 := uu[x+1] - vv[x+1]
-			d2 := uu[x+2] - vv[x+2]
-			d3 := uu[x+3] - vv[x+3]
-			s0 += d0 * d0
-			s1 += d1 * d1
-			s2 += d2 * d2
-			s3 += d3 * d3
-		}
-		for ; x < len(uu); x++ {
-			d := uu[x] - vv[x]
-			s0 += d * d
-		}
-		sum += float64(s0) + float64(s1) + float64(s2) + float64(s3)
-		if sum > bound {
-			return false
-		}
-	}
-	return true
-}
-
-func zeroFilters(k *modelio.Kernels) []bool {
-	per := k.C * k.KH * k.KW
-	layerMax := 0.0
-	maxAbs := make([]float64, k.M)
-	for m := range k.M {
-		// float32 comparisons: exact, and several times faster than
-		// math.Max on float64 (the weights are finite: checkKernels).
-		var hi float32
-		for _, v := range k.W[m*per : (m+1)*per] {
-			if v < 0 {
-				v = -v
-			}
-			if v > hi {
-				hi = v
-			}
-		}
-		maxAbs[m] = float64(hi)
-		layerMax = max(layerMax, maxAbs[m])
-	}
-	out := make([]bool, k.M)
-	for m := range out {
-		out[m] = maxAbs[m] == 0 || maxAbs[m] <= zeroRel*layerMax
-	}
-	return out
-}
-
-// KernelFlags returns, per filter index, the flags the weights alone decide:
-// FlagZeroKernel when the filter's largest |weight| is 0 or at most 1e-6 of
-// the layer's largest, FlagDuplicate for both members of every pair that
-// [Duplicates] finds. Filters without flags are absent. Kernels that fail
-// validation yield an empty map.
-func KernelFlags(k *modelio.Kernels) map[int][]string {
-	out := map[int][]string{}
-	if checkKernels(k) != nil {
-		return out
-	}
-	zero := zeroFilters(k)
-	for m, z := range zero {
-		if z {
-			out[m] = append(out[m], FlagZeroKernel)
-		}
-	}
-	dup := map[int]bool{}
-	for _, p := range duplicates(k, zero) {
-		dup[p.I], dup[p.J] = true, true
-	}
-	for m := range k.M {
-		if dup[m] {
-			out[m] = append(out[m], FlagDuplicate)
-		}
-	}
-	return out
 }

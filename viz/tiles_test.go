@@ -62,7 +62,7 @@ func TestTilesZeroKernelIsMidGrey(t *testing.T) {
 			}
 		}
 	}
-	if !slices.Equal(info[0].Flags, []string{FlagZeroKernel}) {
+	if !slices.Equal(info[0].Flags, []modelio.Flag{modelio.FlagZeroKernel}) {
 		t.Errorf("flags %v, want [zero_kernel]", info[0].Flags)
 	}
 }
@@ -201,73 +201,28 @@ func TestTilesSortByNorm(t *testing.T) {
 	}
 }
 
-func TestDuplicates(t *testing.T) {
-	// Hand-computed cosines of 4-vectors (filters of 1×2×2):
-	//   a = (1, 0, 0, 0), b = (1, 0.2, 0, 0), c = (1, 0.4, 0, 0), d = −a, e = 0.
-	//   cos(a,b) = 1/√1.04 = 0.98058 > 0.95: duplicate
-	//   cos(a,c) = 1/√1.16 = 0.92848: not
-	//   cos(b,c) = 1.08/√(1.04·1.16) = 0.98328: duplicate
-	//   cos(a,d) = −1: opposite, not a duplicate; e has no direction.
-	k := kernels(5, 1, 2, 2,
-		1, 0, 0, 0,
-		1, 0.2, 0, 0,
-		1, 0.4, 0, 0,
-		-1, 0, 0, 0,
-		0, 0, 0, 0)
-	pairs := Duplicates(k)
-	want := []Pair{{0, 1, 0.98058}, {1, 2, 0.98328}}
-	if len(pairs) != len(want) {
-		t.Fatalf("pairs %v, want %v", pairs, want)
-	}
-	for i, p := range pairs {
-		if p.I != want[i].I || p.J != want[i].J || math.Abs(p.Cosine-want[i].Cosine) > 1e-5 {
-			t.Errorf("pair %d = %+v, want %+v (±1e-5)", i, p, want[i])
-		}
-	}
-	flags := KernelFlags(k)
-	wantFlags := map[int][]string{0: {FlagDuplicate}, 1: {FlagDuplicate}, 2: {FlagDuplicate}, 4: {FlagZeroKernel}}
-	if len(flags) != len(wantFlags) {
-		t.Errorf("flags %v, want %v", flags, wantFlags)
-	}
-	for m, w := range wantFlags {
-		if !slices.Equal(flags[m], w) {
-			t.Errorf("filter %d flags %v, want %v", m, flags[m], w)
-		}
-	}
-}
-
-func TestKernelFlagsNearZero(t *testing.T) {
-	// A filter at 1e-7 of the layer's largest weight counts as zero (the
-	// documented 1e-6 threshold); one at 1e-3 does not.
-	k := kernels(3, 1, 1, 2, 1, 0.5, 1e-7, 0, 1e-3, 0)
-	f := KernelFlags(k)
-	if !slices.Equal(f[1], []string{FlagZeroKernel}) || len(f[2]) != 0 {
-		t.Errorf("flags %v: want filter 1 zero_kernel, filter 2 unflagged", f)
-	}
-}
-
 func TestTilesFlagFrames(t *testing.T) {
 	// Flagged tiles get a frame in the ring around the tile: solid
 	// magenta-red for zero_kernel/dead, dashed amber for the others. Scan
 	// flags passed in Flags are merged with KernelFlags; the caller's map is
 	// not modified.
 	k := kernels(3, 1, 2, 2, 1, 0, 0, 1, 0, 0, 0, 0, 0, 1, 1, 0)
-	scan := map[int][]string{2: {FlagRare}}
+	scan := map[int][]modelio.Flag{2: {modelio.FlagRare}}
 	img, info, err := Tiles(k, TileOptions{Slice: -1, Cell: 4, Flags: scan, Columns: 3})
 	if err != nil {
 		t.Fatal(err)
 	}
-	if len(scan) != 1 || !slices.Equal(scan[2], []string{FlagRare}) {
+	if len(scan) != 1 || !slices.Equal(scan[2], []modelio.Flag{modelio.FlagRare}) {
 		t.Errorf("caller's flags changed: %v", scan)
 	}
 	corner := func(r image.Rectangle) color.NRGBA { return img.NRGBAAt(r.Min.X-frameRing, r.Min.Y-frameRing) }
 	if c := corner(info[0].Rect); c != Dark {
 		t.Errorf("unflagged tile has frame colour %v", c)
 	}
-	if c := corner(info[1].Rect); c != flagSevere || !slices.Equal(info[1].Flags, []string{FlagZeroKernel}) {
+	if c := corner(info[1].Rect); c != flagSevere || !slices.Equal(info[1].Flags, []modelio.Flag{modelio.FlagZeroKernel}) {
 		t.Errorf("zero filter: frame %v flags %v", c, info[1].Flags)
 	}
-	if c := corner(info[2].Rect); c != flagMild || !slices.Equal(info[2].Flags, []string{FlagRare}) {
+	if c := corner(info[2].Rect); c != flagMild || !slices.Equal(info[2].Flags, []modelio.Flag{modelio.FlagRare}) {
 		t.Errorf("rare filter: frame %v flags %v", c, info[2].Flags)
 	}
 	// Dashed: 4 on, 3 off along the top edge.
@@ -299,7 +254,7 @@ func TestTilesLabels(t *testing.T) {
 	if !slices.Equal(a[0], b[0]) || !slices.Equal(a[1], b[1]) {
 		t.Error("labels changed the tile")
 	}
-	if got := tileLabel(7, 0.4567, []string{FlagDuplicate, FlagDead, FlagDuplicate}); got != "7 0.457 XD" {
+	if got := tileLabel(7, 0.4567, []modelio.Flag{modelio.FlagDuplicate, modelio.FlagDead, modelio.FlagDuplicate}); got != "7 0.457 XD" {
 		t.Errorf("label %q, want %q", got, "7 0.457 XD")
 	}
 }

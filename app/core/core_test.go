@@ -15,9 +15,12 @@ import (
 	"time"
 
 	"fovea/assets"
+	"fovea/modelio"
+	"fovea/modelio/classes"
 	"fovea/modelio/infer"
 	"fovea/modelio/prep"
 	"fovea/viz"
+	"fovea/viz/analysis"
 )
 
 // These tests run the embedded demo model in the real ONNX Runtime (found
@@ -107,8 +110,8 @@ func TestClassifyMatchesLibrary(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	p, already := infer.Probabilities(res.Scores(0))
-	want := infer.TopK(p, assets.Labels(), 7)
+	p, already := classes.Probabilities(res.Scores(0))
+	want := classes.TopK(p, assets.Labels(), 7)
 	if got.Softmaxed != already || !slices.Equal(got.Scores, res.Scores(0)) {
 		t.Errorf("scores %v (softmaxed %v), library %v (%v)", got.Scores, got.Softmaxed, res.Scores(0), already)
 	}
@@ -222,7 +225,7 @@ func TestOccludeMatchesLibrary(t *testing.T) {
 	c, _ := w.Prep()
 	s, _ := infer.NewSession(w.Model, infer.Options{})
 	defer s.Close()
-	want, err := viz.Occlude(t.Context(), s, c, prep.Fit(img, c), set, []int{2, 5}, nil)
+	want, err := analysis.Occlude(t.Context(), s, c, prep.Fit(img, c), set, []int{2, 5}, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -286,7 +289,7 @@ func TestScanUnhealthyMatchesTruth(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	r, err := w.Scan(t.Context(), files, viz.ScanOptions{}, nil)
+	r, err := w.Scan(t.Context(), files, analysis.ScanOptions{}, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -297,7 +300,7 @@ func TestScanUnhealthyMatchesTruth(t *testing.T) {
 	if err := json.Unmarshal(b, &tr); err != nil {
 		t.Fatal(err)
 	}
-	if got := r.Count(viz.FlagDead); got != tr.DeadTotal || got == 0 {
+	if got := r.Count(modelio.FlagDead); got != tr.DeadTotal || got == 0 {
 		t.Errorf("%d dead channels, %s says %d (measured with PyTorch)", got, assets.UnhealthyTruthFile, tr.DeadTotal)
 	}
 	// The scan's flags reach the filter tiles of the convolution feeding

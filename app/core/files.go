@@ -3,13 +3,12 @@ package core
 import (
 	"errors"
 	"fmt"
+	"fovea/viz/analysis"
 	"image"
 	"image/png"
 	"io"
 	"os"
 	"path/filepath"
-
-	"fovea/viz"
 )
 
 // WriteFile writes the file at path atomically: write fills a temporary file
@@ -63,7 +62,7 @@ func SavePNG(path string, img image.Image) error {
 	return WriteFile(path, func(w io.Writer) error { return png.Encode(w, img) })
 }
 
-// ProbeFiles lists the image files directly inside dir (viz.ProbeFiles: by
+// ProbeFiles lists the image files directly inside dir (analysis.ProbeFiles: by
 // extension, hidden files skipped, sorted by name).
 func ProbeFiles(dir string) ([]string, error) {
 	st, err := os.Stat(dir)
@@ -73,7 +72,7 @@ func ProbeFiles(dir string) ([]string, error) {
 	if !st.IsDir() {
 		return nil, inputf(dir, "is not a folder")
 	}
-	files, err := viz.ProbeFiles(dir)
+	files, err := analysis.ProbeFiles(dir)
 	if err != nil {
 		return nil, inputErr(dir, err)
 	}

@@ -7,9 +7,11 @@ import (
 	"slices"
 
 	"fovea/modelio"
+	"fovea/modelio/classes"
 	"fovea/modelio/infer"
 	"fovea/modelio/prep"
 	"fovea/viz"
+	"fovea/viz/analysis"
 )
 
 // LoadImage decodes the image file at path (prep.Load: size limits, EXIF
@@ -32,9 +34,9 @@ func tensor(img image.Image, c prep.Config) (*image.NRGBA, []float32) {
 
 // Classification is the model's answer for one image.
 type Classification struct {
-	Top    []infer.Prediction // the k most probable classes, most probable first
-	Probs  []float32          // probability of every class
-	Scores []float32          // the model's raw output for every class
+	Top    []classes.Prediction // the k most probable classes, most probable first
+	Probs  []float32            // probability of every class
+	Scores []float32            // the model's raw output for every class
 	// Softmaxed is true when the model's output already was a probability
 	// distribution, so Probs equals Scores; false when Fovea applied softmax.
 	Softmaxed bool
@@ -47,9 +49,9 @@ func classification(res *infer.Result, labels []string, k int, fit *image.NRGBA)
 	if len(scores) == 0 {
 		return nil, fmt.Errorf("core: the model returned no scores")
 	}
-	p, already := infer.Probabilities(scores)
+	p, already := classes.Probabilities(scores)
 	return &Classification{
-		Top:       infer.TopK(p, labels, k),
+		Top:       classes.TopK(p, labels, k),
 		Probs:     p,
 		Scores:    slices.Clone(scores),
 		Softmaxed: already,
@@ -91,10 +93,10 @@ func (w *Workspace) snapshot() (prep.Config, []string) {
 
 // Activations holds every activation map of one run.
 type Activations struct {
-	Input  *image.NRGBA            // the picture the model saw
-	Layers []modelio.Layer         // the captured layers, in execution order
-	Maps   map[string]infer.Tensor // by the layer's output tensor name, batch of 1
-	Class  *Classification         // the model's answer on the same run (top 5)
+	Input  *image.NRGBA              // the picture the model saw
+	Layers []modelio.Layer           // the captured layers, in execution order
+	Maps   map[string]modelio.Tensor // by the layer's output tensor name, batch of 1
+	Class  *Classification           // the model's answer on the same run (top 5)
 }
 
 // MapLayout is the layout of activation maps: ONNX's Conv, pooling and
@@ -158,7 +160,7 @@ func DefaultOcclusion(width, height int) viz.OcclusionSettings {
 }
 
 // Occlude measures how much hiding each part of img lowers the score of each
-// target class (viz.Occlude). With no targets it uses the predicted class.
+// target class (analysis.Occlude). With no targets it uses the predicted class.
 // Several targets share one pass over the patch positions.
 func (w *Workspace) Occlude(ctx context.Context, img image.Image, set viz.OcclusionSettings, targets []int,
 	progress func(done, total int)) ([]*viz.Occlusion, *image.NRGBA, error) {
@@ -194,7 +196,7 @@ func (w *Workspace) Occlude(ctx context.Context, img image.Image, set viz.Occlus
 			}
 		}
 	}
-	occ, err := viz.Occlude(ctx, s, c, fit, set, targets, progress)
+	occ, err := analysis.Occlude(ctx, s, c, fit, set, targets, progress)
 	if err != nil {
 		return nil, nil, fmt.Errorf("core: %s: occlusion: %w", w.Model.Name, err)
 	}
@@ -214,10 +216,10 @@ func (w *Workspace) ClassIndex(s string) (int, error) {
 }
 
 // Scan runs the model on every file and reports, per activation layer and
-// channel, how often the channel fired (viz.Scan): dead, rare and constant
+// channel, how often the channel fired (analysis.Scan): dead, rare and constant
 // channels, and zero or duplicate kernels.
-func (w *Workspace) Scan(ctx context.Context, files []string, o viz.ScanOptions,
-	progress func(done, total int)) (*viz.ScanReport, error) {
+func (w *Workspace) Scan(ctx context.Context, files []string, o analysis.ScanOptions,
+	progress func(done, total int)) (*analysis.ScanReport, error) {
 	if len(files) == 0 {
 		return nil, inputf("", "no probe images to scan")
 	}
@@ -226,11 +228,11 @@ func (w *Workspace) Scan(ctx context.Context, files []string, o viz.ScanOptions,
 	if err != nil {
 		return nil, err
 	}
-	if len(viz.ScanLayers(w.Model)) == 0 {
+	if len(analysis.ScanLayers(w.Model)) == 0 {
 		// A property of the model the user chose, not a failure while running.
 		return nil, inputf(w.Model.Name, "no ReLU-like activation layer to scan (a scan counts how often the channels after Relu, Clip, LeakyRelu and the like fire)")
 	}
-	r, err := viz.Scan(ctx, s, w.Model, c, files, o, progress)
+	r, err := analysis.Scan(ctx, s, w.Model, c, files, o, progress)
 	if err != nil {
 		if IsInput(err) || ctx.Err() != nil {
 			return nil, err
@@ -254,13 +256,13 @@ func (w *Workspace) Kernels(layer string) (*modelio.Kernels, error) {
 // not nil, marks them with the scan's findings for the channels that
 // convolution feeds. Flags already in o are kept; o.BGR follows the
 // preprocessing in force.
-func (w *Workspace) Tiles(layer string, o viz.TileOptions, scan *viz.ScanReport) (*image.NRGBA, []viz.TileInfo, error) {
+func (w *Workspace) Tiles(layer string, o viz.TileOptions, scan *analysis.ScanReport) (*image.NRGBA, []viz.TileInfo, error) {
 	k, err := w.Kernels(layer)
 	if err != nil {
 		return nil, nil, err
 	}
-	flags := map[int][]string{}
-	add := func(m map[int][]string) {
+	flags := map[int][]modelio.Flag{}
+	add := func(m map[int][]modelio.Flag) {
 		for i, fs := range m {
 			for _, f := range fs {
 				if !slices.Contains(flags[i], f) {
@@ -283,13 +285,13 @@ func (w *Workspace) Tiles(layer string, o viz.TileOptions, scan *viz.ScanReport)
 
 // ScanFlags returns the scan's flags per channel for the activation layer fed
 // by the convolution node conv (nil when r is nil or has no such layer).
-func ScanFlags(r *viz.ScanReport, conv string) map[int][]string {
+func ScanFlags(r *analysis.ScanReport, conv string) map[int][]modelio.Flag {
 	if r == nil {
 		return nil
 	}
 	for _, l := range r.Layers {
 		if l.Conv == conv {
-			m := map[int][]string{}
+			m := map[int][]modelio.Flag{}
 			for _, ch := range l.Channels {
 				if len(ch.Flags) > 0 {
 					m[ch.Index] = slices.Clone(ch.Flags)

@@ -8,28 +8,27 @@ import (
 	"strings"
 
 	"fovea/modelio"
-	"fovea/modelio/infer"
 	"fovea/viz"
 )
 
 // MapLayer returns the captured activation layer named name (node or output
 // tensor name; "" = the first), with its map from a.
-func (a *Activations) MapLayer(name string) (modelio.Layer, infer.Tensor, error) {
+func (a *Activations) MapLayer(name string) (modelio.Layer, modelio.Tensor, error) {
 	var names []string
 	for _, l := range a.Layers {
 		if name == "" || l.Name == name || l.Output == name {
 			t, ok := a.Maps[l.Output]
 			if !ok {
-				return l, infer.Tensor{}, fmt.Errorf("core: layer %s: its activation map was not captured", l.Name)
+				return l, modelio.Tensor{}, fmt.Errorf("core: layer %s: its activation map was not captured", l.Name)
 			}
 			return l, t, nil
 		}
 		names = append(names, l.Name)
 	}
 	if name == "" {
-		return modelio.Layer{}, infer.Tensor{}, inputf("", "the model has no activation layer to show")
+		return modelio.Layer{}, modelio.Tensor{}, inputf("", "the model has no activation layer to show")
 	}
-	return modelio.Layer{}, infer.Tensor{}, inputf("", "no activation layer %q (layers: %s)", name, strings.Join(names, ", "))
+	return modelio.Layer{}, modelio.Tensor{}, inputf("", "no activation layer %q (layers: %s)", name, strings.Join(names, ", "))
 }
 
 // MapPicture draws the activation-map grid of one layer (viz.MapGrid) with

@@ -6,6 +6,7 @@ import (
 	"image"
 	"time"
 
+	"fovea/modelio/classes"
 	"fovea/modelio/infer"
 	"fovea/viz"
 )
@@ -134,8 +135,8 @@ func className(labels []string, i int) string {
 
 // withNames gives unlabelled predictions their class number as a label, so
 // the page never shows an empty name.
-func withNames(top []infer.Prediction, labels []string) []infer.Prediction {
-	out := make([]infer.Prediction, len(top))
+func withNames(top []classes.Prediction, labels []string) []classes.Prediction {
+	out := make([]classes.Prediction, len(top))
 	for i, p := range top {
 		p.Label = className(labels, p.Index)
 		out[i] = p

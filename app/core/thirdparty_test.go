@@ -6,11 +6,10 @@ package core
 
 import (
 	"context"
+	"fovea/viz/analysis"
 	"path/filepath"
 	"strings"
 	"testing"
-
-	"fovea/viz"
 )
 
 const conformanceData = "/usr/share/libonnx-testdata/data/pytorch-converted"
@@ -45,7 +44,7 @@ func TestFourChannelInput(t *testing.T) {
 	check("Activations", err)
 	_, _, err = w.Occlude(ctx, img, DefaultOcclusion(6, 6), nil, nil)
 	check("Occlude", err)
-	_, err = w.Scan(ctx, []string{"unused.png"}, viz.ScanOptions{}, nil)
+	_, err = w.Scan(ctx, []string{"unused.png"}, analysis.ScanOptions{}, nil)
 	check("Scan", err)
 }
 
@@ -54,7 +53,7 @@ func TestFourChannelInput(t *testing.T) {
 // turns into exit 2, not a failure while running.
 func TestScanNothingToScan(t *testing.T) {
 	w := openConformance(t, "test_Sigmoid")
-	_, err := w.Scan(context.Background(), []string{"unused.png"}, viz.ScanOptions{}, nil)
+	_, err := w.Scan(context.Background(), []string{"unused.png"}, analysis.ScanOptions{}, nil)
 	if err == nil || !IsInput(err) || !strings.Contains(err.Error(), "model.onnx") || !strings.Contains(err.Error(), "ReLU-like") {
 		t.Errorf("Scan: %v, want an input error naming model.onnx and the missing ReLU-like layer", err)
 	}

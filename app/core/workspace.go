@@ -9,9 +9,10 @@ import (
 	"sync"
 
 	"fovea/modelio"
+	"fovea/modelio/classes"
 	"fovea/modelio/infer"
 	"fovea/modelio/prep"
-	"fovea/viz"
+	"fovea/viz/analysis"
 )
 
 // Where labels and preprocessing settings came from, as shown to the user.
@@ -68,12 +69,12 @@ func newWorkspace(m *modelio.Model, demo, hash string) (*Workspace, error) {
 	w.cfg, w.notes = guess(m)
 	w.cfgFrom = FromGuess
 	// Labels from the metadata, else a labels file beside the model
-	// (infer.Labels), else none.
-	labels, source, path, err := infer.Labels(m, "")
+	// (classes.Labels), else none.
+	labels, source, path, err := classes.Labels(m, "")
 	switch {
 	case err != nil || len(labels) == 0:
 		w.labelsFrom = FromNowhere
-	case source == infer.LabelsMetadata:
+	case source == classes.LabelsMetadata:
 		w.labels, w.labelsFrom = slices.Clone(labels), FromModel
 	default:
 		w.labels, w.labelsFrom = slices.Clone(labels), path
@@ -273,11 +274,11 @@ func (w *Workspace) Classes() int {
 	return int(n)
 }
 
-// LoadLabels reads class labels from path (infer.ReadLabels: one per line,
+// LoadLabels reads class labels from path (classes.ReadLabels: one per line,
 // or a JSON array of strings) and puts them in force. The count must equal
 // the model's number of classes when that is known.
 func (w *Workspace) LoadLabels(path string) error {
-	labels, err := infer.ReadLabels(path)
+	labels, err := classes.ReadLabels(path)
 	if err != nil {
 		return inputErr(path, err)
 	}
@@ -318,7 +319,7 @@ type kind int
 const (
 	plainRun  kind = iota // nothing: classification, occlusion
 	layersRun             // every layer's output the window can show (infer.LayerOutputs)
-	scanRun               // the ReLU-like maps a scan reads (viz.ScanCapture)
+	scanRun               // the ReLU-like maps a scan reads (analysis.ScanCapture)
 	kinds
 )
 
@@ -341,7 +342,7 @@ func (w *Workspace) sessionLocked(k kind) (*infer.Session, error) {
 	case layersRun:
 		opt.Capture = infer.LayerOutputs(w.Model)
 	case scanRun:
-		opt = viz.ScanSession(w.Model, opt.Dims)
+		opt = analysis.ScanSession(w.Model, opt.Dims)
 	}
 	if *slot == nil {
 		weights := 0

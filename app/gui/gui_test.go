@@ -20,8 +20,10 @@ import (
 
 	"fovea/app/core"
 	"fovea/assets"
+	"fovea/modelio"
 	"fovea/modelio/infer"
 	"fovea/viz"
+	"fovea/viz/analysis"
 )
 
 // The tests drive the real window (Fyne's headless driver) against the real
@@ -467,7 +469,7 @@ func TestScanMarksDeadFiltersOfUnhealthyDemo(t *testing.T) {
 	// The table: the dead rows of each layer are the truth's.
 	dead := map[string][]int{}
 	for _, r := range v.rows {
-		if slices.Contains(r.Flags, viz.FlagDead) {
+		if slices.Contains(r.Flags, modelio.FlagDead) {
 			dead[r.Output] = append(dead[r.Output], r.Index)
 		}
 	}
@@ -478,7 +480,7 @@ func TestScanMarksDeadFiltersOfUnhealthyDemo(t *testing.T) {
 			t.Errorf("%s: the table marks %v dead, PyTorch found %v", r.Output, got, r.Dead)
 		}
 	}
-	if n := u.scan.Count(viz.FlagDead); n != tr.DeadTotal {
+	if n := u.scan.Count(modelio.FlagDead); n != tr.DeadTotal {
 		t.Errorf("%d dead filters found, the truth file has %d", n, tr.DeadTotal)
 	}
 	if !strings.Contains(v.summary.Text, fmt.Sprintf("%d dead", tr.DeadTotal)) {
@@ -486,7 +488,7 @@ func TestScanMarksDeadFiltersOfUnhealthyDemo(t *testing.T) {
 	}
 	// Sorted by "fires" ascending at first: dead filters on top.
 	for i := range tr.DeadTotal {
-		if !slices.Contains(v.rows[i].Flags, viz.FlagDead) {
+		if !slices.Contains(v.rows[i].Flags, modelio.FlagDead) {
 			t.Fatalf("row %d is %s %d (%v), dead filters should come first", i, v.rows[i].Layer, v.rows[i].Index, v.rows[i].Flags)
 		}
 	}
@@ -521,11 +523,11 @@ func TestScanMarksDeadFiltersOfUnhealthyDemo(t *testing.T) {
 
 	// Clicking a column title sorts by it; clicking again reverses.
 	test.Tap(button(t, u, "Peak"))
-	if !slices.IsSortedFunc(v.rows, func(a, b viz.ScanRow) int { return cmpF(a.Max, b.Max) }) {
+	if !slices.IsSortedFunc(v.rows, func(a, b analysis.ScanRow) int { return cmpF(a.Max, b.Max) }) {
 		t.Error("rows are not sorted by peak after clicking its title")
 	}
 	test.Tap(button(t, u, "Peak"))
-	if !slices.IsSortedFunc(v.rows, func(a, b viz.ScanRow) int { return cmpF(b.Max, a.Max) }) {
+	if !slices.IsSortedFunc(v.rows, func(a, b analysis.ScanRow) int { return cmpF(b.Max, a.Max) }) {
 		t.Error("rows are not sorted by peak, largest first, after a second click")
 	}
 	test.Tap(v.onlyFlags)
@@ -550,7 +552,7 @@ func TestScanMarksDeadFiltersOfUnhealthyDemo(t *testing.T) {
 	}
 	n := 0
 	for _, r := range recs[1:] {
-		if slices.Contains(strings.Fields(r[len(r)-1]), viz.FlagDead) {
+		if slices.Contains(strings.Fields(r[len(r)-1]), string(modelio.FlagDead)) {
 			n++
 		}
 	}
@@ -571,7 +573,7 @@ func TestScanMarksDeadFiltersOfUnhealthyDemo(t *testing.T) {
 func deadTiles(info []viz.TileInfo) []int {
 	var out []int
 	for _, t := range info {
-		if slices.Contains(t.Flags, viz.FlagDead) {
+		if slices.Contains(t.Flags, modelio.FlagDead) {
 			out = append(out, t.Index)
 		}
 	}

@@ -22,6 +22,7 @@ import (
 
 	"fovea/app/core"
 	"fovea/viz"
+	"fovea/viz/analysis"
 )
 
 // appID keys the preferences (window size, last view, recent files, theme).
@@ -59,16 +60,16 @@ type ui struct {
 
 	// What is open.
 	ws         *core.Workspace
-	img        image.Image       // the image as loaded (nil: none)
-	imgName    string            // its file name, or the demo image's name
-	imgPath    string            // its path ("" for an embedded demo image)
-	acts       *core.Activations // the model's run on img: maps and top-k
-	occ        []*viz.Occlusion  // the last occlusion: predicted class first, then the expected one
-	occPic     *image.NRGBA      // its rendering
-	scan       *viz.ScanReport   // the last dead-filter scan of ws
-	scanDir    string            // the probe folder ("" none chosen)
-	demoProbes string            // the demo's probe folder, once written
-	layer      string            // output tensor of the layer chosen in the layer panel
+	img        image.Image          // the image as loaded (nil: none)
+	imgName    string               // its file name, or the demo image's name
+	imgPath    string               // its path ("" for an embedded demo image)
+	acts       *core.Activations    // the model's run on img: maps and top-k
+	occ        []*viz.Occlusion     // the last occlusion: predicted class first, then the expected one
+	occPic     *image.NRGBA         // its rendering
+	scan       *analysis.ScanReport // the last dead-filter scan of ws
+	scanDir    string               // the probe folder ("" none chosen)
+	demoProbes string               // the demo's probe folder, once written
+	layer      string               // output tensor of the layer chosen in the layer panel
 	// onImage runs once after the next image was run through the model
 	// (start-up: occlusion when the window opens on that view).
 	onImage func()

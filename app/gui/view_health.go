@@ -16,7 +16,9 @@ import (
 	"fyne.io/fyne/v2/widget"
 
 	"fovea/app/core"
+	"fovea/modelio"
 	"fovea/viz"
+	"fovea/viz/analysis"
 )
 
 // healthView is the "Filter health" tab: a scan of a folder of probe images
@@ -37,8 +39,8 @@ type healthView struct {
 	tilesAbout *widget.Label
 	tiles      *picture
 
-	rows    []viz.ScanRow // as shown: filtered and sorted
-	sortCol int           // column sorted by; -1 = scan order
+	rows    []analysis.ScanRow // as shown: filtered and sorted
+	sortCol int                // column sorted by; -1 = scan order
 	desc    bool
 	conv    string         // convolution whose tiles are shown
 	info    []viz.TileInfo // those tiles (tests read them)
@@ -178,8 +180,8 @@ func (v *healthView) sortBy(col int) {
 	v.fill()
 }
 
-// sortKeys map the columns viz.SortRows knows; the others sort here.
-var sortKeys = map[int]string{0: viz.SortName, 1: viz.SortOrder, 2: viz.SortFires, 3: viz.SortMax, 4: viz.SortMean}
+// sortKeys map the columns analysis.SortRows knows; the others sort here.
+var sortKeys = map[int]string{0: analysis.SortName, 1: analysis.SortOrder, 2: analysis.SortFires, 3: analysis.SortMax, 4: analysis.SortMean}
 
 // fill rebuilds the shown rows from the scan: filter, then sort.
 func (v *healthView) fill() {
@@ -193,10 +195,10 @@ func (v *healthView) fill() {
 	}
 	switch key, ok := sortKeys[v.sortCol]; {
 	case ok:
-		viz.SortRows(v.rows, key, v.desc)
+		analysis.SortRows(v.rows, key, v.desc)
 	case v.sortCol == 5:
 		// Flags: by the most severe flag, then how many.
-		slices.SortStableFunc(v.rows, func(a, b viz.ScanRow) int {
+		slices.SortStableFunc(v.rows, func(a, b analysis.ScanRow) int {
 			c := cmp.Or(cmp.Compare(severity(a.Flags), severity(b.Flags)), cmp.Compare(len(a.Flags), len(b.Flags)))
 			if v.desc {
 				return -c
@@ -209,13 +211,13 @@ func (v *healthView) fill() {
 }
 
 // severity ranks a channel's flags: what does nothing first.
-func severity(flags []string) int {
+func severity(flags []modelio.Flag) int {
 	s := 0
 	for _, f := range flags {
 		switch f {
-		case viz.FlagDead, viz.FlagZeroKernel:
+		case modelio.FlagDead, modelio.FlagZeroKernel:
 			s = max(s, 3)
-		case viz.FlagRare, viz.FlagConstant:
+		case modelio.FlagRare, modelio.FlagConstant:
 			s = max(s, 2)
 		default:
 			s = max(s, 1)
@@ -241,8 +243,8 @@ func (v *healthView) refresh() {
 	if r := u.scan; r != nil {
 		v.csvBtn.Enable()
 		text := fmt.Sprintf("%d probe images: %d dead, %d rare, %d constant filters; %d with all-zero weights, %d near-duplicates (in %d layers).",
-			r.Images, r.Count(viz.FlagDead), r.Count(viz.FlagRare), r.Count(viz.FlagConstant),
-			r.Count(viz.FlagZeroKernel), r.Count(viz.FlagDuplicate), len(r.Layers))
+			r.Images, r.Count(modelio.FlagDead), r.Count(modelio.FlagRare), r.Count(modelio.FlagConstant),
+			r.Count(modelio.FlagZeroKernel), r.Count(modelio.FlagDuplicate), len(r.Layers))
 		if len(r.Skipped) > 0 {
 			text += fmt.Sprintf(" %d unreadable files were skipped, the first: %s.", len(r.Skipped), r.Skipped[0])
 		}
@@ -346,7 +348,7 @@ func (v *healthView) run() {
 		if err != nil {
 			return nil, err
 		}
-		rep, err := ws.Scan(ctx, files, viz.ScanOptions{Rare: rare / 100, SkipUnreadable: true}, progress)
+		rep, err := ws.Scan(ctx, files, analysis.ScanOptions{Rare: rare / 100, SkipUnreadable: true}, progress)
 		if err != nil {
 			return nil, err
 		}

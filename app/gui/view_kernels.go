@@ -37,21 +37,21 @@ type kernelView struct {
 }
 
 // flagNames are the flags as the window words them.
-var flagNames = map[string]string{
-	viz.FlagDead:       "dead",
-	viz.FlagRare:       "rare",
-	viz.FlagConstant:   "constant output",
-	viz.FlagZeroKernel: "all-zero weights",
-	viz.FlagDuplicate:  "near-duplicate",
+var flagNames = map[modelio.Flag]string{
+	modelio.FlagDead:       "dead",
+	modelio.FlagRare:       "rare",
+	modelio.FlagConstant:   "constant output",
+	modelio.FlagZeroKernel: "all-zero weights",
+	modelio.FlagDuplicate:  "near-duplicate",
 }
 
-func flagText(flags []string) string {
+func flagText(flags []modelio.Flag) string {
 	var out []string
 	for _, f := range flags {
 		if n, ok := flagNames[f]; ok {
 			out = append(out, n)
 		} else {
-			out = append(out, f)
+			out = append(out, string(f))
 		}
 	}
 	return strings.Join(out, ", ")

@@ -62,9 +62,9 @@ func TestConformance(t *testing.T) {
 			continue
 		}
 		for si, set := range c.Sets {
-			var in []Tensor
+			var in []modelio.Tensor
 			for _, x := range set.Inputs {
-				in = append(in, Tensor{Name: x.Name, Shape: x.Shape, Data: x.Data})
+				in = append(in, modelio.Tensor{Name: x.Name, Shape: x.Shape, Data: x.Data})
 			}
 			r, err := s.RunTensors(context.Background(), in)
 			if err != nil {

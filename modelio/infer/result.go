@@ -1,36 +1,15 @@
 package infer
 
-import "fmt"
-
-// Tensor is a named float32 tensor: Data holds the elements in row-major
-// order, len(Data) is the product of Shape. Shapes are in the model's own
-// layout, batch first.
-type Tensor struct {
-	Name  string
-	Shape []int64
-	Data  []float32
-}
-
-// Image returns the part of t that belongs to image i of a Result: the same
-// shape with the first dimension set to 1, and Data a sub-slice of t.Data
-// (no copy). It panics when t has no first dimension or i is out of range.
-func (t Tensor) Image(i int) Tensor {
-	if len(t.Shape) == 0 || i < 0 || int64(i) >= t.Shape[0] {
-		panic(fmt.Sprintf("infer: Tensor.Image(%d) of %q with shape %v", i, t.Name, t.Shape))
-	}
-	per := len(t.Data) / int(t.Shape[0])
-	shape := append([]int64{1}, t.Shape[1:]...)
-	return Tensor{Name: t.Name, Shape: shape, Data: t.Data[i*per : (i+1)*per : (i+1)*per]}
-}
+import "fovea/modelio"
 
 // Result is what one Run returns for n images.
 type Result struct {
 	// N is the number of images.
 	N int
 	// Outputs are the model's own float32 outputs, in graph order.
-	Outputs []Tensor
+	Outputs []modelio.Tensor
 	// Maps holds every captured tensor (Options.Capture) by name.
-	Maps map[string]Tensor
+	Maps map[string]modelio.Tensor
 	// Score is the index in Outputs of the class scores: the first output
 	// whose per-image shape has exactly one dimension larger than 1 (a
 	// vector such as [N,1000] or [N,1000,1,1]), else the first output.
@@ -53,7 +32,7 @@ func (r *Result) Scores(i int) []float32 {
 }
 
 // scoreIndex picks Result.Score from the outputs' shapes.
-func scoreIndex(outs []Tensor) int {
+func scoreIndex(outs []modelio.Tensor) int {
 	for j, t := range outs {
 		big := 0
 		for _, d := range t.Shape[min(1, len(t.Shape)):] {

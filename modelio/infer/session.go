@@ -630,19 +630,19 @@ func (s *Session) learn(c int, raw []ort.Value) error {
 // result makes the Result for n images, reusing dst's slices when they are
 // large enough.
 func (s *Session) result(n int, dst *Result) *Result {
-	res := &Result{N: n, Maps: make(map[string]Tensor, len(s.capIndex))}
+	res := &Result{N: n, Maps: make(map[string]modelio.Tensor, len(s.capIndex))}
 	buf := func(name string, old []float32, size int) []float32 {
 		if cap(old) >= size {
 			return old[:size]
 		}
 		return make([]float32, size)
 	}
-	var oldOut []Tensor
-	var oldMaps map[string]Tensor
+	var oldOut []modelio.Tensor
+	var oldMaps map[string]modelio.Tensor
 	if dst != nil {
 		oldOut, oldMaps = dst.Outputs, dst.Maps
 	}
-	ts := make([]Tensor, len(s.names))
+	ts := make([]modelio.Tensor, len(s.names))
 	for j, name := range s.names {
 		var old []float32
 		switch {
@@ -652,7 +652,7 @@ func (s *Session) result(n int, dst *Result) *Result {
 			old = oldMaps[name].Data
 		}
 		shape := append([]int64{int64(n)}, s.imgShape[j]...)
-		ts[j] = Tensor{Name: name, Shape: shape, Data: buf(name, old, n*s.perImage[j])}
+		ts[j] = modelio.Tensor{Name: name, Shape: shape, Data: buf(name, old, n*s.perImage[j])}
 	}
 	res.Outputs = ts[:s.nOut:s.nOut]
 	for name, j := range s.capIndex {

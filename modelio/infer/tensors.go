@@ -20,7 +20,7 @@ const maxTensorElems = 1 << 30
 // dimensions. The Result's tensors keep the shapes the runtime gives (no
 // image axis is added); N is the first input's first dimension (0 for a
 // scalar).
-func (s *Session) RunTensors(ctx context.Context, in []Tensor) (*Result, error) {
+func (s *Session) RunTensors(ctx context.Context, in []modelio.Tensor) (*Result, error) {
 	if err := ctx.Err(); err != nil {
 		return nil, err
 	}
@@ -29,7 +29,7 @@ func (s *Session) RunTensors(ctx context.Context, in []Tensor) (*Result, error) 
 	if s.ort == nil {
 		return nil, ErrClosed
 	}
-	byName := map[string]Tensor{}
+	byName := map[string]modelio.Tensor{}
 	for _, t := range in {
 		if _, dup := byName[t.Name]; dup {
 			return nil, fmt.Errorf("infer: %s: input %q given twice", s.file, t.Name)
@@ -66,11 +66,11 @@ func (s *Session) RunTensors(ctx context.Context, in []Tensor) (*Result, error) 
 	if err := s.exec(ctx, vals, outs); err != nil {
 		return nil, err
 	}
-	res := &Result{Maps: make(map[string]Tensor, len(s.capIndex))}
+	res := &Result{Maps: make(map[string]modelio.Tensor, len(s.capIndex))}
 	if len(in) > 0 && len(in[0].Shape) > 0 {
 		res.N = int(in[0].Shape[0])
 	}
-	ts := make([]Tensor, len(outs))
+	ts := make([]modelio.Tensor, len(outs))
 	for j, v := range outs {
 		t, ok := v.(*ort.Tensor[float32])
 		if !ok {
@@ -78,7 +78,7 @@ func (s *Session) RunTensors(ctx context.Context, in []Tensor) (*Result, error) 
 		}
 		// onnxruntime_go copied the runtime's buffer into this Go slice;
 		// it stays valid after the value is destroyed.
-		ts[j] = Tensor{Name: s.names[j], Shape: slices.Clone([]int64(t.GetShape())), Data: t.GetData()}
+		ts[j] = modelio.Tensor{Name: s.names[j], Shape: slices.Clone([]int64(t.GetShape())), Data: t.GetData()}
 	}
 	res.Outputs = ts[:s.nOut:s.nOut]
 	for name, j := range s.capIndex {
@@ -89,7 +89,7 @@ func (s *Session) RunTensors(ctx context.Context, in []Tensor) (*Result, error) 
 }
 
 // checkTensor checks a tensor given for input v before the runtime sees it.
-func (s *Session) checkTensor(v modelio.Value, t Tensor) error {
+func (s *Session) checkTensor(v modelio.Value, t modelio.Tensor) error {
 	n := int64(1)
 	for _, d := range t.Shape {
 		if d < 0 || d > maxTensorElems {

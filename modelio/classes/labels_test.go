@@ -1,4 +1,4 @@
-package infer
+package classes
 
 import (
 	"os"
@@ -8,6 +8,7 @@ import (
 	"testing"
 
 	"fovea/modelio"
+	"fovea/modelio/onnxbuild"
 )
 
 func TestReadLabelsFormats(t *testing.T) {
@@ -39,10 +40,10 @@ func TestReadLabelsFormats(t *testing.T) {
 		data []byte
 		want string
 	}{
-		{"binary", []byte{0x89, 'P', 'N', 'G', 0, 0, 0xff, 0xfe}, "infer: bad.txt: not UTF-8"},
-		{"empty", nil, "infer: bad.txt: empty"},
-		{"bad JSON", []byte(`[1, 2]`), "infer: bad.txt: starts like a JSON array"},
-		{"too large", []byte(strings.Repeat("x\n", maxLabelsFile/2+1)), "infer: bad.txt: more than 16 MiB"},
+		{"binary", []byte{0x89, 'P', 'N', 'G', 0, 0, 0xff, 0xfe}, "labels file bad.txt: not UTF-8"},
+		{"empty", nil, "labels file bad.txt: empty"},
+		{"bad JSON", []byte(`[1, 2]`), "labels file bad.txt: starts like a JSON array"},
+		{"too large", []byte(strings.Repeat("x\n", maxLabelsFile/2+1)), "labels file bad.txt: more than 16 MiB"},
 	} {
 		p := filepath.Join(dir, "bad.txt")
 		if err := os.WriteFile(p, c.data, 0o644); err != nil {
@@ -52,7 +53,7 @@ func TestReadLabelsFormats(t *testing.T) {
 			t.Errorf("%s: got %v, want %q", c.name, err, c.want)
 		}
 	}
-	if _, err := ReadLabels(filepath.Join(dir, "missing.txt")); err == nil || !strings.HasPrefix(err.Error(), "infer: missing.txt: ") {
+	if _, err := ReadLabels(filepath.Join(dir, "missing.txt")); err == nil || !strings.HasPrefix(err.Error(), "labels file missing.txt: ") {
 		t.Errorf("missing file: %v", err)
 	}
 }
@@ -60,9 +61,8 @@ func TestReadLabelsFormats(t *testing.T) {
 // The order of the sources: the user's file, the model's metadata, a file
 // beside the model, none.
 func TestLabelsSources(t *testing.T) {
-	g := tinyCNN(0, false)
-	withMeta := writeModel(t, "meta.onnx", modelBytes(t, g, 13, map[string]string{"labels": "bolt\nnut\nwasher\nscrew\nrivet"}))
-	plain := writeModel(t, "parts.onnx", modelBytes(t, g, 13, nil))
+	withMeta := fiveClassModel(t, "meta.onnx", "bolt\nnut\nwasher\nscrew\nrivet")
+	plain := fiveClassModel(t, "parts.onnx", "")
 	user := filepath.Join(t.TempDir(), "mine.txt")
 	if err := os.WriteFile(user, []byte("a\nb\nc\nd\ne\n"), 0o644); err != nil {
 		t.Fatal(err)
@@ -93,4 +93,26 @@ func TestLabelsSources(t *testing.T) {
 	if _, _, _, err := Labels(plain, filepath.Join(t.TempDir(), "gone.txt")); err == nil {
 		t.Error("a missing user-chosen file must be an error, not a silent fallback")
 	}
+}
+
+// fiveClassModel writes a small five-class classifier into a fresh folder,
+// with labels as its "labels" metadata entry when not empty, and opens it.
+func fiveClassModel(t *testing.T, name, labels string) *modelio.Model {
+	t.Helper()
+	b := onnxbuild.New(13, onnxbuild.Random)
+	x := b.Input("image", 1, "N", 3, 8, 8)
+	x = b.GlobalAveragePool(b.Relu(b.Conv(x, 3, 4, 3, 1, 1)))
+	b.Output(b.Gemm(b.Flatten(x), 4, 5), "N", 5)
+	if labels != "" {
+		b.Meta("labels", labels)
+	}
+	p := filepath.Join(t.TempDir(), name)
+	if err := b.Write(p); err != nil {
+		t.Fatal(err)
+	}
+	m, err := modelio.Open(p)
+	if err != nil {
+		t.Fatalf("modelio.Open(%s): %v", name, err)
+	}
+	return m
 }

@@ -1,9 +1,10 @@
-package viz
+package analysis
 
 import (
 	"bytes"
 	"encoding/csv"
 	"encoding/json"
+	"fovea/modelio"
 	"os"
 	"path/filepath"
 	"reflect"
@@ -16,13 +17,13 @@ import (
 func literalReport() *ScanReport {
 	return &ScanReport{Images: 40, Rare: 0.05, Layers: []ScanLayer{
 		{Name: "relu_b", Output: "rb", Conv: "conv_b", Channels: []ChannelScan{
-			{Index: 0, Fires: 1, Max: 2.5, Mean: 0.75, Flags: []string{}},
-			{Index: 1, Fires: 0, Max: 0, Mean: 0, Flags: []string{FlagDead, FlagZeroKernel}},
-			{Index: 2, Fires: 0.025, Max: 0.125, Mean: 0.001, Flags: []string{FlagRare}},
+			{Index: 0, Fires: 1, Max: 2.5, Mean: 0.75, Flags: []modelio.Flag{}},
+			{Index: 1, Fires: 0, Max: 0, Mean: 0, Flags: []modelio.Flag{modelio.FlagDead, modelio.FlagZeroKernel}},
+			{Index: 2, Fires: 0.025, Max: 0.125, Mean: 0.001, Flags: []modelio.Flag{modelio.FlagRare}},
 		}},
 		{Name: "relu_a", Output: "ra", Channels: []ChannelScan{
-			{Index: 0, Fires: 0, Max: 0, Mean: 0, Flags: []string{FlagDead}},
-			{Index: 1, Fires: 0.5, Max: 4, Mean: 1.5, Flags: []string{}},
+			{Index: 0, Fires: 0, Max: 0, Mean: 0, Flags: []modelio.Flag{modelio.FlagDead}},
+			{Index: 1, Fires: 0.5, Max: 4, Mean: 1.5, Flags: []modelio.Flag{}},
 		}},
 	}}
 }
@@ -128,7 +129,7 @@ func TestScanSortRows(t *testing.T) {
 	if err := SortRows(nil, "colour", false); err == nil || !strings.Contains(err.Error(), `unknown sort key "colour"`) {
 		t.Errorf("bad key: %v", err)
 	}
-	if n := literalReport().Count(FlagDead); n != 2 {
+	if n := literalReport().Count(modelio.FlagDead); n != 2 {
 		t.Errorf("Count(dead) = %d, want 2", n)
 	}
 }

@@ -1,4 +1,4 @@
-package viz
+package analysis
 
 import (
 	"context"
@@ -17,6 +17,7 @@ import (
 	"fovea/modelio"
 	"fovea/modelio/infer"
 	"fovea/modelio/prep"
+	"fovea/viz"
 )
 
 func TestOcclusionPositions(t *testing.T) {
@@ -35,9 +36,9 @@ func TestOcclusionPositions(t *testing.T) {
 		{5, 1, 1, []int{0, 1, 2, 3, 4}},
 		{9, 2, 20, []int{0, 7}}, // stride larger than the image
 	} {
-		got := patchPositions(c.n, c.patch, c.stride)
+		got := viz.PatchPositions(c.n, c.patch, c.stride)
 		if !slices.Equal(got, c.want) {
-			t.Errorf("patchPositions(%d, %d, %d) = %v, want %v", c.n, c.patch, c.stride, got, c.want)
+			t.Errorf("viz.PatchPositions(%d, %d, %d) = %v, want %v", c.n, c.patch, c.stride, got, c.want)
 		}
 	}
 }
@@ -122,7 +123,7 @@ func testImage(w, h int, seed uint32) *image.NRGBA {
 // test, the class scores of the model for img with a patch of the given fill
 // at (py, px); py < 0 means no patch. The normalisation is prep's documented
 // one for Range "0-1": out = (p - Mean[c]) / Std[c], p = sample/255.
-func expectedScores(img *image.NRGBA, cfg prep.Config, set OcclusionSettings, py, px int) [occK]float64 {
+func expectedScores(img *image.NRGBA, cfg prep.Config, set viz.OcclusionSettings, py, px int) [occK]float64 {
 	pix := func(im *image.NRGBA, c, y, x int) float64 {
 		return float64(im.Pix[y*im.Stride+x*4+c]) / 255
 	}
@@ -136,7 +137,7 @@ func expectedScores(img *image.NRGBA, cfg prep.Config, set OcclusionSettings, py
 		mean[c] /= occW * occH
 	}
 	var blurred *image.NRGBA
-	if set.Fill == FillBlur {
+	if set.Fill == viz.FillBlur {
 		// The documented blur: Gaussian, sigma = patch/4, by imaging.Blur.
 		blurred = imaging.Blur(img, float64(set.Patch)/4)
 	}
@@ -149,13 +150,13 @@ func expectedScores(img *image.NRGBA, cfg prep.Config, set OcclusionSettings, py
 					p := pix(img, c, y, x)
 					if py >= 0 && y >= py && y < py+set.Patch && x >= px && x < px+set.Patch {
 						switch set.Fill {
-						case FillGrey:
+						case viz.FillGrey:
 							p = 0.5
-						case FillZero:
+						case viz.FillZero:
 							p = 0
-						case FillMean:
+						case viz.FillMean:
 							p = mean[c]
-						case FillBlur:
+						case viz.FillBlur:
 							p = pix(blurred, c, y, x)
 						}
 					}
@@ -188,13 +189,13 @@ func TestOcclusionWeightedSquare(t *testing.T) {
 		m := occModel(t, layout)
 		s := newSession(t, m, infer.Options{})
 		cfg := occConfig(layout)
-		for _, set := range []OcclusionSettings{
-			{Patch: 5, Stride: 4, Fill: FillGrey, Score: ScoreLogit},
-			{Patch: 3, Stride: 2, Fill: FillZero, Score: ScoreLogit},
-			{Patch: 4, Stride: 3, Fill: FillMean, Score: ScoreLogit},
-			{Patch: 6, Stride: 5, Fill: FillBlur, Score: ScoreLogit},
-			{Patch: 5, Stride: 4, Fill: FillGrey, Score: ScoreProbability},
-			{Patch: 16, Stride: 1, Fill: FillGrey, Score: ScoreProbability},
+		for _, set := range []viz.OcclusionSettings{
+			{Patch: 5, Stride: 4, Fill: viz.FillGrey, Score: viz.ScoreLogit},
+			{Patch: 3, Stride: 2, Fill: viz.FillZero, Score: viz.ScoreLogit},
+			{Patch: 4, Stride: 3, Fill: viz.FillMean, Score: viz.ScoreLogit},
+			{Patch: 6, Stride: 5, Fill: viz.FillBlur, Score: viz.ScoreLogit},
+			{Patch: 5, Stride: 4, Fill: viz.FillGrey, Score: viz.ScoreProbability},
+			{Patch: 16, Stride: 1, Fill: viz.FillGrey, Score: viz.ScoreProbability},
 		} {
 			name := fmt.Sprintf("%s/%+v", layout, set)
 			var calls, lastDone, lastTotal int
@@ -232,11 +233,11 @@ func TestOcclusionWeightedSquare(t *testing.T) {
 				if o.Width != occW || o.Height != occH || o.Patch != set.Patch || o.Fill != set.Fill || o.Score != set.Score {
 					t.Errorf("%s: result settings %+v, size %dx%d", name, o.OcclusionSettings, o.Width, o.Height)
 				}
-				if !slices.Equal(o.Ys, patchPositions(occH, set.Patch, set.Stride)) || !slices.Equal(o.Xs, patchPositions(occW, set.Patch, set.Stride)) {
+				if !slices.Equal(o.Ys, viz.PatchPositions(occH, set.Patch, set.Stride)) || !slices.Equal(o.Xs, viz.PatchPositions(occW, set.Patch, set.Stride)) {
 					t.Errorf("%s: positions %v × %v", name, o.Ys, o.Xs)
 				}
 				wantBase, wantProb := base[k], softmax64(base)[k]
-				if set.Score == ScoreProbability {
+				if set.Score == viz.ScoreProbability {
 					wantBase = wantProb
 				}
 				if math.Abs(o.Base-wantBase) > 1e-5 || math.Abs(o.Probability-wantProb) > 1e-5 {
@@ -252,7 +253,7 @@ func TestOcclusionWeightedSquare(t *testing.T) {
 					for xi, x := range o.Xs {
 						occl := expectedScores(img, cfg, set, y, x)
 						want := base[k] - occl[k]
-						if set.Score == ScoreProbability {
+						if set.Score == viz.ScoreProbability {
 							want = softmax64(base)[k] - softmax64(occl)[k]
 						}
 						// Tolerance 1e-5: float32 arithmetic in the runtime
@@ -266,7 +267,7 @@ func TestOcclusionWeightedSquare(t *testing.T) {
 			// A patch that never touches class 0's square leaves its logit
 			// alone: the drop is 0 (Zeiler & Fergus 2014: only occluding the
 			// evidence changes the score). Checked without the reference.
-			if set.Score == ScoreLogit {
+			if set.Score == viz.ScoreLogit {
 				sq := occSquares[0]
 				o := occ[0]
 				touched := 0
@@ -304,22 +305,22 @@ func TestOcclusionErrors(t *testing.T) {
 	cfg := occConfig("nchw")
 	img := testImage(occW, occH, 3)
 	for _, c := range []struct {
-		set     OcclusionSettings
+		set     viz.OcclusionSettings
 		targets []int
 		img     *image.NRGBA
 		want    string
 	}{
-		{OcclusionSettings{Patch: 17, Stride: 1}, nil, img, "larger than the 20×16 image"},
-		{OcclusionSettings{Patch: 21, Stride: 1}, nil, img, "larger than"},
-		{OcclusionSettings{Patch: 4, Stride: 0}, nil, img, "stride 0"},
-		{OcclusionSettings{Patch: 4, Stride: -2}, nil, img, "stride -2"},
-		{OcclusionSettings{Patch: 0, Stride: 2}, nil, img, "patch size 0"},
-		{OcclusionSettings{Patch: 4, Stride: 2}, []int{3}, img, "target class 3 out of range: the model has 3 classes"},
-		{OcclusionSettings{Patch: 4, Stride: 2}, []int{0, -2}, img, "target class -2 out of range"},
-		{OcclusionSettings{Patch: 4, Stride: 2, Fill: "pink"}, nil, img, `unknown fill "pink"`},
-		{OcclusionSettings{Patch: 4, Stride: 2, Score: "odds"}, nil, img, `unknown score "odds"`},
-		{OcclusionSettings{Patch: 4, Stride: 2}, nil, testImage(occW+1, occH, 3), "image is 21×16 but the model's input is 20×16"},
-		{OcclusionSettings{Patch: 4, Stride: 2}, nil, nil, "no image"},
+		{viz.OcclusionSettings{Patch: 17, Stride: 1}, nil, img, "larger than the 20×16 image"},
+		{viz.OcclusionSettings{Patch: 21, Stride: 1}, nil, img, "larger than"},
+		{viz.OcclusionSettings{Patch: 4, Stride: 0}, nil, img, "stride 0"},
+		{viz.OcclusionSettings{Patch: 4, Stride: -2}, nil, img, "stride -2"},
+		{viz.OcclusionSettings{Patch: 0, Stride: 2}, nil, img, "patch size 0"},
+		{viz.OcclusionSettings{Patch: 4, Stride: 2}, []int{3}, img, "target class 3 out of range: the model has 3 classes"},
+		{viz.OcclusionSettings{Patch: 4, Stride: 2}, []int{0, -2}, img, "target class -2 out of range"},
+		{viz.OcclusionSettings{Patch: 4, Stride: 2, Fill: "pink"}, nil, img, `unknown fill "pink"`},
+		{viz.OcclusionSettings{Patch: 4, Stride: 2, Score: "odds"}, nil, img, `unknown score "odds"`},
+		{viz.OcclusionSettings{Patch: 4, Stride: 2}, nil, testImage(occW+1, occH, 3), "image is 21×16 but the model's input is 20×16"},
+		{viz.OcclusionSettings{Patch: 4, Stride: 2}, nil, nil, "no image"},
 	} {
 		occ, err := Occlude(context.Background(), s, cfg, c.img, c.set, c.targets, nil)
 		if err == nil || !strings.Contains(err.Error(), c.want) || !strings.HasPrefix(err.Error(), "viz: ") {
@@ -346,14 +347,14 @@ func TestOcclusionLogitOfProbabilities(t *testing.T) {
 	s := newSession(t, m, infer.Options{})
 	cfg := prep.Config{Width: 4, Height: 4, Channels: 3, Resize: "stretch", Range: "0-1", Std: [3]float32{1, 1, 1}, Layout: "nchw"}
 	img := testImage(4, 4, 1)
-	_, err := Occlude(context.Background(), s, cfg, img, OcclusionSettings{Patch: 2, Stride: 2, Score: ScoreLogit}, nil, nil)
+	_, err := Occlude(context.Background(), s, cfg, img, viz.OcclusionSettings{Patch: 2, Stride: 2, Score: viz.ScoreLogit}, nil, nil)
 	if err == nil || !strings.Contains(err.Error(), "already a probability distribution") {
 		t.Errorf("logit of a softmax output: error %v", err)
 	}
 	// Probability mode takes the model's probabilities as they are: the
 	// weights are zero, so every drop is 0 and the base is softmax(0.3,
 	// -0.3)[0] = 1/(1+e^-0.6) (by hand).
-	occ, err := Occlude(context.Background(), s, cfg, img, OcclusionSettings{Patch: 2, Stride: 2}, []int{0}, nil)
+	occ, err := Occlude(context.Background(), s, cfg, img, viz.OcclusionSettings{Patch: 2, Stride: 2}, []int{0}, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -390,7 +391,7 @@ func TestOcclusionCancel(t *testing.T) {
 	img := testImage(occW, occH, 5)
 	// Warm the session up so that anything it keeps for good exists before
 	// the goroutines are counted.
-	if _, err := Occlude(context.Background(), s, cfg, img, OcclusionSettings{Patch: 8, Stride: 8}, nil, nil); err != nil {
+	if _, err := Occlude(context.Background(), s, cfg, img, viz.OcclusionSettings{Patch: 8, Stride: 8}, nil, nil); err != nil {
 		t.Fatal(err)
 	}
 	before := runtime.NumGoroutine()
@@ -398,7 +399,7 @@ func TestOcclusionCancel(t *testing.T) {
 	// Cancelled before the start: nothing runs.
 	ctx, cancel := context.WithCancel(context.Background())
 	cancel()
-	if _, err := Occlude(ctx, s, cfg, img, OcclusionSettings{Patch: 2, Stride: 1}, nil, nil); !errors.Is(err, context.Canceled) {
+	if _, err := Occlude(ctx, s, cfg, img, viz.OcclusionSettings{Patch: 2, Stride: 1}, nil, nil); !errors.Is(err, context.Canceled) {
 		t.Errorf("cancelled before the start: %v", err)
 	}
 
@@ -407,7 +408,7 @@ func TestOcclusionCancel(t *testing.T) {
 	ctx, cancel = context.WithCancel(context.Background())
 	defer cancel()
 	var after, total int
-	occ, err := Occlude(ctx, s, cfg, img, OcclusionSettings{Patch: 2, Stride: 1}, nil, func(done, n int) {
+	occ, err := Occlude(ctx, s, cfg, img, viz.OcclusionSettings{Patch: 2, Stride: 1}, nil, func(done, n int) {
 		total = n
 		if done > 1 && ctx.Err() == nil {
 			cancel()

@@ -1,4 +1,4 @@
-package viz_test
+package analysis
 
 // Ratio benchmarks of issue 9 for the analyses: occlusion against plain
 // batched inference over as many images, and the dead-filter scan against
@@ -54,7 +54,7 @@ const (
 )
 
 // benchDemoFile is the demo classifier, relative to this package.
-const benchDemoFile = "../assets/demo/parts.onnx"
+const benchDemoFile = "../../assets/demo/parts.onnx"
 
 var (
 	benchORTOnce sync.Once
@@ -265,7 +265,7 @@ func occlusionRatio(b *testing.B, bc benchCase) {
 	img := prep.Fit(benchPicture(cfg.Width, cfg.Height, 1), cfg)
 	set := viz.OcclusionSettings{Patch: bc.patch, Stride: bc.stride}
 	occlude := func() []*viz.Occlusion {
-		o, err := viz.Occlude(ctx, s, cfg, img, set, nil, nil)
+		o, err := Occlude(ctx, s, cfg, img, set, nil, nil)
 		if err != nil {
 			b.Fatal(err)
 		}
@@ -304,15 +304,15 @@ func BenchmarkScanRatio(b *testing.B) {
 func scanRatio(b *testing.B, bc benchCase) {
 	ctx := context.Background()
 	m, cfg := benchOpen(b, bc.path)
-	// The scan's session is made as the window's is (viz.ScanSession); the
+	// The scan's session is made as the window's is (ScanSession); the
 	// bound's with the default options, the fastest for runs that have the
 	// cores to themselves.
-	s, err := infer.NewSession(m, viz.ScanSession(m, nil))
+	s, err := infer.NewSession(m, ScanSession(m, nil))
 	if err != nil {
 		b.Fatal(err)
 	}
 	defer s.Close()
-	bound, err := infer.NewSession(m, infer.Options{Capture: viz.ScanCapture(m)})
+	bound, err := infer.NewSession(m, infer.Options{Capture: ScanCapture(m)})
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -342,7 +342,7 @@ func scanRatio(b *testing.B, bc benchCase) {
 		}
 	}
 	scan := func() {
-		rep, err := viz.Scan(ctx, s, m, cfg, files, viz.ScanOptions{}, nil)
+		rep, err := Scan(ctx, s, m, cfg, files, ScanOptions{}, nil)
 		if err != nil {
 			b.Fatal(err)
 		}

@@ -1,4 +1,4 @@
-package viz
+package analysis
 
 // Small ONNX models built by the tests, straight from the schema types
 // (onnx.proto3, ONNX IR version 8, opset 13), so that every weight is known

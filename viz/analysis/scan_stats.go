@@ -1,4 +1,4 @@
-package viz
+package analysis
 
 // The scan's inner loop reads every value of every captured map once, so it
 // is written for speed: see mapStats (per architecture) and its portable

@@ -1,4 +1,4 @@
-package viz
+package analysis
 
 import (
 	"context"
@@ -20,7 +20,7 @@ func demoDir() string {
 	if d := os.Getenv("FOVEA_DEMO_DIR"); d != "" {
 		return d
 	}
-	return filepath.Join("..", "assets", "demo")
+	return filepath.Join("..", "..", "assets", "demo")
 }
 
 // demoTruth is the part of truth_*.json the scan is checked against: which
@@ -108,10 +108,10 @@ func TestScanDemoTruth(t *testing.T) {
 				}
 				var gotDead, gotRare []int
 				for _, ch := range l.Channels {
-					if slices.Contains(ch.Flags, FlagDead) {
+					if slices.Contains(ch.Flags, modelio.FlagDead) {
 						gotDead = append(gotDead, ch.Index)
 					}
-					if slices.Contains(ch.Flags, FlagRare) {
+					if slices.Contains(ch.Flags, modelio.FlagRare) {
 						gotRare = append(gotRare, ch.Index)
 					}
 					// Firing counts agree up to the images whose largest
@@ -133,11 +133,11 @@ func TestScanDemoTruth(t *testing.T) {
 				dead += len(gotDead)
 				rare += len(gotRare)
 			}
-			if r.Count(FlagDead) != dead || r.Count(FlagRare) != rare {
-				t.Errorf("flags outside the truth's layers: %d dead, %d rare in all", r.Count(FlagDead), r.Count(FlagRare))
+			if r.Count(modelio.FlagDead) != dead || r.Count(modelio.FlagRare) != rare {
+				t.Errorf("flags outside the truth's layers: %d dead, %d rare in all", r.Count(modelio.FlagDead), r.Count(modelio.FlagRare))
 			}
 			t.Logf("%s: %d images, %d dead, %d rare, %d constant, %d zero_kernel, %d duplicate", kind, r.Images, dead, rare,
-				r.Count(FlagConstant), r.Count(FlagZeroKernel), r.Count(FlagDuplicate))
+				r.Count(modelio.FlagConstant), r.Count(modelio.FlagZeroKernel), r.Count(modelio.FlagDuplicate))
 		})
 	}
 }

@@ -1,4 +1,4 @@
-package infer
+package classes
 
 import (
 	"bytes"
@@ -84,19 +84,19 @@ func ReadLabels(path string) ([]string, error) {
 	name := filepath.Base(path)
 	f, err := os.Open(path)
 	if err != nil {
-		return nil, fmt.Errorf("infer: %s: %w", name, unwrapPathErr(err))
+		return nil, fmt.Errorf("labels file %s: %w", name, unwrapPathErr(err))
 	}
 	defer f.Close()
 	b, err := io.ReadAll(io.LimitReader(f, maxLabelsFile+1))
 	if err != nil {
-		return nil, fmt.Errorf("infer: %s: %w", name, unwrapPathErr(err))
+		return nil, fmt.Errorf("labels file %s: %w", name, unwrapPathErr(err))
 	}
 	if len(b) > maxLabelsFile {
-		return nil, fmt.Errorf("infer: %s: more than %d MiB; not a labels file", name, maxLabelsFile>>20)
+		return nil, fmt.Errorf("labels file %s: more than %d MiB; not a labels file", name, maxLabelsFile>>20)
 	}
 	l, err := parseLabelText(b)
 	if err != nil {
-		return nil, fmt.Errorf("infer: %s: %v", name, err)
+		return nil, fmt.Errorf("labels file %s: %v", name, err)
 	}
 	return l, nil
 }

@@ -1,4 +1,4 @@
-package viz
+package analysis
 
 import (
 	"runtime"
@@ -17,11 +17,11 @@ func TestKernelMemo(t *testing.T) {
 	calls := 0
 	compute := func() (convFlags, bool) {
 		calls++
-		return convFlags{m: 3, flags: map[int][]string{1: {FlagZeroKernel}}}, true
+		return convFlags{m: 3, flags: map[int][]modelio.Flag{1: {modelio.FlagZeroKernel}}}, true
 	}
 	for range 3 {
 		f, ok := memoFlags(m, "conv", compute)
-		if !ok || f.m != 3 || f.flags[1][0] != FlagZeroKernel {
+		if !ok || f.m != 3 || f.flags[1][0] != modelio.FlagZeroKernel {
 			t.Fatalf("memoFlags = %+v, %v", f, ok)
 		}
 	}

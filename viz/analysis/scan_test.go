@@ -1,4 +1,4 @@
-package viz
+package analysis
 
 import (
 	"context"
@@ -242,10 +242,10 @@ func TestScanHandModel(t *testing.T) {
 		// Expected flags worked out by hand from the weights (see scanModel).
 		wantLayers := []struct {
 			name, output, conv string
-			flags              [][]string
+			flags              [][]modelio.Flag
 		}{
-			{"relu1", "r1", "conv1", [][]string{{FlagDead}, {}, {FlagConstant, FlagZeroKernel}, {FlagRare, FlagDuplicate}, {FlagRare, FlagDuplicate}, {}}},
-			{"act2", "a2", "conv2", [][]string{{FlagDead, FlagZeroKernel}, {}}},
+			{"relu1", "r1", "conv1", [][]modelio.Flag{{modelio.FlagDead}, {}, {modelio.FlagConstant, modelio.FlagZeroKernel}, {modelio.FlagRare, modelio.FlagDuplicate}, {modelio.FlagRare, modelio.FlagDuplicate}, {}}},
+			{"act2", "a2", "conv2", [][]modelio.Flag{{modelio.FlagDead, modelio.FlagZeroKernel}, {}}},
 		}
 		fires, maxv, mean := scanReference(n)
 		if len(r.Layers) != len(wantLayers) {
@@ -298,10 +298,10 @@ func TestScanRareDefault(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if r.Rare != DefaultRare || slices.Contains(r.Layers[0].Channels[3].Flags, FlagRare) {
+	if r.Rare != DefaultRare || slices.Contains(r.Layers[0].Channels[3].Flags, modelio.FlagRare) {
 		t.Errorf("rare %g, channel 3 flags %v", r.Rare, r.Layers[0].Channels[3].Flags)
 	}
-	if got := r.Count(FlagDead); got != 2 {
+	if got := r.Count(modelio.FlagDead); got != 2 {
 		t.Errorf("%d dead channels, want 2", got)
 	}
 }
@@ -419,7 +419,7 @@ func TestScanNotFinite(t *testing.T) {
 	if r.Layers[0].Conv != "" {
 		t.Errorf("conv %q for a layer fed by Div", r.Layers[0].Conv)
 	}
-	if !slices.Equal(chs[0].Flags, []string{FlagNotFinite}) || chs[0].Max != 0 || chs[0].Mean != 0 {
+	if !slices.Equal(chs[0].Flags, []modelio.Flag{FlagNotFinite}) || chs[0].Max != 0 || chs[0].Mean != 0 {
 		t.Errorf("infinite channel: %+v", chs[0])
 	}
 	// Channel 1 is 1 + green/255: fires everywhere, max (1 + max green/255).

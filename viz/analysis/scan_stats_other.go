@@ -1,6 +1,6 @@
 //go:build !amd64 || purego
 
-package viz
+package analysis
 
 // useAVX is false where there is no AVX kernel.
 const useAVX = false

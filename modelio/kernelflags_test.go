@@ -1,4 +1,4 @@
-package viz
+package modelio
 
 import (
 	"math"
@@ -6,18 +6,16 @@ import (
 	"slices"
 	"testing"
 	"time"
-
-	"fovea/modelio"
 )
 
 // duplicatesSlow is the obviously correct reference for [Duplicates]: the
 // cosine of every pair of non-zero filters in full, float64.
-func duplicatesSlow(k *modelio.Kernels) []Pair {
-	if checkKernels(k) != nil {
+func duplicatesSlow(k *Kernels) []Pair {
+	if k.Check() != nil {
 		return nil
 	}
 	per := k.C * k.KH * k.KW
-	norms := filterNorms(k)
+	norms := k.Norms()
 	zero := zeroFilters(k)
 	var out []Pair
 	for i := range k.M {
@@ -82,7 +80,7 @@ type planted struct {
 // decades) with near-duplicates planted at cosines just above and below
 // DuplicateCosine, and under the bound at which Duplicates stops looking
 // (0.9495), a scaled copy, a negated copy and a zero filter, when m allows.
-func plantedKernels(r *rand.Rand, m, c, kh, kw int) (*modelio.Kernels, []planted) {
+func plantedKernels(r *rand.Rand, m, c, kh, kw int) (*Kernels, []planted) {
 	per := c * kh * kw
 	w := make([]float32, m*per)
 	put := func(f int, v []float64, scale float64) {
@@ -112,7 +110,7 @@ func plantedKernels(r *rand.Rand, m, c, kh, kw int) (*modelio.Kernels, []planted
 	if z := 2 * len(cosines); z < m {
 		put(z, vec[z], 0)
 	}
-	return &modelio.Kernels{Node: "planted", M: m, C: c, KH: kh, KW: kw, Group: 1, W: w}, plants
+	return &Kernels{Node: "planted", M: m, C: c, KH: kh, KW: kw, Group: 1, W: w}, plants
 }
 
 func TestDuplicatesMatchesAllPairs(t *testing.T) {
@@ -130,7 +128,7 @@ func TestDuplicatesMatchesAllPairs(t *testing.T) {
 		for range 3 {
 			k, plants := plantedKernels(r, sh.m, sh.c, sh.kh, sh.kw)
 			want := duplicatesSlow(k)
-			got := Duplicates(k)
+			got := k.Duplicates()
 			if !slices.Equal(got, want) {
 				t.Errorf("%d×%d×%d×%d: Duplicates %v, all pairs %v", sh.m, sh.c, sh.kh, sh.kw, got, want)
 			}
@@ -163,12 +161,12 @@ var resnet18Convs = [][4]int{
 // for the early exit; a trained layer's filters are more alike.
 func BenchmarkDuplicatesSpeedup(b *testing.B) {
 	r := rand.New(rand.NewPCG(3, 4))
-	var ks []*modelio.Kernels
+	var ks []*Kernels
 	for _, s := range resnet18Convs {
 		k, _ := plantedKernels(r, s[0], s[1], s[2], s[3])
 		ks = append(ks, k)
 	}
-	run := func(f func(*modelio.Kernels) []Pair) time.Duration {
+	run := func(f func(*Kernels) []Pair) time.Duration {
 		t0 := time.Now()
 		for _, k := range ks {
 			f(k)
@@ -181,9 +179,9 @@ func BenchmarkDuplicatesSpeedup(b *testing.B) {
 	for b.Loop() {
 		var slow, fast time.Duration
 		if len(ratios)%2 == 0 {
-			slow, fast = run(duplicatesSlow), run(Duplicates)
+			slow, fast = run(duplicatesSlow), run((*Kernels).Duplicates)
 		} else {
-			fast, slow = run(Duplicates), run(duplicatesSlow)
+			fast, slow = run((*Kernels).Duplicates), run(duplicatesSlow)
 		}
 		fastTotal += fast
 		ratios = append(ratios, float64(slow)/float64(fast))
@@ -196,4 +194,54 @@ func BenchmarkDuplicatesSpeedup(b *testing.B) {
 	b.ReportMetric(med, "speedup")
 	b.ReportMetric(ratios[0], "min-speedup")
 	b.ReportMetric(float64(fastTotal.Milliseconds())/float64(len(ratios)), "fast-ms")
+}
+
+func TestDuplicates(t *testing.T) {
+	// Hand-computed cosines of 4-vectors (filters of 1×2×2):
+	//   a = (1, 0, 0, 0), b = (1, 0.2, 0, 0), c = (1, 0.4, 0, 0), d = −a, e = 0.
+	//   cos(a,b) = 1/√1.04 = 0.98058 > 0.95: duplicate
+	//   cos(a,c) = 1/√1.16 = 0.92848: not
+	//   cos(b,c) = 1.08/√(1.04·1.16) = 0.98328: duplicate
+	//   cos(a,d) = −1: opposite, not a duplicate; e has no direction.
+	k := testKernels(5, 1, 2, 2,
+		1, 0, 0, 0,
+		1, 0.2, 0, 0,
+		1, 0.4, 0, 0,
+		-1, 0, 0, 0,
+		0, 0, 0, 0)
+	pairs := k.Duplicates()
+	want := []Pair{{0, 1, 0.98058}, {1, 2, 0.98328}}
+	if len(pairs) != len(want) {
+		t.Fatalf("pairs %v, want %v", pairs, want)
+	}
+	for i, p := range pairs {
+		if p.I != want[i].I || p.J != want[i].J || math.Abs(p.Cosine-want[i].Cosine) > 1e-5 {
+			t.Errorf("pair %d = %+v, want %+v (±1e-5)", i, p, want[i])
+		}
+	}
+	flags := k.Flags()
+	wantFlags := map[int][]Flag{0: {FlagDuplicate}, 1: {FlagDuplicate}, 2: {FlagDuplicate}, 4: {FlagZeroKernel}}
+	if len(flags) != len(wantFlags) {
+		t.Errorf("flags %v, want %v", flags, wantFlags)
+	}
+	for m, w := range wantFlags {
+		if !slices.Equal(flags[m], w) {
+			t.Errorf("filter %d flags %v, want %v", m, flags[m], w)
+		}
+	}
+}
+
+func TestKernelFlagsNearZero(t *testing.T) {
+	// A filter at 1e-7 of the layer's largest weight counts as zero (the
+	// documented 1e-6 threshold); one at 1e-3 does not.
+	k := testKernels(3, 1, 1, 2, 1, 0.5, 1e-7, 0, 1e-3, 0)
+	f := k.Flags()
+	if !slices.Equal(f[1], []Flag{FlagZeroKernel}) || len(f[2]) != 0 {
+		t.Errorf("flags %v: want filter 1 zero_kernel, filter 2 unflagged", f)
+	}
+}
+
+// testKernels builds kernels of m filters of c×kh×kw from literal weights.
+func testKernels(m, c, kh, kw int, w ...float32) *Kernels {
+	return &Kernels{M: m, C: c, KH: kh, KW: kw, Group: 1, W: w}
 }

@@ -1,4 +1,4 @@
-package viz
+package analysis
 
 import (
 	"context"
@@ -15,7 +15,7 @@ import (
 // FlagNotFinite marks a channel whose maps held NaN or infinite values: a
 // broken model rather than a dead filter. Its Max and Mean are reported as
 // 0 (JSON has no NaN).
-const FlagNotFinite = "not_finite"
+const FlagNotFinite modelio.Flag = "not_finite"
 
 // DefaultRare is the fraction of probe images under which a channel that
 // does fire is flagged rare.
@@ -67,11 +67,11 @@ type ScanLayer struct {
 //
 // Flags is never nil, so that JSON shows [] for a healthy channel.
 type ChannelScan struct {
-	Index int      `json:"index"`
-	Fires float64  `json:"fires"`
-	Max   float64  `json:"max"`
-	Mean  float64  `json:"mean"`
-	Flags []string `json:"flags"`
+	Index int            `json:"index"`
+	Fires float64        `json:"fires"`
+	Max   float64        `json:"max"`
+	Mean  float64        `json:"mean"`
+	Flags []modelio.Flag `json:"flags"`
 }
 
 // reluLike are the activation ops the scan looks at: their output is > 0
@@ -150,7 +150,7 @@ type layerAcc struct {
 	values   int // values seen per channel
 }
 
-func (a *layerAcc) add(t infer.Tensor, n int) error {
+func (a *layerAcc) add(t modelio.Tensor, n int) error {
 	if len(t.Shape) < 2 || t.Shape[0] != int64(n) {
 		return fmt.Errorf("viz: scan: activation %q has shape %v for a batch of %d images; want [N][C]...", a.layer.Output, t.Shape, n)
 	}
@@ -204,7 +204,7 @@ func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
 // convFlags are the kernel flags of one Conv with M filters.
 type convFlags struct {
 	m     int
-	flags map[int][]string
+	flags map[int][]modelio.Flag
 }
 
 // kernelFlags returns KernelFlags of every Conv feeding a scanned layer, by
@@ -227,7 +227,7 @@ func kernelFlags(ctx context.Context, m *modelio.Model, accs []*layerAcc) map[in
 			if err != nil {
 				return convFlags{}, false
 			}
-			return convFlags{m: k.M, flags: KernelFlags(k)}, true
+			return convFlags{m: k.M, flags: k.Flags()}, true
 		})
 		if ok {
 			out[a.conv] = f
@@ -439,22 +439,22 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 	}
 	for _, a := range accs {
 		l := ScanLayer{Name: a.layer.Name, Output: a.layer.Output}
-		var kflags map[int][]string
+		var kflags map[int][]modelio.Flag
 		if kf, ok := kernels[a.conv]; ok && kf.m == len(a.channels) {
 			l.Conv = m.Layers[a.conv].Name
 			kflags = kf.flags
 		}
 		for i, ch := range a.channels {
 			cs := ChannelScan{Index: i, Fires: float64(ch.fires) / float64(rep.Images), Max: ch.max,
-				Mean: ch.sum / float64(a.values), Flags: []string{}}
+				Mean: ch.sum / float64(a.values), Flags: []modelio.Flag{}}
 			switch {
 			case ch.fires == 0:
-				cs.Flags = append(cs.Flags, FlagDead)
+				cs.Flags = append(cs.Flags, modelio.FlagDead)
 			case cs.Fires < rare:
-				cs.Flags = append(cs.Flags, FlagRare)
+				cs.Flags = append(cs.Flags, modelio.FlagRare)
 			}
 			if ch.fires > 0 && !ch.varies {
-				cs.Flags = append(cs.Flags, FlagConstant)
+				cs.Flags = append(cs.Flags, modelio.FlagConstant)
 			}
 			if !finite(cs.Max) || !finite(cs.Mean) {
 				// Firing and constancy mean little for such a channel.

@@ -1,10 +1,11 @@
-package viz
+package analysis
 
 import (
 	"cmp"
 	"encoding/csv"
 	"encoding/json"
 	"fmt"
+	"fovea/modelio"
 	"io"
 	"os"
 	"path/filepath"
@@ -87,7 +88,7 @@ func (r *ScanReport) WriteCSV(w io.Writer) error {
 	g := func(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
 	for _, row := range r.Rows() {
 		cw.Write([]string{row.Layer, row.Output, row.Conv, strconv.Itoa(row.Index), g(row.Fires), g(row.Max), g(row.Mean),
-			strings.Join(row.Flags, " ")})
+			joinFlags(row.Flags)})
 	}
 	cw.Flush()
 	if err := cw.Error(); err != nil {
@@ -140,7 +141,7 @@ func ProbeFiles(dir string) ([]string, error) {
 
 // Count returns the number of channels carrying flag (for example FlagDead,
 // for a gate that fails a training run with too many dead filters).
-func (r *ScanReport) Count(flag string) int {
+func (r *ScanReport) Count(flag modelio.Flag) int {
 	n := 0
 	for _, l := range r.Layers {
 		for _, c := range l.Channels {
@@ -150,4 +151,13 @@ func (r *ScanReport) Count(flag string) int {
 		}
 	}
 	return n
+}
+
+// joinFlags spells flags as the CSV column holds them: separated by spaces.
+func joinFlags(flags []modelio.Flag) string {
+	s := make([]string, len(flags))
+	for i, f := range flags {
+		s[i] = string(f)
+	}
+	return strings.Join(s, " ")
 }

@@ -1,6 +1,6 @@
 //go:build amd64 && !purego
 
-package viz
+package analysis
 
 import "golang.org/x/sys/cpu"
 

@@ -1,4 +1,4 @@
-package viz
+package analysis
 
 import (
 	"context"
@@ -8,111 +8,28 @@ import (
 
 	"github.com/disintegration/imaging"
 
+	"fovea/modelio/classes"
 	"fovea/modelio/infer"
 	"fovea/modelio/prep"
+	"fovea/viz"
 )
-
-// Occlusion fills: what replaces the pixels under the patch. The values are
-// chosen on the 0–1 pixel scale, before the model's own normalisation (range,
-// mean/std, channel order), so "grey" means the same picture whatever the
-// model expects.
-const (
-	// FillGrey is 0.5 in every channel: a mid-grey square, as in Zeiler &
-	// Fergus 2014 ("occluding ... with a grey square").
-	FillGrey = "grey"
-	// FillMean is the per-channel mean of the whole image (not of the patch),
-	// so the patch carries no edge and no texture but the image's own colour.
-	FillMean = "mean"
-	// FillBlur is the same region of a Gaussian-blurred copy of the image,
-	// sigma = Patch/4 pixels (imaging.Blur; edges extended): detail smaller
-	// than the patch is removed while colour and coarse shading stay.
-	FillBlur = "blur"
-	// FillZero is 0 on the 0–1 pixel scale, that is black, before
-	// normalisation (after it, the value is -Mean/Std, not necessarily 0).
-	FillZero = "zero"
-)
-
-// Occlusion scores: what is compared with and without the patch.
-const (
-	// ScoreProbability compares the target's softmax probability (or the
-	// model's own output when that already is a probability distribution).
-	ScoreProbability = "probability"
-	// ScoreLogit compares the model's raw output for the target. It is
-	// refused when the model's output is already a probability distribution.
-	ScoreLogit = "logit"
-)
-
-// OcclusionSettings are the knobs of an occlusion run. The zero Fill means
-// FillGrey and the zero Score means ScoreProbability; Patch and Stride have no
-// default and must be positive.
-type OcclusionSettings struct {
-	Patch, Stride int    // side of the square patch and step between positions, in input pixels
-	Fill          string // FillGrey, FillMean, FillBlur or FillZero
-	Score         string // ScoreProbability or ScoreLogit
-}
-
-// Occlusion is the result of one occlusion run for one target class.
-type Occlusion struct {
-	OcclusionSettings
-	Target int
-	Label  string // the target's label; Occlude leaves it empty (the session knows no labels), callers fill it from Model.Labels
-	// Base is the target's score (probability or logit, per Score) on the
-	// unoccluded image.
-	Base float64
-	// Probability is the target's probability on the unoccluded image,
-	// whatever Score is (for captions).
-	Probability float64
-	// Ys and Xs are the top-left corners of the patch positions in input
-	// pixels, increasing. The last one of each is clamped so that the patch
-	// ends at the image's border: every pixel is covered by some position.
-	Ys, Xs []int
-	// Scores[i][j] is Base minus the score with the patch at (Ys[i], Xs[j]):
-	// positive where hiding the region lowered the target's score, negative
-	// where it raised it.
-	Scores        [][]float64
-	Width, Height int // the image's size in pixels (the model's input size)
-}
-
-// Unit is the unit of the scores, for legends: "drop in probability" or
-// "drop in logit".
-func (o *Occlusion) Unit() string {
-	if o.Score == ScoreLogit {
-		return "drop in logit"
-	}
-	return "drop in probability"
-}
-
-// patchPositions returns the top-left corners of a patch of side patch moved
-// by stride over a side of n pixels: 0, stride, 2·stride, ... and, when the
-// last of those does not end at n, one more at n-patch. Example: n = 64,
-// patch = 12, stride = 8 gives 0, 8, ..., 48, 52.
-func patchPositions(n, patch, stride int) []int {
-	var p []int
-	for x := 0; x+patch <= n; x += stride {
-		p = append(p, x)
-	}
-	if last := p[len(p)-1]; last+patch < n {
-		p = append(p, n-patch)
-	}
-	return p
-}
 
 // check validates the settings for an image of w×h pixels and fills in the
 // defaults.
-func (set *OcclusionSettings) check(w, h int) error {
+func checkSettings(set *viz.OcclusionSettings, w, h int) error {
 	switch set.Fill {
 	case "":
-		set.Fill = FillGrey
-	case FillGrey, FillMean, FillBlur, FillZero:
+		set.Fill = viz.FillGrey
+	case viz.FillGrey, viz.FillMean, viz.FillBlur, viz.FillZero:
 	default:
-		return fmt.Errorf("viz: occlusion: unknown fill %q (want %s, %s, %s or %s)", set.Fill, FillGrey, FillMean, FillBlur, FillZero)
+		return fmt.Errorf("viz: occlusion: unknown fill %q (want %s, %s, %s or %s)", set.Fill, viz.FillGrey, viz.FillMean, viz.FillBlur, viz.FillZero)
 	}
 	switch set.Score {
 	case "":
-		set.Score = ScoreProbability
-	case ScoreProbability, ScoreLogit:
+		set.Score = viz.ScoreProbability
+	case viz.ScoreProbability, viz.ScoreLogit:
 	default:
-		return fmt.Errorf("viz: occlusion: unknown score %q (want %s or %s)", set.Score, ScoreProbability, ScoreLogit)
+		return fmt.Errorf("viz: occlusion: unknown score %q (want %s or %s)", set.Score, viz.ScoreProbability, viz.ScoreLogit)
 	}
 	if set.Patch <= 0 {
 		return fmt.Errorf("viz: occlusion: patch size %d: must be at least 1 pixel", set.Patch)
@@ -128,15 +45,15 @@ func (set *OcclusionSettings) check(w, h int) error {
 
 // fillPlanes returns the [3][H][W] planes (0..1) whose values replace the
 // pixels under the patch.
-func fillPlanes(img *image.NRGBA, planes []float32, set OcclusionSettings) []float32 {
+func fillPlanes(img *image.NRGBA, planes []float32, set viz.OcclusionSettings) []float32 {
 	out := make([]float32, len(planes))
 	n := len(planes) / 3
 	switch set.Fill {
-	case FillGrey:
+	case viz.FillGrey:
 		for i := range out {
 			out[i] = 0.5
 		}
-	case FillMean:
+	case viz.FillMean:
 		for c := 0; c < 3; c++ {
 			var sum float64
 			for _, v := range planes[c*n : (c+1)*n] {
@@ -147,9 +64,9 @@ func fillPlanes(img *image.NRGBA, planes []float32, set OcclusionSettings) []flo
 				out[i] = m
 			}
 		}
-	case FillBlur:
+	case viz.FillBlur:
 		out = prep.Planes(imaging.Blur(img, float64(set.Patch)/4))
-	case FillZero:
+	case viz.FillZero:
 		// already zero
 	}
 	return out
@@ -199,8 +116,8 @@ func (lc layoutCopier) copy(dst, src []float32, y0, x0 int) {
 //
 // The result is evidence about one model on one image, not proof of what the
 // model "looks at" in general.
-func Occlude(ctx context.Context, s *infer.Session, c prep.Config, img *image.NRGBA, set OcclusionSettings,
-	targets []int, progress func(done, total int)) ([]*Occlusion, error) {
+func Occlude(ctx context.Context, s *infer.Session, c prep.Config, img *image.NRGBA, set viz.OcclusionSettings,
+	targets []int, progress func(done, total int)) ([]*viz.Occlusion, error) {
 	if img == nil {
 		return nil, fmt.Errorf("viz: occlusion: no image")
 	}
@@ -211,7 +128,7 @@ func Occlude(ctx context.Context, s *infer.Session, c prep.Config, img *image.NR
 	if w != c.Width || h != c.Height {
 		return nil, fmt.Errorf("viz: occlusion: image is %d×%d but the model's input is %d×%d (fit it with prep.Fit first)", w, h, c.Width, c.Height)
 	}
-	if err := set.check(w, h); err != nil {
+	if err := checkSettings(&set, w, h); err != nil {
 		return nil, err
 	}
 	if len(targets) == 0 {
@@ -228,8 +145,8 @@ func Occlude(ctx context.Context, s *infer.Session, c prep.Config, img *image.NR
 	fill := make([]float32, size)
 	c.Tensor(fillPlanes(img, planes, set), fill)
 
-	ys := patchPositions(h, set.Patch, set.Stride)
-	xs := patchPositions(w, set.Patch, set.Stride)
+	ys := viz.PatchPositions(h, set.Patch, set.Stride)
+	xs := viz.PatchPositions(w, set.Patch, set.Stride)
 	total := len(ys)*len(xs) + 1
 	report := func(done int) {
 		if progress != nil {
@@ -254,9 +171,9 @@ func Occlude(ctx context.Context, s *infer.Session, c prep.Config, img *image.NR
 	k := len(rows[0])
 	// Whether the output is already a distribution is decided once, on the
 	// unoccluded image, so every position is scored the same way.
-	_, already := infer.Probabilities(rows[0])
-	if set.Score == ScoreLogit && already {
-		return nil, fmt.Errorf("viz: occlusion: the model's output is already a probability distribution, so it has no logits to score; use score %q", ScoreProbability)
+	_, already := classes.Probabilities(rows[0])
+	if set.Score == viz.ScoreLogit && already {
+		return nil, fmt.Errorf("viz: occlusion: the model's output is already a probability distribution, so it has no logits to score; use score %q", viz.ScoreProbability)
 	}
 	toProb := func(row []float32) []float64 {
 		if already {
@@ -269,7 +186,7 @@ func Occlude(ctx context.Context, s *infer.Session, c prep.Config, img *image.NR
 		return softmax(row)
 	}
 	probs := toProb(rows[0])
-	out := make([]*Occlusion, len(targets))
+	out := make([]*viz.Occlusion, len(targets))
 	for i, t := range targets {
 		if t == -1 {
 			t = argmax(rows[0])
@@ -277,10 +194,10 @@ func Occlude(ctx context.Context, s *infer.Session, c prep.Config, img *image.NR
 		if t < 0 || t >= k {
 			return nil, fmt.Errorf("viz: occlusion: target class %d out of range: the model has %d classes (0..%d)", targets[i], k, k-1)
 		}
-		o := &Occlusion{OcclusionSettings: set, Target: t, Probability: probs[t],
+		o := &viz.Occlusion{OcclusionSettings: set, Target: t, Probability: probs[t],
 			Ys: ys, Xs: xs, Width: w, Height: h, Scores: make([][]float64, len(ys))}
 		o.Base = o.Probability
-		if set.Score == ScoreLogit {
+		if set.Score == viz.ScoreLogit {
 			o.Base = float64(rows[0][t])
 		}
 		for r := range o.Scores {
@@ -337,7 +254,7 @@ func Occlude(ctx context.Context, s *infer.Session, c prep.Config, img *image.NR
 			}
 			p := start + i
 			var pr []float64
-			if set.Score == ScoreProbability {
+			if set.Score == viz.ScoreProbability {
 				pr = toProb(row)
 			}
 			for _, o := range out {
