@@ -947,6 +947,8 @@ func TestCLIExitStatus(t *testing.T) {
 		{[]string{"occlude", "--help"}, 0, nil},
 		{[]string{"help", "scan"}, 0, nil},
 		{[]string{"fetch-runtime", "--help"}, 0, nil},
+		{[]string{"fetch-runtime", "--into"}, 2, []string{"--into"}},
+		{[]string{"fetch-runtime", "somewhere"}, 2, []string{"somewhere"}},
 		// bad usage
 		{[]string{"frobnicate"}, 2, []string{"frobnicate"}},
 		{[]string{"layers", "--frobnicate"}, 2, []string{"--frobnicate"}},
@@ -980,6 +982,10 @@ func TestCLIExitStatus(t *testing.T) {
 		// the library: exit 2, naming the file and the fetch command (issue 2)
 		{[]string{"layers", "--ort-lib", "/nonexistent"}, 2, []string{"/nonexistent", "fovea fetch-runtime"}},
 		{[]string{"--ort-lib", "/nonexistent"}, 2, []string{"/nonexistent", "fovea fetch-runtime"}},
+		// the window takes one model file after its flags (the desktop entry passes it so)
+		{[]string{"a.onnx", "b.onnx"}, 2, []string{"b.onnx"}},
+		{[]string{"--model", "a.onnx", "b.onnx"}, 2, []string{"b.onnx"}},
+		{[]string{"--theme", "dark", "frobnicate"}, 2, []string{"frobnicate"}},
 	} {
 		stdout, stderr, code := runCLI(t, c.args...)
 		if code != c.code {

@@ -64,8 +64,21 @@ func (c *cli) run(args []string) int {
 	if cmd := findCommand(name); cmd != nil {
 		return cmd.run(c, rest)
 	}
+	if looksLikeModel(name) {
+		return c.window(args)
+	}
 	fmt.Fprintf(c.stderr, "fovea: unknown command %q; `fovea help` lists the commands\n", name)
 	return exitUsage
+}
+
+// looksLikeModel tells a model file given without --model from a mistyped
+// command: a name ending in .onnx, or any existing regular file.
+func looksLikeModel(arg string) bool {
+	if strings.HasSuffix(strings.ToLower(arg), ".onnx") {
+		return true
+	}
+	st, err := os.Stat(arg)
+	return err == nil && st.Mode().IsRegular()
 }
 
 func isHelp(a string) bool {
@@ -94,8 +107,14 @@ func (c *cli) window(args []string) int {
 		fmt.Fprintf(c.stderr, "fovea: %v; `fovea help` lists the commands and the window's options\n", flagError(err))
 		return exitUsage
 	}
-	if fs.NArg() > 0 {
-		fmt.Fprintf(c.stderr, "fovea: unexpected %q; `fovea help` lists the commands and the window's options\n", fs.Arg(0))
+	// One model file may follow the flags: the desktop entry's Exec line
+	// passes the file a file manager opens with Fovea that way.
+	extra := fs.Args()
+	if len(extra) > 0 && o.Model == "" && looksLikeModel(extra[0]) {
+		o.Model, extra = extra[0], extra[1:]
+	}
+	if len(extra) > 0 {
+		fmt.Fprintf(c.stderr, "fovea: unexpected %q; `fovea help` lists the commands and the window's options\n", extra[0])
 		return exitUsage
 	}
 	if err := core.Start(*ortLib); err != nil {
@@ -123,7 +142,7 @@ func (c *cli) help(args []string) int {
 	fmt.Fprintf(w, `Fovea shows what a trained ONNX image classifier responds to.
 
 Usage:
-  fovea [--model FILE] [--image FILE] [--expect CLASS] [--probe DIR] [--view VIEW] [--theme light|dark] [--ort-lib FILE]
+  fovea [--model FILE] [--image FILE] [--expect CLASS] [--probe DIR] [--view VIEW] [--theme light|dark] [--ort-lib FILE] [MODEL.onnx]
         opens the window (needs a display)
   fovea COMMAND [flags]
         does one job without a display and exits

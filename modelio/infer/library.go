@@ -6,13 +6,16 @@ import (
 	"compress/gzip"
 	"context"
 	"crypto/sha256"
+	_ "embed"
 	"encoding/hex"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
 	"os"
 	"os/exec"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 	"sync"
@@ -75,10 +78,47 @@ func CachePath() (string, error) {
 // systemDirs are the library folders searched last, after LD_LIBRARY_PATH.
 var systemDirs = []string{"/usr/local/lib", "/usr/lib/x86_64-linux-gnu", "/usr/lib64", "/usr/lib"}
 
+// BundleDir is where an installed or packaged Fovea keeps its own copy of the
+// library, relative to the folder that holds the fovea binary: `make install`
+// puts the binary in PREFIX/bin and the library in PREFIX/lib/fovea, and the
+// packaged tarball has the same layout under usr/local.
+const BundleDir = "../lib/fovea"
+
+// executable is os.Executable; the lookup beside the binary uses it.
+var executable = os.Executable
+
+// besideBinary returns the folders searched for a library that came with the
+// running binary: BundleDir and the binary's own folder, first for the binary
+// with symbolic links resolved (a link on the PATH to an unpacked tarball
+// finds the tarball's library), then for the path it was started by.
+func besideBinary() []string {
+	exe, err := executable()
+	if err != nil || exe == "" {
+		return nil
+	}
+	var dirs []string
+	add := func(bin string) {
+		d := filepath.Dir(bin)
+		for _, c := range []string{filepath.Clean(filepath.Join(d, BundleDir)), d} {
+			if !slices.Contains(dirs, c) {
+				dirs = append(dirs, c)
+			}
+		}
+	}
+	if real, err := filepath.EvalSymlinks(exe); err == nil {
+		add(real)
+	}
+	add(exe)
+	return dirs
+}
+
 // FindLibrary returns the library to load, searching in order: the flag value
-// (when not empty), $FOVEA_ORT_LIB, the cache folder, LD_LIBRARY_PATH and the
-// system library folders. A path given explicitly (flag or environment) that
-// does not exist is an error: falling back silently would hide a typo.
+// (when not empty), $FOVEA_ORT_LIB, the library that came with the binary
+// (BundleDir and the binary's own folder), the cache folder, LD_LIBRARY_PATH
+// and the system library folders. A path given explicitly (flag or
+// environment) that does not exist is an error: falling back silently would
+// hide a typo. The bundled copy comes before the cache because it is the
+// release the binary was installed or packaged with.
 func FindLibrary(flag string) (string, error) {
 	if flag != "" {
 		return explicit(flag, "--ort-lib")
@@ -87,6 +127,13 @@ func FindLibrary(flag string) (string, error) {
 		return explicit(env, "$"+EnvLibrary)
 	}
 	var tried []string
+	for _, d := range besideBinary() {
+		p := filepath.Join(d, libFile)
+		if isFile(p) {
+			return p, nil
+		}
+		tried = append(tried, d)
+	}
 	if p, err := CachePath(); err == nil {
 		if isFile(p) {
 			return p, nil
@@ -204,17 +251,40 @@ func Version() string {
 	return ort.GetVersion()
 }
 
-// Fetch puts the ONNX Runtime library into the cache folder and returns its
-// path. When a file with the expected checksum is already there it downloads
-// nothing. It runs `npm pack` (the npm registry's ordinary client; no install
-// scripts run) in a temporary folder, takes the one library file from the
-// tarball, checks its SHA-256 and moves it into place atomically.
+// runtimeLicense is ONNX Runtime's LICENSE file (the MIT License, as in the
+// root of the ONNX Runtime source repository). The npm tarball carries no
+// licence file, only the field "license": "MIT" in its package.json, which
+// Fetch checks; Fetch writes this text beside the library so that every copy
+// of the library (the cache, `make install`, the packaged tarball) has its
+// licence next to it.
+//
+//go:embed onnxruntime-LICENSE.txt
+var runtimeLicense []byte
+
+const (
+	// LicenseFile is the name of the licence beside the library.
+	LicenseFile = "LICENSE"
+	// packageJSONEntry holds the npm package's declared licence.
+	packageJSONEntry = "package/package.json"
+	wantLicense      = "MIT"
+)
+
+// Fetch puts the ONNX Runtime library and its licence into the cache folder
+// and returns the library's path. When a file with the expected checksum is
+// already there it downloads nothing (a missing licence is written from the
+// copy built into Fovea). It runs `npm pack` (the npm registry's ordinary
+// client; no install scripts run) in a temporary folder, takes the library
+// file from the tarball, checks its SHA-256 and the package's declared
+// licence, and moves both into place atomically.
 func Fetch(ctx context.Context, log io.Writer) (string, error) {
 	dst, err := CachePath()
 	if err != nil {
 		return "", err
 	}
 	if sum, err := fileSHA256(dst); err == nil && sum == libSHA256 {
+		if err := writeLicense(filepath.Dir(dst)); err != nil {
+			return "", err
+		}
 		fmt.Fprintf(log, "ONNX Runtime %s already in %s\n", RuntimeVersion, dst)
 		return dst, nil
 	}
@@ -240,6 +310,9 @@ func Fetch(ctx context.Context, log io.Writer) (string, error) {
 	if !isFile(tgz) {
 		tgz = filepath.Join(tmp, "onnxruntime-node-"+RuntimeVersion+".tgz")
 	}
+	if err := checkDeclaredLicense(tgz); err != nil {
+		return "", err
+	}
 	if err := os.MkdirAll(filepath.Dir(dst), 0o755); err != nil {
 		return "", fmt.Errorf("infer: %w", err)
 	}
@@ -258,8 +331,110 @@ func Fetch(ctx context.Context, log io.Writer) (string, error) {
 	if err := os.Rename(part, dst); err != nil {
 		return "", fmt.Errorf("infer: %w", err)
 	}
-	fmt.Fprintf(log, "ONNX Runtime %s saved to %s\n", RuntimeVersion, dst)
+	if err := writeLicense(filepath.Dir(dst)); err != nil {
+		return "", err
+	}
+	fmt.Fprintf(log, "ONNX Runtime %s saved to %s (licence: %s)\n", RuntimeVersion, dst, LicenseFile)
 	return dst, nil
+}
+
+// Install puts a copy of the library and its licence into dir (created if
+// missing), fetching them into the cache first when needed, so that a binary
+// in dir or in dir's BundleDir counterpart finds them without the cache.
+// `make install` and `make package` use it through `fovea fetch-runtime
+// --into DIR`. Each file is replaced atomically; it returns the library's path.
+func Install(ctx context.Context, dir string, log io.Writer) (string, error) {
+	src, err := Fetch(ctx, log)
+	if err != nil {
+		return "", err
+	}
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return "", fmt.Errorf("infer: %w", err)
+	}
+	lib := filepath.Join(dir, libFile)
+	if err := copyAtomic(src, lib, 0o755); err != nil {
+		return "", err
+	}
+	if sum, err := fileSHA256(lib); err != nil || sum != libSHA256 {
+		return "", fmt.Errorf("infer: the copy %s does not match the fetched library (SHA-256 %s, %v)", lib, sum, err)
+	}
+	if err := writeLicense(dir); err != nil {
+		return "", err
+	}
+	fmt.Fprintf(log, "ONNX Runtime %s and its %s copied to %s\n", RuntimeVersion, LicenseFile, dir)
+	return lib, nil
+}
+
+// checkDeclaredLicense reads the npm package's package.json and refuses a
+// package whose declared licence is not the one whose text Fovea ships.
+func checkDeclaredLicense(tgz string) error {
+	var meta struct {
+		License string `json:"license"`
+	}
+	err := walkEntry(tgz, packageJSONEntry, func(r io.Reader) error {
+		return json.NewDecoder(io.LimitReader(r, 1<<20)).Decode(&meta)
+	})
+	if err != nil {
+		return err
+	}
+	if meta.License != wantLicense {
+		return fmt.Errorf("infer: %s declares the licence %q, not %q whose text Fovea ships; refusing to use it", npmPackage, meta.License, wantLicense)
+	}
+	return nil
+}
+
+// writeLicense writes the built-in licence text into dir unless the same
+// text is already there.
+func writeLicense(dir string) error {
+	p := filepath.Join(dir, LicenseFile)
+	if old, err := os.ReadFile(p); err == nil && bytes.Equal(old, runtimeLicense) {
+		return nil
+	}
+	return writeAtomic(p, 0o644, func(w io.Writer) error {
+		_, err := w.Write(runtimeLicense)
+		return err
+	})
+}
+
+// copyAtomic copies the file src to dst through a temporary file in dst's
+// folder, so that dst is either the old file or the complete copy.
+func copyAtomic(src, dst string, perm os.FileMode) error {
+	in, err := os.Open(src)
+	if err != nil {
+		return fmt.Errorf("infer: %w", err)
+	}
+	defer in.Close()
+	return writeAtomic(dst, perm, func(w io.Writer) error {
+		_, err := io.Copy(w, in)
+		return err
+	})
+}
+
+// writeAtomic fills a temporary file in path's folder with write, syncs it
+// and renames it over path; on any error path is untouched and the temporary
+// file removed.
+func writeAtomic(path string, perm os.FileMode, write func(io.Writer) error) error {
+	f, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+".tmp-*")
+	if err != nil {
+		return fmt.Errorf("infer: %w", err)
+	}
+	tmp := f.Name()
+	werr := write(f)
+	serr := f.Sync()
+	cerr := f.Close()
+	if err := errors.Join(werr, serr, cerr); err != nil {
+		os.Remove(tmp)
+		return fmt.Errorf("infer: writing %s: %w", path, err)
+	}
+	if err := os.Chmod(tmp, perm); err != nil {
+		os.Remove(tmp)
+		return fmt.Errorf("infer: %w", err)
+	}
+	if err := os.Rename(tmp, path); err != nil {
+		os.Remove(tmp)
+		return fmt.Errorf("infer: %w", err)
+	}
+	return nil
 }
 
 func lastLine(s string) string {
@@ -267,47 +442,56 @@ func lastLine(s string) string {
 	return lines[len(lines)-1]
 }
 
-// extractEntry copies one regular file out of a .tgz into a temporary file in
-// dir and returns that file's path.
-func extractEntry(tgz, entry, dir string) (string, error) {
+// walkEntry finds the regular file entry in the .tgz and hands its content
+// to read.
+func walkEntry(tgz, entry string, read func(io.Reader) error) error {
 	f, err := os.Open(tgz)
 	if err != nil {
-		return "", fmt.Errorf("infer: %w", err)
+		return fmt.Errorf("infer: %w", err)
 	}
 	defer f.Close()
 	zr, err := gzip.NewReader(f)
 	if err != nil {
-		return "", fmt.Errorf("infer: %s: %w", tgz, err)
+		return fmt.Errorf("infer: %s: %w", tgz, err)
 	}
 	tr := tar.NewReader(zr)
 	for {
 		h, err := tr.Next()
 		if err == io.EOF {
-			return "", fmt.Errorf("infer: %s has no %s", filepath.Base(tgz), entry)
+			return fmt.Errorf("infer: %s has no %s", filepath.Base(tgz), entry)
 		}
 		if err != nil {
-			return "", fmt.Errorf("infer: %s: %w", tgz, err)
+			return fmt.Errorf("infer: %s: %w", tgz, err)
 		}
-		if h.Name != entry || h.Typeflag != tar.TypeReg {
-			continue
+		if h.Name == entry && h.Typeflag == tar.TypeReg {
+			if err := read(tr); err != nil {
+				return fmt.Errorf("infer: %s in %s: %w", entry, filepath.Base(tgz), err)
+			}
+			return nil
 		}
+	}
+}
+
+// extractEntry copies one regular file out of a .tgz into a temporary file in
+// dir and returns that file's path.
+func extractEntry(tgz, entry, dir string) (string, error) {
+	var name string
+	err := walkEntry(tgz, entry, func(r io.Reader) error {
 		out, err := os.CreateTemp(dir, ".fetch-*")
 		if err != nil {
-			return "", fmt.Errorf("infer: %w", err)
+			return err
 		}
-		_, cerr := io.Copy(out, io.LimitReader(tr, 1<<30))
+		_, cerr := io.Copy(out, io.LimitReader(r, 1<<30))
 		serr := out.Sync()
 		xerr := out.Close()
-		if err := errors.Join(cerr, serr, xerr); err != nil {
+		if err := errors.Join(cerr, serr, xerr, os.Chmod(out.Name(), 0o755)); err != nil {
 			os.Remove(out.Name())
-			return "", fmt.Errorf("infer: writing %s: %w", out.Name(), err)
+			return fmt.Errorf("writing %s: %w", out.Name(), err)
 		}
-		if err := os.Chmod(out.Name(), 0o755); err != nil {
-			os.Remove(out.Name())
-			return "", fmt.Errorf("infer: %w", err)
-		}
-		return out.Name(), nil
-	}
+		name = out.Name()
+		return nil
+	})
+	return name, err
 }
 
 func fileSHA256(p string) (string, error) {
