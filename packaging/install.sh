@@ -79,7 +79,7 @@ uninstall)
   for f in "${FILES[@]}"; do
     d=$(dirname -- "$prefix/$f")
     while [ "$d" != "$prefix" ] && [ "${d#"$prefix"/}" != "$d" ]; do
-      rmdir -- "$d" 2>/dev/null || break
+      if [ -d "$d" ]; then rmdir -- "$d" 2>/dev/null || break; fi
       d=$(dirname -- "$d")
     done
   done
