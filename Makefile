@@ -21,7 +21,7 @@ export CGO_ENABLED := 1
 RUN_DEBS  := gcc:gcc libc6-dev pkg-config:pkg-config libgl1-mesa-dev xorg-dev npm:npm ca-certificates
 TEST_DEBS := $(RUN_DEBS) libonnx-testdata desktop-file-validate:desktop-file-utils xz:xz-utils
 # check-export: Debian's PyTorch and onnx for /usr/bin/python3 (about 1 GB).
-EXPORT_DEBS := python3-torch python3-onnx python3-numpy
+EXPORT_DEBS := python3-torch python3-onnx python3-numpy python3-pil
 # Go release named in go.mod; an older or missing go gets it from the Go module proxy.
 GO_WANT   := $(shell sed -n 's/^go \([0-9.]*\)$$/\1/p' go.mod)
 GOCACHE_TOOLS := $(HOME)/.cache/fovea/go-$(GO_WANT)

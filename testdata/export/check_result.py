@@ -36,8 +36,10 @@ dims = [d.dim_param or d.dim_value for d in inp.type.tensor_type.shape.dim]
 check(dims == ["batch", 3, 64, 64], "ONNX input %s is batch x 3 x 64 x 64 with a symbolic batch axis: %s" % (inp.name, dims))
 check(m.opset_import[0].version == 13, "ONNX opset %d (the recipe asks for 13)" % m.opset_import[0].version)
 ops = [n.op_type for n in m.graph.node]
-# In training mode torch.onnx.export keeps Dropout as a node; in eval mode it drops it.
-check("Dropout" not in ops, "no Dropout node, so the export ran in eval mode: %s" % sorted(set(ops)))
+# Exported for inference, Dropout is no node at all and BatchNormalization is
+# folded into the Conv before it (torch.onnx.export, TrainingMode.EVAL).
+check("Dropout" not in ops and "BatchNormalization" not in ops,
+      "no Dropout or BatchNormalization node, so the export was for inference: %s" % sorted(set(ops)))
 
 layers = json.load(open(layers_path))
 check(layers["inputs"][0]["shape"] == [-1, 3, 64, 64] and layers["inputs"][0]["symbolic"][0] == "batch",
