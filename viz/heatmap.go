@@ -173,8 +173,12 @@ func (o *Occlusion) SaturationNote() string {
 	if o.Logits == "" {
 		how = fmt.Sprintf("score %s shows what the patches change (the model has no logits: %s)", ScoreLogProb, o.NoLogits)
 	}
-	return fmt.Sprintf("Saturated: the model gives this class probability %s, so hiding a patch moves it by at most %s; %s.",
-		formatProbability(o.Probability), fmtG(m), how)
+	name := fmt.Sprintf("class %d", o.Target)
+	if o.Label != "" {
+		name = fmt.Sprintf("%s (%d)", o.Label, o.Target)
+	}
+	return fmt.Sprintf("Saturated: the model gives %s probability %s, so hiding a patch moves it by at most %s; %s.",
+		name, formatProbability(o.Probability), fmtG(m), how)
 }
 
 // PatchPositions returns the top-left corners of a patch of side patch moved
