@@ -54,7 +54,11 @@ The map is evidence about this model on this image, not proof of what it looks a
 					}
 					fmt.Fprintf(j.stdout, "%s (class %d): probability %.2f%%, largest drop %.4g (%s)\n",
 						label, oc.Target, 100*oc.Probability, largest(oc.Scores), oc.Unit())
+					if note := oc.SaturationNote(); note != "" {
+						fmt.Fprintf(j.stdout, "  note: %s\n", note)
+					}
 				}
+				fmt.Fprintf(j.stdout, "scored: %s\n", res.occ[0].SourceNote)
 				fmt.Fprintf(j.stdout, "wrote %s\n", *out)
 			}
 			return exitOK
@@ -75,8 +79,8 @@ func (o *occlusionFlags) declare(fs *flag.FlagSet) {
 	fs.StringVar(&o.versus, "versus", "", "a second `CLASS` to compare with, e.g. the one the image should have been")
 	fs.IntVar(&o.patch, "patch", 0, "side of the hidden square in input `PIXELS` (default: a sixth of the shorter side)")
 	fs.IntVar(&o.stride, "stride", 0, "step between patch positions in `PIXELS` (default: half the patch)")
-	fs.StringVar(&o.fill, "fill", viz.FillGrey, "`FILL` of the hidden patch: grey (0.5 on the 0-1 pixel scale, before normalisation), mean, blur or zero")
-	fs.StringVar(&o.score, "score", viz.ScoreProbability, "`SCORE` compared with and without the patch: probability or logit")
+	fs.StringVar(&o.fill, "fill", string(viz.FillGrey), "`FILL` of the hidden patch: grey (0.5 on the 0-1 pixel scale, before normalisation), mean, blur or zero")
+	fs.StringVar(&o.score, "score", string(viz.ScoreProbability), "`SCORE` compared with and without the patch: probability, logit (the logits, also those before a final Softmax) or logprob (log-probability)")
 }
 
 // occlusionResult is what occlude and report share.
@@ -103,7 +107,7 @@ func (o *occlusionFlags) run(j *job) (*occlusionResult, int) {
 	if o.stride != 0 {
 		set.Stride = o.stride
 	}
-	set.Fill, set.Score = o.fill, o.score
+	set.Fill, set.Score = viz.Fill(o.fill), viz.Score(o.score)
 	if err := core.CheckOcclusion(set, cfg.Width, cfg.Height); err != nil {
 		return nil, j.fail(err)
 	}
@@ -154,10 +158,18 @@ type occlusionTarget struct {
 	Target predictionDoc `json:"target"`
 	Patch  int           `json:"patch"`
 	Stride int           `json:"stride"`
-	Fill   string        `json:"fill"`
-	Score  string        `json:"score"`
+	Fill   viz.Fill      `json:"fill"`
+	Score  viz.Score     `json:"score"`
+	// ScoreSource is the tensor the score was read from (the model's
+	// output, or the logits before its final Softmax); ScoreSourceNote
+	// says how, in words.
+	ScoreSource     string `json:"score_source"`
+	ScoreSourceNote string `json:"score_source_note"`
 	// Base is the target's score (per Score) on the unoccluded image.
 	Base float64 `json:"base"`
+	// Saturated is the warning that the probability barely moves because
+	// the model is sure, with the score to use instead ("" when not).
+	Saturated string `json:"saturated,omitempty"`
 	// Unit says what scores[i][j] is: the drop of the score with the patch
 	// at (ys[i], xs[j]); negative where hiding raised it.
 	Unit   string      `json:"unit"`
@@ -173,6 +185,7 @@ func occlusionJSON(j *job, r *occlusionResult) occlusionDoc {
 		return occlusionTarget{
 			Target: predictionDoc{o.Target, o.Label, o.Probability},
 			Patch:  o.Patch, Stride: o.Stride, Fill: o.Fill, Score: o.Score, Base: o.Base, Unit: o.Unit(),
+			ScoreSource: o.Source, ScoreSourceNote: o.SourceNote, Saturated: o.SaturationNote(),
 			Width: o.Width, Height: o.Height, Ys: o.Ys, Xs: o.Xs, Scores: o.Scores,
 		}
 	}

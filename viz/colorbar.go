@@ -5,6 +5,8 @@ import (
 	"image"
 	"image/color"
 	"math"
+	"strconv"
+	"strings"
 )
 
 // ColorBar draws a legend for a colour map: a bar running from min to max
@@ -154,16 +156,33 @@ type barMark struct {
 	label string
 }
 
-// barTicks returns the marks of a bar from min to max: the two ends,
-// labelled with 3 significant digits (the scale is the most important
-// number of a legend), and between them round values ({1, 2, 5}·10^k steps,
-// about target of them) labelled with the decimals the step needs. Inner
-// values closer than a fifth of a step to an end are dropped.
+// barTicks returns the marks of a bar from min to max: the two ends and,
+// between them, round values ({1, 2, 5}·10^k steps, about target of them).
+// Inner values closer than a fifth of a step to an end are dropped. Every
+// label of one bar has one number format, so that they read as one scale:
+// fixed-point when the bar's magnitude max(|min|, |max|) lies in [1e-3,
+// 1e5), with decimals enough for the step and for 3 significant digits of
+// the magnitude (the ends are the scale, the most important numbers of a
+// legend); otherwise scientific ("-5.23e-6", "2e-6"), 3 significant digits
+// at the ends.
 func barTicks(min, max float64, target int) []barMark {
 	at := func(v float64) float64 { return (v - min) / (max - min) }
-	marks := []barMark{{min, 0, fmtG(min)}}
 	step := niceStep(max-min, target)
-	dec := stepDecimals(step)
+	mag := math.Max(math.Abs(min), math.Abs(max))
+	var end, inner func(float64) string
+	if mag >= 1e5 || mag < 1e-3 {
+		end = func(v float64) string { return sciLabel(v, 2) }
+		inner = func(v float64) string { return sciLabel(v, 1) }
+	} else {
+		dec := stepDecimals(step)
+		endDec := dec
+		if d := 2 - int(math.Floor(math.Log10(mag))); d > endDec {
+			endDec = d
+		}
+		end = func(v float64) string { return formatFixed(v, endDec) }
+		inner = func(v float64) string { return formatFixed(v, dec) }
+	}
+	marks := []barMark{{min, 0, end(min)}}
 	first := math.Ceil(min/step - 1e-9)
 	for i := 0.0; ; i++ {
 		v := (first + i) * step
@@ -173,9 +192,35 @@ func barTicks(min, max float64, target int) []barMark {
 		if v-min < step/5 || max-v < step/5 {
 			continue
 		}
-		marks = append(marks, barMark{v, at(v), formatFixed(v, dec)})
+		if math.Abs(v) < step*1e-9 {
+			v = 0
+		}
+		marks = append(marks, barMark{v, at(v), inner(v)})
 	}
-	return append(marks, barMark{max, 1, fmtG(max)})
+	return append(marks, barMark{max, 1, end(max)})
+}
+
+// sciLabel formats v in short scientific notation with at most decimals
+// digits after the mantissa's point, trailing zeros dropped: "5.23e-6",
+// "2e-6", "1.5e6"; 0 is "0".
+func sciLabel(v float64, decimals int) string {
+	if v == 0 {
+		return "0"
+	}
+	s := strconv.FormatFloat(v, 'e', decimals, 64)
+	mant, exp, _ := strings.Cut(s, "e")
+	if strings.Contains(mant, ".") {
+		mant = strings.TrimRight(strings.TrimRight(mant, "0"), ".")
+	}
+	sign := ""
+	if exp[0] == '-' {
+		sign = "-"
+	}
+	exp = strings.TrimLeft(exp[1:], "0")
+	if exp == "" {
+		exp = "0"
+	}
+	return mant + "e" + sign + exp
 }
 
 func clampInt(v, lo, hi int) int {

@@ -3,6 +3,8 @@ package viz
 import (
 	"image/color"
 	"math"
+	"regexp"
+	"strconv"
 	"strings"
 	"testing"
 )
@@ -161,4 +163,71 @@ func TestTextMetrics(t *testing.T) {
 	if got := fitText("abcdefghij", 49, TextStyle{}); got != "abcd..." {
 		t.Errorf("fit %q, want abcd...", got)
 	}
+}
+
+// TestBarTicksOneFormat: every label of one bar is written in one number
+// format, fixed-point or scientific, never a mix (a bar from −5.2e-6 to
+// 5.2e-6 once read "−0.000002" beside "5.2e-6"), and each label reads back
+// as its value to within its last shown digit (common practice for axis
+// labels; no published source).
+func TestBarTicksOneFormat(t *testing.T) {
+	fixed := regexp.MustCompile(`^-?[0-9]+(\.[0-9]+)?$`)
+	sci := regexp.MustCompile(`^(0|-?[0-9](\.[0-9]+)?e-?[0-9]+)$`)
+	for _, r := range [][2]float64{
+		{-5.2e-6, 5.2e-6}, {-0.00031, 0.00031}, {0, 2.7e-7}, // tiny
+		{-0.37, 0.37}, {0, 1}, {-1.234, 5.678}, {0.0123, 5.67}, {-12.5, 12.5}, // medium
+		{-3.4e6, 3.4e6}, {0, 1.25e9}, {99999, 250000}, // large
+	} {
+		marks := barTicks(r[0], r[1], 6)
+		if len(marks) < 3 {
+			t.Errorf("%v: only %d marks", r, len(marks))
+		}
+		var nFixed, nSci int
+		for _, m := range marks {
+			isF, isS := fixed.MatchString(m.label), sci.MatchString(m.label) && m.label != "0"
+			switch {
+			case m.label == "0": // both formats write zero so
+			case isS:
+				nSci++
+			case isF:
+				nFixed++
+			default:
+				t.Errorf("%v: label %q is neither format", r, m.label)
+			}
+			v, err := strconv.ParseFloat(m.label, 64)
+			if err != nil {
+				t.Errorf("%v: label %q does not parse", r, m.label)
+				continue
+			}
+			// The last shown digit's place: 10^-decimals of the mantissa.
+			tol := 0.5 * lastDigit(m.label)
+			if math.Abs(v-m.v) > tol*(1+1e-9) {
+				t.Errorf("%v: label %q for %g (off by more than %g)", r, m.label, m.v, tol)
+			}
+		}
+		if nFixed > 0 && nSci > 0 {
+			var labels []string
+			for _, m := range marks {
+				labels = append(labels, m.label)
+			}
+			t.Errorf("%v: labels mix fixed and scientific: %q", r, labels)
+		}
+		// The bar draws with them (sizes as the occlusion picture's).
+		ColorBar(480, 56, r[0], r[1], "drop", Diverging)
+	}
+}
+
+// lastDigit is the value of one unit in the last shown digit of a label.
+func lastDigit(label string) float64 {
+	mant, exp, isSci := strings.Cut(label, "e")
+	d := 0
+	if _, frac, ok := strings.Cut(mant, "."); ok {
+		d = len(frac)
+	}
+	unit := math.Pow(10, -float64(d))
+	if isSci {
+		e, _ := strconv.Atoi(exp)
+		unit *= math.Pow(10, float64(e))
+	}
+	return unit
 }

@@ -127,7 +127,16 @@ func renderOcclusion(base image.Image, occ []*Occlusion, o HeatOptions) (*image.
 	width = max(width, 2*heatMargin+heatMinBar)
 	inner := width - 2*heatMargin
 	r0 := occ[0]
-	notes := wrapText(fmt.Sprintf("Patch %d px, stride %d px, %s fill. %s", r0.Patch, r0.Stride, r0.Fill, Caution), inner, heatNoteStyle)
+	text := fmt.Sprintf("Patch %d px, stride %d px, %s fill. %s", r0.Patch, r0.Stride, r0.Fill, Caution)
+	for _, r := range occ {
+		// Beside the heatmap it concerns: a saturated probability says
+		// little, and the note says what to score instead.
+		if note := r.SaturationNote(); note != "" {
+			text = note + " " + text
+			break
+		}
+	}
+	notes := wrapText(text, inner, heatNoteStyle)
 	height := heatMargin + ph + captionH + heatGap + heatBarH + 8 + len(notes)*noteH + heatMargin
 	img := mustCanvas("occlusion picture", width, height, Light)
 
@@ -152,8 +161,11 @@ func renderOcclusion(base image.Image, occ []*Occlusion, o HeatOptions) (*image.
 			if ps[0] == '<' || ps[0] == '>' {
 				prob = "p " + ps // "p < 0.001", not "p = < 0.001"
 			}
-			if r.Score == ScoreLogit {
+			switch r.Score {
+			case ScoreLogit:
 				prob += ", logit " + fmtG(r.Base)
+			case ScoreLogProb:
+				prob += ", log p " + fmtG(r.Base)
 			}
 			DrawText(img, at.X, y+labelH+2, fitText(prob, pw, heatProbStyle), heatProbStyle)
 		}

@@ -2,9 +2,11 @@ package core
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"image"
 	"slices"
+	"strings"
 
 	"fovea/modelio"
 	"fovea/modelio/classes"
@@ -143,9 +145,9 @@ func CheckOcclusion(set viz.OcclusionSettings, width, height int) error {
 		return bad("fill %q: use grey, mean, blur or zero", set.Fill)
 	}
 	switch set.Score {
-	case "", viz.ScoreProbability, viz.ScoreLogit:
+	case "", viz.ScoreProbability, viz.ScoreLogit, viz.ScoreLogProb:
 	default:
-		return bad("score %q: use probability or logit", set.Score)
+		return bad("score %q: use probability, logit or logprob", set.Score)
 	}
 	return nil
 }
@@ -156,7 +158,7 @@ func CheckOcclusion(set viz.OcclusionSettings, width, height int) error {
 // object, strides of half the patch keep the run count moderate).
 func DefaultOcclusion(width, height int) viz.OcclusionSettings {
 	p := max(1, min(width, height)/6)
-	return viz.OcclusionSettings{Patch: p, Stride: max(1, p/2), Fill: "grey", Score: "probability"}
+	return viz.OcclusionSettings{Patch: p, Stride: max(1, p/2), Fill: viz.FillGrey, Score: viz.ScoreProbability}
 }
 
 // Occlude measures how much hiding each part of img lowers the score of each
@@ -173,7 +175,7 @@ func (w *Workspace) Occlude(ctx context.Context, img image.Image, set viz.Occlus
 		return nil, nil, err
 	}
 	fit, in := tensor(img, c)
-	if len(targets) == 0 || set.Score == viz.ScoreLogit {
+	if len(targets) == 0 {
 		res, err := s.Run(ctx, in, 1)
 		if err != nil {
 			return nil, nil, fmt.Errorf("core: %s: %w", w.Model.Name, err)
@@ -182,12 +184,7 @@ func (w *Workspace) Occlude(ctx context.Context, img image.Image, set viz.Occlus
 		if err != nil {
 			return nil, nil, err
 		}
-		if cl.Softmaxed && set.Score == viz.ScoreLogit {
-			return nil, nil, inputf("", "score logit: the output of %s is already a probability distribution, it has no logits; use score probability", w.Model.Name)
-		}
-		if len(targets) == 0 {
-			targets = []int{cl.Top[0].Index}
-		}
+		targets = []int{cl.Top[0].Index}
 	}
 	if n := w.Classes(); n > 0 {
 		for _, t := range targets {
@@ -197,6 +194,10 @@ func (w *Workspace) Occlude(ctx context.Context, img image.Image, set viz.Occlus
 		}
 	}
 	occ, err := analysis.Occlude(ctx, s, c, fit, set, targets, progress)
+	if errors.Is(err, analysis.ErrNoLogits) {
+		// A condition of the model, not a failure of the run.
+		return nil, nil, inputf(w.Model.Name, "%s", strings.TrimPrefix(err.Error(), "viz: occlusion: "))
+	}
 	if err != nil {
 		return nil, nil, fmt.Errorf("core: %s: occlusion: %w", w.Model.Name, err)
 	}

@@ -106,6 +106,22 @@ func (w *Workspace) Report(ctx context.Context, in ReportInput, progress func(do
 	if name == "" {
 		name = "(unnamed image)"
 	}
+	settings := []string{
+		"image          " + name,
+		"preprocessing  " + cfg.String(),
+		"labels         " + labelsFrom,
+		fmt.Sprintf("occlusion      patch %d px, stride %d px, fill %s, score %s", set.Patch, set.Stride, set.Fill, occ[0].Unit()),
+		"scored         " + occ[0].SourceNote,
+	}
+	for _, o := range occ {
+		if o.Saturated() {
+			// The full note is too long for a settings line; this says the
+			// same in short.
+			settings = append(settings, fmt.Sprintf("saturated      %s: p barely moves (at most %.2g); score %s shows the patches",
+				className(labels, o.Target), viz.ScoreScale(o.Scores), o.Suggested()))
+		}
+	}
+	settings = append(settings, "softmax        "+softmaxNote(cl), "runtime        ONNX Runtime "+infer.Version())
 	return viz.Report(viz.ReportInput{
 		Image:     Enlarge(cl.Input, factor),
 		TopK:      withNames(cl.Top, labels),
@@ -113,15 +129,8 @@ func (w *Workspace) Report(ctx context.Context, in ReportInput, progress func(do
 		Panels:    panels,
 		Legend:    legend,
 		ModelName: w.Model.Name,
-		Settings: []string{
-			"image          " + name,
-			"preprocessing  " + cfg.String(),
-			"labels         " + labelsFrom,
-			fmt.Sprintf("occlusion      patch %d px, stride %d px, fill %s, score %s", set.Patch, set.Stride, set.Fill, occ[0].Unit()),
-			"softmax        " + softmaxNote(cl),
-			"runtime        ONNX Runtime " + infer.Version(),
-		},
-		Date: date.Format("2006-01-02"),
+		Settings:  settings,
+		Date:      date.Format("2006-01-02"),
 	}), nil
 }
 

@@ -317,7 +317,7 @@ func CheckPrep(m *modelio.Model, c prep.Config) error {
 type kind int
 
 const (
-	plainRun  kind = iota // nothing: classification, occlusion
+	plainRun  kind = iota // the logits behind a final Softmax (analysis.OcclusionCapture): classification, occlusion
 	layersRun             // every layer's output the window can show (infer.LayerOutputs)
 	scanRun               // the ReLU-like maps a scan reads (analysis.ScanCapture)
 	kinds
@@ -339,6 +339,10 @@ func (w *Workspace) sessionLocked(k kind) (*infer.Session, error) {
 	slot := &w.sessions[k]
 	opt := infer.Options{Dims: dims(w.Model, w.cfg)}
 	switch k {
+	case plainRun:
+		// The logits behind a final Softmax, for the occlusion's logit and
+		// log-probability scores; the outputs stay those of a plain run.
+		opt.Capture = analysis.OcclusionCapture(w.Model)
 	case layersRun:
 		opt.Capture = infer.LayerOutputs(w.Model)
 	case scanRun:

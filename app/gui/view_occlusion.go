@@ -30,9 +30,13 @@ type occlusionView struct {
 	expect        *widget.Select
 	runBtn        *widget.Button
 	exportBtn     *widget.Button
-	pic           *picture
-	verdict       *widget.RichText
-	caution       *widget.Label
+	// switchBtn reruns with the suggested score when a probability heatmap
+	// is saturated (viz.Occlusion.Saturated); hidden otherwise.
+	switchBtn *widget.Button
+	switchTo  viz.Score
+	pic       *picture
+	verdict   *widget.RichText
+	caution   *widget.Label
 
 	classes []int // class index of each expect option after the first ("none")
 	set     viz.OcclusionSettings
@@ -52,10 +56,20 @@ func newOcclusionView(u *ui) *occlusionView {
 	v.jobs = u.newRunner(true)
 	v.patch = widget.NewEntry()
 	v.stride = widget.NewEntry()
-	v.fill = widget.NewSelect([]string{viz.FillGrey, viz.FillMean, viz.FillBlur, viz.FillZero}, nil)
-	v.fill.SetSelected(viz.FillGrey)
-	v.score = widget.NewSelect([]string{viz.ScoreProbability, viz.ScoreLogit}, nil)
-	v.score.SetSelected(viz.ScoreProbability)
+	var fills, scores []string
+	for _, f := range viz.Fills {
+		fills = append(fills, string(f))
+	}
+	for _, s := range viz.Scores {
+		scores = append(scores, string(s))
+	}
+	v.fill = widget.NewSelect(fills, nil)
+	v.fill.SetSelected(string(viz.FillGrey))
+	v.score = widget.NewSelect(scores, nil)
+	v.score.SetSelected(string(viz.ScoreProbability))
+	v.switchBtn = widget.NewButton("", v.switchScore)
+	v.switchBtn.Importance = widget.WarningImportance
+	v.switchBtn.Hide()
 	v.expect = widget.NewSelect([]string{noExpected}, nil)
 	v.expect.SetSelected(noExpected)
 	v.runBtn = widget.NewButtonWithIcon("Run occlusion", theme.MediaPlayIcon(), v.run)
@@ -75,7 +89,7 @@ func newOcclusionView(u *ui) *occlusionView {
 		widget.NewLabel("Score"), v.score)
 	question := container.NewBorder(nil, nil, widget.NewLabel("Should have been"), container.NewHBox(v.runBtn, v.exportBtn), v.expect)
 	v.content = container.NewBorder(
-		container.NewVBox(settings, question, v.jobs.box, v.verdict),
+		container.NewVBox(settings, question, v.jobs.box, v.verdict, container.NewHBox(v.switchBtn)),
 		v.caution, nil, nil, v.pic.box)
 	return v
 }
@@ -186,7 +200,7 @@ func (v *occlusionView) settings() (viz.OcclusionSettings, error) {
 	if err1 != nil || err2 != nil {
 		return viz.OcclusionSettings{}, fmt.Errorf("patch %q and step %q must be whole numbers of pixels", v.patch.Text, v.stride.Text)
 	}
-	set := viz.OcclusionSettings{Patch: patch, Stride: stride, Fill: v.fill.Selected, Score: v.score.Selected}
+	set := viz.OcclusionSettings{Patch: patch, Stride: stride, Fill: viz.Fill(v.fill.Selected), Score: viz.Score(v.score.Selected)}
 	c, _ := v.u.ws.Prep()
 	return set, core.CheckOcclusion(set, c.Width, c.Height)
 }
@@ -246,16 +260,35 @@ func (v *occlusionView) show(occ []*viz.Occlusion, pic *image.NRGBA, set viz.Occ
 		add(" versus expected ", widget.RichTextStyleInline)
 		add(name(occ[1]), widget.RichTextStyleStrong)
 		add(". Both heatmaps share one colour scale: warm where hiding the patch lowered that class's "+scoreNoun(occ[0].Score)+", cool where it raised it.", widget.RichTextStyleInline)
-		if occ[1].Score != viz.ScoreLogit && occ[1].Probability < 0.05 {
-			add(" The expected class is so improbable that its changes look faint on this scale; Score: logit shows them plainly.", widget.RichTextStyleInline)
+		if occ[1].Score == viz.ScoreProbability && occ[1].Probability < 0.05 {
+			add(" The expected class is so improbable that its changes look faint on this scale; Score: "+string(occ[1].Suggested())+" shows them plainly.", widget.RichTextStyleInline)
 		}
 	case exp >= 0:
 		add(". The expected class is the predicted one: nothing to contrast.", widget.RichTextStyleInline)
 	default:
 		add(". Warm where hiding the patch lowered the class's "+scoreNoun(occ[0].Score)+", cool where it raised it.", widget.RichTextStyleInline)
 	}
+	add(" Scored: "+occ[0].SourceNote+".", widget.RichTextStyleInline)
+	v.switchBtn.Hide()
+	for _, o := range occ {
+		if note := o.SaturationNote(); note != "" {
+			add(" "+note, widget.RichTextStyleStrong)
+			v.switchTo = o.Suggested()
+			v.switchBtn.SetText("Score " + string(v.switchTo) + " instead")
+			v.switchBtn.Show()
+			break
+		}
+	}
 	v.verdict.Segments = segs
 	v.verdict.Refresh()
+}
+
+// switchScore reruns the occlusion with the score a saturation warning
+// suggested.
+func (v *occlusionView) switchScore() {
+	v.switchBtn.Hide()
+	v.score.SetSelected(string(v.switchTo))
+	v.run()
 }
 
 // export saves the one-page explanation picture: the image, the top
@@ -301,10 +334,14 @@ func (v *occlusionView) writeReport(path string, in core.ReportInput) {
 	})
 }
 
-// scoreNoun names what an occlusion compares: "probability" or "logit".
-func scoreNoun(score string) string {
-	if score == viz.ScoreLogit {
+// scoreNoun names what an occlusion compares: "probability", "logit" or
+// "log-probability".
+func scoreNoun(score viz.Score) string {
+	switch score {
+	case viz.ScoreLogit:
 		return "logit"
+	case viz.ScoreLogProb:
+		return "log-probability"
 	}
 	return "probability"
 }

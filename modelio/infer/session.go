@@ -396,6 +396,10 @@ func (s *Session) ImageDims() ([]int64, error) {
 	return slices.Clone(s.dims), nil
 }
 
+// Model returns the model the session runs (read-only: a session's
+// analyses look up the graph, e.g. Model.ClassSoftmax).
+func (s *Session) Model() *modelio.Model { return s.model }
+
 // Dropped lists the model outputs the session does not return (not
 // float32), with their type.
 func (s *Session) Dropped() []string { return slices.Clone(s.dropped) }

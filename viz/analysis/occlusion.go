@@ -8,7 +8,6 @@ import (
 
 	"github.com/disintegration/imaging"
 
-	"fovea/modelio/classes"
 	"fovea/modelio/infer"
 	"fovea/modelio/prep"
 	"fovea/viz"
@@ -27,9 +26,9 @@ func checkSettings(set *viz.OcclusionSettings, w, h int) error {
 	switch set.Score {
 	case "":
 		set.Score = viz.ScoreProbability
-	case viz.ScoreProbability, viz.ScoreLogit:
+	case viz.ScoreProbability, viz.ScoreLogit, viz.ScoreLogProb:
 	default:
-		return fmt.Errorf("viz: occlusion: unknown score %q (want %s or %s)", set.Score, viz.ScoreProbability, viz.ScoreLogit)
+		return fmt.Errorf("viz: occlusion: unknown score %q (want %s, %s or %s)", set.Score, viz.ScoreProbability, viz.ScoreLogit, viz.ScoreLogProb)
 	}
 	if set.Patch <= 0 {
 		return fmt.Errorf("viz: occlusion: patch size %d: must be at least 1 pixel", set.Patch)
@@ -169,23 +168,12 @@ func Occlude(ctx context.Context, s *infer.Session, c prep.Config, img *image.NR
 		return nil, err
 	}
 	k := len(rows[0])
-	// Whether the output is already a distribution is decided once, on the
-	// unoccluded image, so every position is scored the same way.
-	_, already := classes.Probabilities(rows[0])
-	if set.Score == viz.ScoreLogit && already {
-		return nil, fmt.Errorf("viz: occlusion: the model's output is already a probability distribution, so it has no logits to score; use score %q", viz.ScoreProbability)
+	sc, err := newScorer(s.Model(), res, set.Score)
+	if err != nil {
+		return nil, err
 	}
-	toProb := func(row []float32) []float64 {
-		if already {
-			p := make([]float64, len(row))
-			for i, v := range row {
-				p[i] = float64(v)
-			}
-			return p
-		}
-		return softmax(row)
-	}
-	probs := toProb(rows[0])
+	probs := sc.probs(res, 0)
+	scores := sc.score(res, 0)
 	out := make([]*viz.Occlusion, len(targets))
 	for i, t := range targets {
 		if t == -1 {
@@ -194,12 +182,9 @@ func Occlude(ctx context.Context, s *infer.Session, c prep.Config, img *image.NR
 		if t < 0 || t >= k {
 			return nil, fmt.Errorf("viz: occlusion: target class %d out of range: the model has %d classes (0..%d)", targets[i], k, k-1)
 		}
-		o := &viz.Occlusion{OcclusionSettings: set, Target: t, Probability: probs[t],
+		o := &viz.Occlusion{OcclusionSettings: set, Target: t, Probability: probs[t], Base: scores[t],
+			Source: sc.source, SourceNote: sc.note, Logits: sc.logitName, NoLogits: sc.noLogit,
 			Ys: ys, Xs: xs, Width: w, Height: h, Scores: make([][]float64, len(ys))}
-		o.Base = o.Probability
-		if set.Score == viz.ScoreLogit {
-			o.Base = float64(rows[0][t])
-		}
 		for r := range o.Scores {
 			o.Scores[r] = make([]float64, len(xs))
 		}
@@ -253,16 +238,9 @@ func Occlude(ctx context.Context, s *infer.Session, c prep.Config, img *image.NR
 				return nil, fmt.Errorf("viz: occlusion: the model returned %d scores for an occluded image but %d for the original", len(row), k)
 			}
 			p := start + i
-			var pr []float64
-			if set.Score == viz.ScoreProbability {
-				pr = toProb(row)
-			}
+			v := sc.score(res, i)
 			for _, o := range out {
-				v := float64(row[o.Target])
-				if pr != nil {
-					v = pr[o.Target]
-				}
-				o.Scores[p/len(xs)][p%len(xs)] = o.Base - v
+				o.Scores[p/len(xs)][p%len(xs)] = o.Base - v[o.Target]
 			}
 		}
 		report(1 + start + n)

@@ -332,8 +332,10 @@ func TestOcclusionErrors(t *testing.T) {
 	}
 }
 
-// TestOcclusionLogitOfProbabilities: a model ending in Softmax has no logits
-// to compare; asking for them is an error rather than a silent probability.
+// TestOcclusionLogitOfProbabilities: a model ending in Softmax has its
+// logits before the Softmax; a session that did not capture them
+// (OcclusionCapture) cannot score them, and says so rather than scoring a
+// probability silently.
 func TestOcclusionLogitOfProbabilities(t *testing.T) {
 	b := newGraph("softmax_out")
 	b.input("image", 1, 3, 4, 4)
@@ -348,7 +350,7 @@ func TestOcclusionLogitOfProbabilities(t *testing.T) {
 	cfg := prep.Config{Width: 4, Height: 4, Channels: 3, Resize: "stretch", Range: "0-1", Std: [3]float32{1, 1, 1}, Layout: "nchw"}
 	img := testImage(4, 4, 1)
 	_, err := Occlude(context.Background(), s, cfg, img, viz.OcclusionSettings{Patch: 2, Stride: 2, Score: viz.ScoreLogit}, nil, nil)
-	if err == nil || !strings.Contains(err.Error(), "already a probability distribution") {
+	if !errors.Is(err, ErrNoLogits) || !strings.Contains(err.Error(), "not captured") {
 		t.Errorf("logit of a softmax output: error %v", err)
 	}
 	// Probability mode takes the model's probabilities as they are: the
