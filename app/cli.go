@@ -62,7 +62,7 @@ func (cf *common) declare(fs *flag.FlagSet) {
 	fs.StringVar(&cf.demo, "demo", "", "use the embedded demo `NAME`: healthy or unhealthy (the checkpoint with dead filters)")
 	fs.StringVar(&cf.ortLib, "ort-lib", "", "ONNX Runtime shared library `FILE` (default: $FOVEA_ORT_LIB, the user cache, system folders)")
 	fs.StringVar(&cf.labels, "labels", "", "class labels `FILE`: one per line, or a JSON array (default: the model's metadata)")
-	fs.BoolVar(&cf.verbose, "verbose", false, "print the model, library, preprocessing and labels in force to stderr")
+	fs.BoolVar(&cf.verbose, "verbose", false, "print the model, library, preprocessing and labels in force, and where a folder's time went, to stderr")
 	fs.StringVar(&cf.prep.size, "size", "", "input size `WxH`, e.g. 224x224")
 	fs.StringVar(&cf.prep.resize, "resize", "", "how the picture reaches the input size, `MODE` stretch (the whole picture) or crop (the centre, after scaling the shorter side)")
 	fs.StringVar(&cf.prep.rng, "range", "", "pixel value `RANGE` before mean/std: 0-1, 0-255 or -1-1")

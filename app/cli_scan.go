@@ -59,6 +59,9 @@ training pipeline can stop a bad run.`,
 			if err != nil {
 				return j.fail(err)
 			}
+			if cf.verbose {
+				fmt.Fprintf(j.stderr, "scan time:     %s\n", r.Stages)
+			}
 			code := exitOK
 			switch {
 			case *asJSON:

@@ -4,8 +4,10 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"io"
 	"math"
 	"sync"
+	"time"
 
 	"fovea/modelio"
 	"fovea/modelio/infer"
@@ -30,6 +32,10 @@ type ScanOptions struct {
 	// ScanReport.Skipped and the scan goes on. By default the scan stops with
 	// an error naming the file.
 	SkipUnreadable bool
+	// Workers is the number of goroutines decoding and preparing the probe
+	// images (FeedOptions.Workers); 0 means one per GOMAXPROCS. The report
+	// does not depend on it.
+	Workers int
 }
 
 // ScanReport is the result of a dead-filter scan. Its JSON form is the one
@@ -42,6 +48,9 @@ type ScanReport struct {
 	Skipped []string    `json:"skipped,omitempty"` // unreadable files passed over (ScanOptions.SkipUnreadable)
 	Rare    float64     `json:"rare"`              // the rare threshold in force
 	Layers  []ScanLayer `json:"layers"`
+	// Stages says where the scan's time went (for --verbose); it is not
+	// part of the result and differs from run to run.
+	Stages Stages `json:"-"`
 }
 
 // ScanLayer is the scan of one activation layer.
@@ -243,9 +252,10 @@ type statJob struct {
 }
 
 // accumulate adds the maps of each job to the layers' statistics and hands
-// the result back for the next run. It stops at the end of jobs, at the
-// first error (sent on errc) or when ctx is cancelled.
-func accumulate(ctx context.Context, accs []*layerAcc, jobs <-chan statJob, results chan<- *infer.Result, errc chan<- error) {
+// the result back for the next run, adding the time it took to *busy. It
+// stops at the end of jobs, at the first error (sent on errc) or when ctx is
+// cancelled.
+func accumulate(ctx context.Context, accs []*layerAcc, jobs <-chan statJob, results chan<- *infer.Result, errc chan<- error, busy *time.Duration) {
 	for {
 		var j statJob
 		var ok bool
@@ -257,23 +267,16 @@ func accumulate(ctx context.Context, accs []*layerAcc, jobs <-chan statJob, resu
 		case <-ctx.Done():
 			return
 		}
+		t0 := time.Now()
 		for _, a := range accs {
 			if err := a.add(j.res.Maps[a.layer.Output], j.n); err != nil {
 				errc <- err
 				return
 			}
 		}
+		*busy += time.Since(t0)
 		results <- j.res // never blocks: at most two results circulate
 	}
-}
-
-// scanBatch is a batch of decoded probe images on its way to the model.
-type scanBatch struct {
-	data     []float32
-	n        int      // images in data
-	consumed int      // files consumed so far (read or skipped), for progress
-	skipped  []string // files skipped while filling this batch
-	err      error
 }
 
 // Scan runs the probe files through the model and reports, for each channel
@@ -282,21 +285,24 @@ type scanBatch struct {
 // kernels feeding it (KernelFlags) zero_kernel and duplicate.
 //
 // s must capture the activations: create it with
-// infer.Options{Capture: ScanCapture(m)}. Files are decoded in batches of
-// s.BatchSize() by one goroutine while the model runs on the previous batch
-// and another goroutine gathers the statistics of the batch before; a third
-// compares the Conv kernels meanwhile. At most three batches of images and
-// two of activation maps exist at any time, so memory does not depend on
-// the number of files. progress, when not nil, gets the number of files
-// done and the total. A cancelled ctx makes Scan return ctx.Err() promptly
-// (after the batch in the model, and at most one Conv's kernel comparison),
-// with all its goroutines finished.
+// infer.Options{Capture: ScanCapture(m)}. Files are decoded and prepared by
+// a Feed (o.Workers goroutines) in batches of s.BatchSize() while the model
+// runs on an earlier batch and another goroutine gathers the statistics of
+// the batch before; a third compares the Conv kernels meanwhile. The batches
+// are handled in file order, so the report is the same, bit for bit,
+// whatever the number of workers. Memory does not depend on the number of
+// files: a few batches of images and two of activation maps exist at any
+// time. progress, when not nil, gets the number of files done and the
+// total. A cancelled ctx makes Scan return ctx.Err() promptly (after the
+// batch in the model, and at most one Conv's kernel comparison), with all
+// its goroutines finished.
 //
 // A file that cannot be loaded stops the scan with an error naming it,
 // unless o.SkipUnreadable is set, in which case it is listed in
 // ScanReport.Skipped and does not count as an image.
 func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config, files []string, o ScanOptions,
 	progress func(done, total int)) (*ScanReport, error) {
+	start := time.Now()
 	rare := o.Rare
 	if rare == 0 {
 		rare = DefaultRare
@@ -309,6 +315,9 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 	}
 	if err := c.Validate(); err != nil {
 		return nil, fmt.Errorf("viz: scan: %w", err)
+	}
+	if o.Workers < 0 {
+		return nil, fmt.Errorf("viz: scan: %d decoding workers: want 0 (automatic) or more", o.Workers)
 	}
 	var accs []*layerAcc
 	for i, l := range m.Layers {
@@ -323,42 +332,33 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 		return nil, err
 	}
 
-	// Three goroutines form a pipeline: the decoder fills input batches,
-	// this one runs the model, the statistics goroutine reads the maps of
-	// the previous batch meanwhile. Input buffers (three: one being filled,
-	// one queued, one in the model) and results (two: one being run, one
-	// being read) circulate, so memory does not grow with the files.
+	// A pipeline: the Feed's workers fill input batches, this goroutine
+	// runs the model, the statistics goroutine reads the maps of the
+	// previous batch meanwhile. Results (two: one being run, one being
+	// read) circulate, so memory does not grow with the files.
 	size := c.Len()
 	bs := max(1, min(s.BatchSize(), len(files)))
-	const buffers = 3
-	free := make(chan []float32, buffers)
-	for i := 0; i < buffers; i++ {
-		free <- make([]float32, bs*size)
-	}
-	full := make(chan scanBatch, 1)
+	ctx2, cancel := context.WithCancel(ctx)
+	feed := NewFeed(ctx2, files, c, FeedOptions{Batch: bs, Workers: o.Workers, SkipUnreadable: o.SkipUnreadable})
 	results := make(chan *infer.Result, 2)
 	results <- nil // RunInto allocates the first two
 	results <- nil
 	jobs := make(chan statJob, 1)
 	statErr := make(chan error, 1)
 	statsDone := make(chan struct{})
+	var summarise time.Duration // written by the statistics goroutine, read after statsDone
 
-	ctx2, cancel := context.WithCancel(ctx)
 	var wg sync.WaitGroup
 	defer func() {
 		cancel()
+		feed.Close()
 		wg.Wait()
 	}()
-	wg.Add(2)
-	go func() {
-		defer wg.Done()
-		defer close(full)
-		decodeProbes(ctx2, files, c, bs, size, o.SkipUnreadable, free, full)
-	}()
+	wg.Add(1)
 	go func() {
 		defer wg.Done()
 		defer close(statsDone)
-		accumulate(ctx2, accs, jobs, results, statErr)
+		accumulate(ctx2, accs, jobs, results, statErr, &summarise)
 	}()
 	// The kernel flags depend on the weights only; on large convolutions
 	// the pairwise comparison takes a while, so it runs beside the images.
@@ -372,6 +372,8 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 	}()
 
 	rep := &ScanReport{Rare: rare}
+	st := &rep.Stages
+	st.Workers = feed.Workers()
 	if progress != nil {
 		progress(0, len(files))
 	}
@@ -381,12 +383,20 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 		}
 		return nil, err
 	}
-	for b := range full {
-		if b.err != nil {
-			return fail(b.err)
+	for {
+		t0 := time.Now()
+		b, err := feed.Next()
+		st.Wait += time.Since(t0)
+		if err == io.EOF {
+			break
 		}
-		rep.Skipped = append(rep.Skipped, b.skipped...)
-		if b.n > 0 {
+		if err != nil {
+			return fail(fmt.Errorf("viz: scan: %w", err))
+		}
+		for _, sk := range b.Skipped {
+			rep.Skipped = append(rep.Skipped, sk.File)
+		}
+		if b.N > 0 {
 			var dst *infer.Result
 			select {
 			case dst = <-results:
@@ -395,7 +405,9 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 			case <-ctx.Done():
 				return nil, ctx.Err()
 			}
-			res, err := s.RunInto(ctx, b.data[:b.n*size], b.n, dst)
+			t1 := time.Now()
+			res, err := s.RunInto(ctx, b.Data[:b.N*size], b.N, dst)
+			st.Run += time.Since(t1)
 			if err != nil {
 				return fail(fmt.Errorf("viz: scan: %w", err))
 			}
@@ -405,17 +417,17 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 				}
 			}
 			select {
-			case jobs <- statJob{res: res, n: b.n}:
+			case jobs <- statJob{res: res, n: b.N}:
 			case err := <-statErr:
 				return fail(err)
 			case <-ctx.Done():
 				return nil, ctx.Err()
 			}
-			rep.Images += b.n
+			rep.Images += b.N
 		}
-		free <- b.data
+		feed.Release(b)
 		if progress != nil {
-			progress(b.consumed, len(files))
+			progress(b.Done, len(files))
 		}
 	}
 	close(jobs)
@@ -437,6 +449,8 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 	if rep.Images == 0 {
 		return nil, fmt.Errorf("viz: scan: none of the %d probe files could be read", len(files))
 	}
+	st.Decode, st.Prepare = feed.Stages()
+	st.Summarise = summarise
 	for _, a := range accs {
 		l := ScanLayer{Name: a.layer.Name, Output: a.layer.Output}
 		var kflags map[int][]modelio.Flag
@@ -466,51 +480,8 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 		}
 		rep.Layers = append(rep.Layers, l)
 	}
+	st.Wall = time.Since(start)
 	return rep, nil
-}
-
-// decodeProbes loads files into batches of up to bs images and sends them on
-// full, taking buffers from free. It returns when the files are done or ctx
-// is cancelled; an unreadable file ends it with an error batch unless skip.
-func decodeProbes(ctx context.Context, files []string, c prep.Config, bs, size int, skip bool,
-	free <-chan []float32, full chan<- scanBatch) {
-	next := 0
-	for next < len(files) {
-		var buf []float32
-		select {
-		case buf = <-free:
-		case <-ctx.Done():
-			return
-		}
-		b := scanBatch{data: buf}
-		for b.n < bs && next < len(files) {
-			if ctx.Err() != nil {
-				return
-			}
-			f := files[next]
-			next++
-			img, err := prep.Load(f)
-			if err != nil {
-				if skip {
-					b.skipped = append(b.skipped, f)
-					continue
-				}
-				b.err = fmt.Errorf("viz: scan: %w", err)
-				break
-			}
-			c.TensorFromImage(prep.Fit(img, c), buf[b.n*size:(b.n+1)*size])
-			b.n++
-		}
-		b.consumed = next
-		select {
-		case full <- b:
-		case <-ctx.Done():
-			return
-		}
-		if b.err != nil {
-			return
-		}
-	}
 }
 
 // spinMACsPerPixel is where scan sessions switch to spinning worker threads:
