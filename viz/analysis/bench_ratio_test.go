@@ -20,6 +20,7 @@ import (
 	"fmt"
 	"image"
 	"image/color"
+	"image/jpeg"
 	"image/png"
 	"math"
 	"os"
@@ -301,18 +302,25 @@ func BenchmarkScanRatio(b *testing.B) {
 	}
 }
 
-func scanRatio(b *testing.B, bc benchCase) {
+func scanRatio(b *testing.B, bc benchCase) { scanRatioWith(b, bc, "png", 0) }
+
+// scanRatioWith is scanRatio with probe files in format ("png" or "jpeg",
+// quality 90) and both sessions' runtime threads set to threads (0: one per
+// core).
+func scanRatioWith(b *testing.B, bc benchCase, format string, threads int) {
 	ctx := context.Background()
 	m, cfg := benchOpen(b, bc.path)
 	// The scan's session is made as the window's is (ScanSession); the
 	// bound's with the default options, the fastest for runs that have the
 	// cores to themselves.
-	s, err := infer.NewSession(m, ScanSession(m, nil))
+	opt := ScanSession(m, nil)
+	opt.Threads = threads
+	s, err := infer.NewSession(m, opt)
 	if err != nil {
 		b.Fatal(err)
 	}
 	defer s.Close()
-	bound, err := infer.NewSession(m, infer.Options{Capture: ScanCapture(m)})
+	bound, err := infer.NewSession(m, infer.Options{Capture: ScanCapture(m), Threads: threads})
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -322,12 +330,17 @@ func scanRatio(b *testing.B, bc benchCase) {
 	input := make([]float32, bc.probes*cfg.Len())
 	for i := range files {
 		pic := benchPicture(cfg.Width, cfg.Height, uint32(i))
-		files[i] = filepath.Join(dir, fmt.Sprintf("probe%03d.png", i))
+		files[i] = filepath.Join(dir, fmt.Sprintf("probe%03d.%s", i, format))
 		f, err := os.Create(files[i])
 		if err != nil {
 			b.Fatal(err)
 		}
-		if err := png.Encode(f, pic); err != nil {
+		if format == "jpeg" {
+			err = jpeg.Encode(f, pic, &jpeg.Options{Quality: 90})
+		} else {
+			err = png.Encode(f, pic)
+		}
+		if err != nil {
 			b.Fatal(err)
 		}
 		if err := f.Close(); err != nil {
@@ -341,6 +354,7 @@ func scanRatio(b *testing.B, bc benchCase) {
 			b.Fatal(err)
 		}
 	}
+	var stages Stages
 	scan := func() {
 		rep, err := Scan(ctx, s, m, cfg, files, ScanOptions{}, nil)
 		if err != nil {
@@ -349,9 +363,18 @@ func scanRatio(b *testing.B, bc benchCase) {
 		if rep.Images != bc.probes {
 			b.Fatalf("scan read %d images of %d", rep.Images, bc.probes)
 		}
+		stages = rep.Stages
 	}
 	interleave(b, plain, scan).report(b, "scan/plain", true, bc.probes)
 	b.ReportMetric(float64(s.BatchSize()), "batch")
+	b.ReportMetric(float64(stages.Workers), "workers")
+	// Where the last scan's time went, as shares of its wall time.
+	for _, st := range []struct {
+		unit string
+		d    time.Duration
+	}{{"decode-share", stages.Decode}, {"prepare-share", stages.Prepare}, {"run-share", stages.Run}, {"wait-share", stages.Wait}} {
+		b.ReportMetric(st.d.Seconds()/stages.Wall.Seconds(), st.unit)
+	}
 }
 
 // processCPU returns the CPU time (user + system) this process has used,
