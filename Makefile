@@ -52,15 +52,16 @@ test: deps-test build ort check-format vet unit fuzz check-install check-package
 # /tmp/fovea-bench.txt and prints the table of ratios with their goals. The
 # demo's capture ratio is infer's BenchmarkCaptureRatio, which repeats its
 # short runs for -benchtime 2s; the others interleave the measured operation
-# with its bound for 10 iterations and report the median ratio. About 4
-# minutes on 2 cores when nobody else is using them.
+# with its bound for 10 iterations and report the median ratio. The scan is
+# also measured at 1, 2 and all cores (BenchmarkScanCores, which limits the
+# process itself). About 10 minutes on 2 cores when nobody else is using them.
 bench: deps-test build ort
 	@dir=$$(mktemp -d "$${TMPDIR:-/tmp}/fovea-bench.XXXXXX"); trap 'rm -rf "$$dir"' EXIT; \
 	$(GO) run ./modelio/internal/synth/synthbench models "$$dir"; \
 	status=0; \
 	{ r=0; $(GO) test -p 1 -count 1 -run '^$$' -bench '^BenchmarkCaptureRatio$$' -benchtime 2s ./modelio/infer || r=1; \
 	  FOVEA_BENCH_MODELS="$$dir" $(GO) test -p 1 -count 1 -timeout 30m -run '^$$' -benchtime 10x \
-	    -bench '^Benchmark(OcclusionRatio|ScanRatio|CaptureRatioResNet18|OpenRatio)$$' ./viz/analysis ./modelio/infer ./modelio || r=1; \
+	    -bench '^Benchmark(OcclusionRatio|ScanRatio|ScanCores|CaptureRatioResNet18|OpenRatio)$$' ./viz/analysis ./modelio/infer ./modelio || r=1; \
 	  exit $$r; } 2>&1 | tee /tmp/fovea-bench.txt || status=$$?; \
 	echo; $(GO) run ./modelio/internal/synth/synthbench table /tmp/fovea-bench.txt || status=1; \
 	exit $$status
