@@ -846,8 +846,14 @@ func TestCLIScanUnhealthy(t *testing.T) {
 	if code != exitGate || !strings.Contains(errs, "--max-dead") || !strings.Contains(out, "dead") {
 		t.Errorf("--max-dead 0 on the unhealthy demo: exit %d, stderr %q; want 3 and a table", code, errs)
 	}
-	if _, errs, code = runCLI(t, "scan", "--demo", "unhealthy", "--max-dead", strconv.Itoa(tr.DeadTotal)); code != exitOK {
+	if _, errs, code = runCLI(t, "scan", "--demo", "unhealthy", "--max-dead", strconv.Itoa(tr.DeadTotal), "--verbose"); code != exitOK {
 		t.Errorf("--max-dead %d (the number dead): exit %d, %s", tr.DeadTotal, code, errs)
+	}
+	// --verbose says where the time went, stage by stage.
+	for _, want := range []string{"scan time:", "decoding", "preparing", "running", "summarising", "waiting for images"} {
+		if !strings.Contains(errs, want) {
+			t.Errorf("scan --verbose does not say %q:\n%s", want, errs)
+		}
 	}
 
 	// CSV: one row per channel, same numbers as the JSON.
