@@ -372,7 +372,7 @@ func scanRatioWith(b *testing.B, bc benchCase, format string, threads int) {
 	for _, st := range []struct {
 		unit string
 		d    time.Duration
-	}{{"decode-share", stages.Decode}, {"prepare-share", stages.Prepare}, {"run-share", stages.Run}, {"wait-share", stages.Wait}} {
+	}{{"decode-share", stages.Decode}, {"prepare-share", stages.Prepare}, {"run-share", stages.Run}, {"summarise-share", stages.Summarise}, {"wait-share", stages.Wait}} {
 		b.ReportMetric(st.d.Seconds()/stages.Wall.Seconds(), st.unit)
 	}
 }

@@ -7,6 +7,7 @@ import (
 	"io"
 	"math"
 	"sync"
+	"sync/atomic"
 	"time"
 
 	"fovea/modelio"
@@ -33,8 +34,9 @@ type ScanOptions struct {
 	// an error naming the file.
 	SkipUnreadable bool
 	// Workers is the number of goroutines decoding and preparing the probe
-	// images (FeedOptions.Workers); 0 means one per GOMAXPROCS. The report
-	// does not depend on it.
+	// images (FeedOptions.Workers) and, each taking whole channels, gathering
+	// the statistics of a batch; 0 means one per GOMAXPROCS. The report does
+	// not depend on it.
 	Workers int
 }
 
@@ -159,17 +161,20 @@ type layerAcc struct {
 	values   int // values seen per channel
 }
 
-func (a *layerAcc) add(t modelio.Tensor, n int) error {
+// check validates the maps of a batch of n images against the layer and,
+// on the first batch, sizes the accumulators; it returns the number of
+// channels and the positions per channel map.
+func (a *layerAcc) check(t modelio.Tensor, n int) (c, sp int, err error) {
 	if len(t.Shape) < 2 || t.Shape[0] != int64(n) {
-		return fmt.Errorf("viz: scan: activation %q has shape %v for a batch of %d images; want [N][C]...", a.layer.Output, t.Shape, n)
+		return 0, 0, fmt.Errorf("viz: scan: activation %q has shape %v for a batch of %d images; want [N][C]...", a.layer.Output, t.Shape, n)
 	}
-	c := int(t.Shape[1])
-	sp := 1
+	c = int(t.Shape[1])
+	sp = 1
 	for _, d := range t.Shape[2:] {
 		sp *= int(d)
 	}
 	if c <= 0 || sp <= 0 || len(t.Data) != n*c*sp {
-		return fmt.Errorf("viz: scan: activation %q: shape %v does not match its %d values", a.layer.Output, t.Shape, len(t.Data))
+		return 0, 0, fmt.Errorf("viz: scan: activation %q: shape %v does not match its %d values", a.layer.Output, t.Shape, len(t.Data))
 	}
 	if a.channels == nil {
 		a.channels = make([]channelAcc, c)
@@ -178,10 +183,19 @@ func (a *layerAcc) add(t modelio.Tensor, n int) error {
 		}
 		a.spatial = sp
 	} else if c != len(a.channels) || sp != a.spatial {
-		return fmt.Errorf("viz: scan: activation %q changed shape between batches (%v)", a.layer.Output, t.Shape)
+		return 0, 0, fmt.Errorf("viz: scan: activation %q changed shape between batches (%v)", a.layer.Output, t.Shape)
 	}
+	return c, sp, nil
+}
+
+// addChannels adds channels [lo, hi) of a checked batch of n images, image
+// after image. Each channel's accumulator is touched by one call only, so
+// disjoint ranges may run at once and give the same sums, in the same
+// order, as one call over all channels.
+func (a *layerAcc) addChannels(t modelio.Tensor, n, lo, hi int) {
+	c, sp := len(a.channels), a.spatial
 	for img := 0; img < n; img++ {
-		for ch := range a.channels {
+		for ch := lo; ch < hi; ch++ {
 			m := t.Data[(img*c+ch)*sp : (img*c+ch+1)*sp]
 			mx, sum := mapStats(m)
 			acc := &a.channels[ch]
@@ -204,7 +218,62 @@ func (a *layerAcc) add(t modelio.Tensor, n int) error {
 			}
 		}
 	}
-	a.values += n * sp
+}
+
+// statPart is one share of a batch's statistics: channels [lo, hi) of one
+// layer.
+type statPart struct {
+	acc    *layerAcc
+	lo, hi int
+}
+
+// addParallel adds the maps of a batch of n images to the layers'
+// statistics on up to parts goroutines, each taking whole channels (see
+// addChannels), so the result does not depend on parts.
+func addParallel(accs []*layerAcc, maps map[string]modelio.Tensor, n, parts int) error {
+	total := 0
+	for _, a := range accs {
+		c, sp, err := a.check(maps[a.layer.Output], n)
+		if err != nil {
+			return err
+		}
+		total += c * sp
+	}
+	if parts <= 1 {
+		for _, a := range accs {
+			a.addChannels(maps[a.layer.Output], n, 0, len(a.channels))
+			a.values += n * a.spatial
+		}
+		return nil
+	}
+	// Cut the channels into about parts shares of equal size in values; a
+	// share does not cross a layer.
+	share := max(1, (total+parts-1)/parts)
+	var work []statPart
+	for _, a := range accs {
+		per := max(1, share/a.spatial) // channels per share in this layer
+		for lo := 0; lo < len(a.channels); lo += per {
+			work = append(work, statPart{a, lo, min(lo+per, len(a.channels))})
+		}
+	}
+	var wg sync.WaitGroup
+	next := atomic.Int64{}
+	for range min(parts, len(work)) {
+		wg.Go(func() {
+			for {
+				i := int(next.Add(1)) - 1
+				if i >= len(work) {
+					return
+				}
+				w := work[i]
+				w.acc.addChannels(maps[w.acc.layer.Output], n, w.lo, w.hi)
+			}
+		})
+	}
+	wg.Wait()
+	for _, a := range accs {
+		a.values += n * a.spatial
+	}
 	return nil
 }
 
@@ -255,7 +324,7 @@ type statJob struct {
 // the result back for the next run, adding the time it took to *busy. It
 // stops at the end of jobs, at the first error (sent on errc) or when ctx is
 // cancelled.
-func accumulate(ctx context.Context, accs []*layerAcc, jobs <-chan statJob, results chan<- *infer.Result, errc chan<- error, busy *time.Duration) {
+func accumulate(ctx context.Context, accs []*layerAcc, parts int, jobs <-chan statJob, results chan<- *infer.Result, errc chan<- error, busy *time.Duration) {
 	for {
 		var j statJob
 		var ok bool
@@ -268,11 +337,9 @@ func accumulate(ctx context.Context, accs []*layerAcc, jobs <-chan statJob, resu
 			return
 		}
 		t0 := time.Now()
-		for _, a := range accs {
-			if err := a.add(j.res.Maps[a.layer.Output], j.n); err != nil {
-				errc <- err
-				return
-			}
+		if err := addParallel(accs, j.res.Maps, j.n, parts); err != nil {
+			errc <- err
+			return
 		}
 		*busy += time.Since(t0)
 		results <- j.res // never blocks: at most two results circulate
@@ -287,8 +354,9 @@ func accumulate(ctx context.Context, accs []*layerAcc, jobs <-chan statJob, resu
 // s must capture the activations: create it with
 // infer.Options{Capture: ScanCapture(m)}. Files are decoded and prepared by
 // a Feed (o.Workers goroutines) in batches of s.BatchSize() while the model
-// runs on an earlier batch and another goroutine gathers the statistics of
-// the batch before; a third compares the Conv kernels meanwhile. The batches
+// runs on an earlier batch and the statistics of the batch before are
+// gathered meanwhile (on o.Workers goroutines, each taking whole channels);
+// another goroutine compares the Conv kernels. The batches
 // are handled in file order, so the report is the same, bit for bit,
 // whatever the number of workers. Memory does not depend on the number of
 // files: a few batches of images and two of activation maps exist at any
@@ -358,7 +426,7 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 	go func() {
 		defer wg.Done()
 		defer close(statsDone)
-		accumulate(ctx2, accs, jobs, results, statErr, &summarise)
+		accumulate(ctx2, accs, feed.Workers(), jobs, results, statErr, &summarise)
 	}()
 	// The kernel flags depend on the weights only; on large convolutions
 	// the pairwise comparison takes a while, so it runs beside the images.
