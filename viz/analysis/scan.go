@@ -34,9 +34,9 @@ type ScanOptions struct {
 	// an error naming the file.
 	SkipUnreadable bool
 	// Workers is the number of goroutines decoding and preparing the probe
-	// images (FeedOptions.Workers) and, each taking whole channels, gathering
-	// the statistics of a batch; 0 means one per GOMAXPROCS. The report does
-	// not depend on it.
+	// images (FeedOptions.Workers); a quarter as many, each taking whole
+	// channels, gather the statistics of a batch. 0 means one per
+	// GOMAXPROCS. The report does not depend on it.
 	Workers int
 }
 
@@ -220,6 +220,16 @@ func (a *layerAcc) addChannels(t modelio.Tensor, n, lo, hi int) {
 	}
 }
 
+// statParts is the number of goroutines that gather a batch's statistics
+// in a scan with the given decoding workers: one per four. The statistics
+// are a small share of a scan's work (2-10 % of the wall time of the demo
+// scan on 2 cores), so splitting them pays only where many cores would
+// otherwise wait for one goroutine; on 2 cores two goroutines made the demo
+// scan slower (median scan/plain 0.70 against 0.79 over six interleaved
+// runs of BenchmarkScanCores/cores2/demo on a loaded machine), taking the
+// cores from the model.
+func statParts(workers int) int { return max(1, workers/4) }
+
 // statPart is one share of a batch's statistics: channels [lo, hi) of one
 // layer.
 type statPart struct {
@@ -355,9 +365,9 @@ func accumulate(ctx context.Context, accs []*layerAcc, parts int, jobs <-chan st
 // infer.Options{Capture: ScanCapture(m)}. Files are decoded and prepared by
 // a Feed (o.Workers goroutines) in batches of s.BatchSize() while the model
 // runs on an earlier batch and the statistics of the batch before are
-// gathered meanwhile (on o.Workers goroutines, each taking whole channels);
-// another goroutine compares the Conv kernels. The batches
-// are handled in file order, so the report is the same, bit for bit,
+// gathered meanwhile (on o.Workers/4 goroutines, at least one, each
+// taking whole channels); another goroutine compares the Conv kernels. The
+// batches are handled in file order, so the report is the same, bit for bit,
 // whatever the number of workers. Memory does not depend on the number of
 // files: a few batches of images and two of activation maps exist at any
 // time. progress, when not nil, gets the number of files done and the
@@ -426,7 +436,7 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 	go func() {
 		defer wg.Done()
 		defer close(statsDone)
-		accumulate(ctx2, accs, feed.Workers(), jobs, results, statErr, &summarise)
+		accumulate(ctx2, accs, statParts(feed.Workers()), jobs, results, statErr, &summarise)
 	}()
 	// The kernel flags depend on the weights only; on large convolutions
 	// the pairwise comparison takes a while, so it runs beside the images.

@@ -1,8 +1,11 @@
 package analysis
 
 import (
+	"fmt"
 	"math"
 	"testing"
+
+	"fovea/modelio"
 )
 
 // referenceStats is the obviously correct form of mapStats: one pass, float64.
@@ -87,5 +90,82 @@ func BenchmarkMapStats(b *testing.B) {
 			}
 			b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/float64(len(m)), "ns/value")
 		})
+	}
+}
+
+// TestAddParallel: the statistics gathered by 2 to 7 goroutines, each
+// taking whole channels, equal bit for bit those of one goroutine, over
+// several batches of maps holding ordinary values, a constant channel, a
+// dead one and a NaN (common practice: a parallel reduction must not change
+// the order of any sum).
+func TestAddParallel(t *testing.T) {
+	shapes := [][]int64{{3, 5, 9, 7}, {3, 11, 4}, {3, 2}}
+	batch := func(k int) map[string]modelio.Tensor {
+		maps := map[string]modelio.Tensor{}
+		v := uint32(k*977 + 1)
+		for li, sh := range shapes {
+			n := 1
+			for _, d := range sh {
+				n *= int(d)
+			}
+			data := make([]float32, n)
+			for i := range data {
+				v = v*1664525 + 1013904223 // Numerical Recipes LCG
+				data[i] = float32(int32(v>>8)) / (1 << 22)
+			}
+			sp := n / int(sh[0]*sh[1])
+			for img := 0; img < int(sh[0]); img++ {
+				ch := func(c int) []float32 { return data[(img*int(sh[1])+c)*sp : (img*int(sh[1])+c+1)*sp] }
+				for i := range ch(1) {
+					ch(1)[i] = 2.5                    // constant
+					ch(0)[i] = -ch(0)[i]*ch(0)[i] - 1 // dead
+				}
+				if li == 0 && k == 1 && img == 2 {
+					ch(3)[4] = float32(math.NaN())
+				}
+			}
+			maps[fmt.Sprint("t", li)] = modelio.Tensor{Shape: sh, Data: data}
+		}
+		return maps
+	}
+	newAccs := func() []*layerAcc {
+		var accs []*layerAcc
+		for li := range shapes {
+			accs = append(accs, &layerAcc{layer: modelio.Layer{Output: fmt.Sprint("t", li)}, conv: -1})
+		}
+		return accs
+	}
+	run := func(parts int) []*layerAcc {
+		accs := newAccs()
+		for k := range 3 {
+			if err := addParallel(accs, batch(k), 3, parts); err != nil {
+				t.Fatal(err)
+			}
+		}
+		return accs
+	}
+	ref := run(1)
+	for _, a := range ref {
+		if a.channels[0].fires != 0 || a.channels[1].varies || a.values != 3*3*a.spatial {
+			t.Fatalf("%s: the dead or constant channel or the count is not what the maps hold: %+v, %d values", a.layer.Output, a.channels[:2], a.values)
+		}
+	}
+	if !math.IsNaN(ref[0].channels[3].sum) {
+		t.Fatalf("the NaN did not reach the sum: %v", ref[0].channels[3].sum)
+	}
+	for parts := 2; parts <= 7; parts++ {
+		got := run(parts)
+		for i, a := range got {
+			for c, ch := range a.channels {
+				r := ref[i].channels[c]
+				if ch.fires != r.fires || math.Float64bits(ch.max) != math.Float64bits(r.max) ||
+					math.Float64bits(ch.sum) != math.Float64bits(r.sum) || ch.varies != r.varies || ch.first != r.first {
+					t.Errorf("%d parts, %s channel %d: %+v, one goroutine %+v", parts, a.layer.Output, c, ch, r)
+				}
+			}
+			if a.values != ref[i].values {
+				t.Errorf("%d parts, %s: %d values, want %d", parts, a.layer.Output, a.values, ref[i].values)
+			}
+		}
 	}
 }
