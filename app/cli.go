@@ -64,7 +64,7 @@ func (cf *common) declare(fs *flag.FlagSet) {
 	fs.StringVar(&cf.labels, "labels", "", "class labels `FILE`: one per line, or a JSON array (default: the model's metadata)")
 	fs.BoolVar(&cf.verbose, "verbose", false, "print the model, library, preprocessing and labels in force to stderr")
 	fs.StringVar(&cf.prep.size, "size", "", "input size `WxH`, e.g. 224x224")
-	fs.StringVar(&cf.prep.resize, "resize", "", "how the picture reaches the input size, `MODE` stretch (the whole picture) or crop (the centre, after scaling the shorter side)")
+	fs.StringVar(&cf.prep.resize, "resize", "", "how the picture reaches the input size, `MODE` stretch (the whole picture), crop (shorter side to the input size, then the centre) or crop:S (shorter side to S pixels, then the centre; crop:256 for 224 inputs is the common evaluation pipeline)")
 	fs.StringVar(&cf.prep.rng, "range", "", "pixel value `RANGE` before mean/std: 0-1, 0-255 or -1-1")
 	fs.StringVar(&cf.prep.mean, "mean", "", "per-channel mean `R,G,B` subtracted (in the range above)")
 	fs.StringVar(&cf.prep.std, "std", "", "per-channel standard deviation `R,G,B` divided by")
