@@ -495,6 +495,22 @@ func TestCLIPreprocessingFlags(t *testing.T) {
 	}
 }
 
+// --resize crop:S is a setting of the command line: accepted (the settings
+// in force say crop:72), and an S below the input's side is bad input (exit
+// 2) with a message that says what S must be. The pixels crop:S makes are
+// checked against torchvision in modelio/prep (TestFitMatchesTorchvision).
+func TestCLIResizeCropS(t *testing.T) {
+	d := newDemoFiles(t)
+	_, errs, code := runCLI(t, "classify", "--model", d.model, "--image", d.image, "--json", "--verbose", "--resize", "crop:72")
+	if code != exitOK || !strings.Contains(errs, "64x64 RGB, crop:72,") {
+		t.Errorf("--resize crop:72: exit %d, stderr %s", code, errs)
+	}
+	_, errs, code = runCLI(t, "classify", "--model", d.model, "--image", d.image, "--resize", "crop:32")
+	if code != 2 || !strings.Contains(errs, "at least the input's longer side (64)") {
+		t.Errorf("--resize crop:32 on a 64×64 model: exit %d, stderr %s", code, errs)
+	}
+}
+
 // ---- filters ----
 
 func TestCLIFilters(t *testing.T) {

@@ -42,15 +42,16 @@ type tpModel struct {
 
 // tpRuns holds what every subcommand printed for one model.
 type tpRuns struct {
-	path   string
-	layers layersDoc
-	table  string
-	top    classifyDoc
-	filt   filtersDoc
-	maps   map[string]mapsDoc // by layer name
-	occ    occDoc
-	codes  map[string]int
-	b      *onnxbuild.Builder
+	path      string
+	imagePath string // the picture classify ran on
+	layers    layersDoc
+	table     string
+	top       classifyDoc
+	filt      filtersDoc
+	maps      map[string]mapsDoc // by layer name
+	occ       occDoc
+	codes     map[string]int
+	b         *onnxbuild.Builder
 }
 
 // tpResult is one in-process run; a panic is caught and reported as such.
@@ -346,9 +347,42 @@ var tpModels = []tpModel{
 			b.Output(f, "N", 12)
 			b.Output(b.Gemm(f, 12, 4), "N", 4)
 		},
-		// Not checked: which output holds the scores. Both are [N,k] and
-		// infer takes the first; a wrong but consistent choice (see the
-		// report of this test's author).
+		// Both outputs are [N,k]; the scores are the one computed from the
+		// other (modelio.Model.ScoreOutput, rule 2): the 4-class Gemm, not
+		// the 12 pooled features. --output reads the other one on request,
+		// and an unknown --output is bad input.
+		check: func(t *testing.T, r *tpRuns) {
+			m, err := modelio.Open(r.path)
+			if err != nil {
+				t.Fatal(err)
+			}
+			feats, logits := m.Outputs[0].Name, m.Outputs[1].Name
+			if len(r.top.Top) != 4 {
+				t.Errorf("classify: %d rows, want the 4 classes of %q", len(r.top.Top), logits)
+			}
+			for _, p := range r.top.Top {
+				if p.Index >= 4 {
+					t.Errorf("classify read the features output: class %d of a 4-class logits output", p.Index)
+				}
+			}
+			res := tpRun("classify", "--json", "--k", "100", "--verbose", "--model", r.path, "--image", r.imagePath, "--output", feats)
+			var doc classifyDoc
+			if res.code != exitOK {
+				t.Fatalf("--output %s: exit %d: %s", feats, res.code, res.stderr)
+			}
+			decodeJSON(t, res.stdout, &doc)
+			if len(doc.Top) != 12 || !strings.Contains(res.stderr, fmt.Sprintf("scores:        output %q (named by --output)", feats)) {
+				t.Errorf("--output %s: %d classes, want 12; stderr %s", feats, len(doc.Top), res.stderr)
+			}
+			res = tpRun("classify", "--verbose", "--model", r.path, "--image", r.imagePath)
+			if !strings.Contains(res.stderr, fmt.Sprintf("scores:        output %q (the other vector outputs are computed into it", logits)) {
+				t.Errorf("--verbose does not say which output is scored: %s", res.stderr)
+			}
+			res = tpRun("classify", "--model", r.path, "--image", r.imagePath, "--output", "nosuch")
+			if res.code != exitUsage || !strings.Contains(res.stderr, `no output named "nosuch"`) || !strings.Contains(res.stderr, "features first") {
+				t.Errorf("--output nosuch: exit %d: %s", res.code, res.stderr)
+			}
+		},
 	},
 	{
 		// A convolutional head, as SqueezeNet exports: scores [N,10,1,1],
@@ -613,7 +647,7 @@ func tpImages(t *testing.T) (string, []string) {
 // exit status rules; it returns what the successful runs printed.
 func tpExercise(t *testing.T, path string, probe string, image string, fails bool) *tpRuns {
 	t.Helper()
-	r := &tpRuns{path: path, maps: map[string]mapsDoc{}, codes: map[string]int{}}
+	r := &tpRuns{path: path, imagePath: image, maps: map[string]mapsDoc{}, codes: map[string]int{}}
 	out := t.TempDir()
 	base := filepath.Base(path)
 	try := func(what string, v any, args ...string) bool {
