@@ -103,6 +103,11 @@ type Session struct {
 	estBytes int64     // estimated result bytes per image before the first run
 	work     int64     // estimated working bytes per image inside the runtime
 	pad      []float32 // zero-padded input chunk for a batch fixed above 1
+
+	// execHook, when set (by tests only), is called with the run's context
+	// just before each runtime run, after the terminate flag is armed: a
+	// test can cancel there and know the run is in flight.
+	execHook func(ctx context.Context)
 }
 
 // NewSession opens m in ONNX Runtime (Init must have succeeded). With
@@ -742,6 +747,9 @@ func (s *Session) execOn(ctx context.Context, sess *ort.DynamicAdvancedSession, 
 		defer close(fired)
 		_ = s.runOpt.Terminate()
 	})
+	if s.execHook != nil {
+		s.execHook(ctx)
+	}
 	err := sess.RunWithOptions(in, out, s.runOpt)
 	if !stop() {
 		<-fired
