@@ -16,6 +16,7 @@ import (
 	"testing"
 
 	"fovea/modelio"
+	"fovea/modelio/classes"
 	"fovea/modelio/infer"
 	"fovea/modelio/prep"
 )
@@ -248,7 +249,7 @@ func TestTopFiveMatchesTorchvision(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			p, _ := infer.Probabilities(res.Scores(0))
+			p, _ := classes.Probabilities(res.Scores(0))
 			want := ref.Top5[name+"-"+mode.file]
 			if len(want) != 5 {
 				t.Fatalf("%s-%s: reference has %d rows", name, mode.file, len(want))
@@ -260,7 +261,7 @@ func TestTopFiveMatchesTorchvision(t *testing.T) {
 					t.Logf("%s %-8s: top class %d %.6f, PyTorch %.6f", name, mode.resize, int(w[0]), p[int(w[0])], w[1])
 				}
 			}
-			top := infer.TopK(p, nil, 5)
+			top := classes.TopK(p, nil, 5)
 			for k := range top {
 				if top[k].Index != int(want[k][0]) && math.Abs(top[k].Probability-want[k][1]) > tol {
 					t.Errorf("%s %s: rank %d is class %d, PyTorch's is %d", name, mode.resize, k+1, top[k].Index, int(want[k][0]))
