@@ -101,6 +101,7 @@ def to_float16(model):
 
 
 def main():
+    torch.set_num_threads(1)
     m = net()
     path = os.path.join(HERE, "bnfold.onnx")
     torch.onnx.export(m, torch.zeros(1, 3, 32, 32), path, input_names=["image"], output_names=["logits"],
