@@ -45,7 +45,13 @@ func Fit(img image.Image, c Config) *image.NRGBA {
 	}
 	if s := CropSide(c.Resize); s > 0 || c.Resize == ResizeCrop {
 		rw, rh := scaledSize(b.Dx(), b.Dy(), c.Width, c.Height, s)
-		return resizeWindow(img, b, c.Background, rw, rh, centreWindow(rw, rh, c.Width, c.Height))
+		win := centreWindow(rw, rh, c.Width, c.Height)
+		if rw == b.Dx() && rh == b.Dy() {
+			// Nothing to resize (the filter's taps would copy each pixel):
+			// only the cut.
+			return flatten(img, win.Add(b.Min), c.Background)
+		}
+		return resizeWindow(img, b, c.Background, rw, rh, win)
 	}
 	r := b
 	if r.Dx() > c.Width && r.Dy() > bandRows {

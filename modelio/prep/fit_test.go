@@ -312,3 +312,23 @@ func TestFitBandsMatchWholeResize(t *testing.T) {
 		}
 	}
 }
+
+// A crop that needs no resize (the picture's shorter side already is the
+// input's) is the plain cut; it equals what the general resize path makes
+// with its identity taps, on random pixels with alpha and a non-zero origin.
+func TestCropWithoutResizeIsTheCut(t *testing.T) {
+	rng := rand.New(rand.NewPCG(7, 8))
+	img := image.NewNRGBA(image.Rect(3, -4, 3+103, -4+100))
+	for i := range img.Pix {
+		img.Pix[i] = uint8(rng.IntN(256))
+	}
+	c := Config{Width: 100, Height: 100, Resize: ResizeCrop, Background: color.NRGBA{10, 200, 30, 255}}
+	got := Fit(img, c)
+	// 103×100 to 100×100: no resize; a surplus of 3 leaves 2 on the left (1.5 rounds to even).
+	win := image.Rect(2, 0, 102, 100)
+	slow := resizeWindow(img, img.Rect, c.Background, 103, 100, win)
+	cut := flatten(img, win.Add(img.Rect.Min), c.Background)
+	if !bytes.Equal(got.Pix, slow.Pix) || !bytes.Equal(got.Pix, cut.Pix) || got.Rect != image.Rect(0, 0, 100, 100) {
+		t.Error("a crop without resize differs from the resize path's identity or from the plain cut")
+	}
+}
