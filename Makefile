@@ -3,7 +3,9 @@
 # installs and downloads nothing. `make bench` prints the benchmark ratios.
 # `make install` / `make uninstall` put Fovea into PREFIX (default ~/.local)
 # or take it out again; `make package` builds the tarball to hand on;
-# `make check-export` runs the README's PyTorch export recipe.
+# `make check-export` runs the README's PyTorch export recipe;
+# `make refdata` regenerates the reference files the tests read that
+# torchvision and the onnx package made.
 
 SHELL := /bin/bash
 .SHELLFLAGS := -eu -o pipefail -c
@@ -22,6 +24,8 @@ RUN_DEBS  := gcc:gcc libc6-dev pkg-config:pkg-config libgl1-mesa-dev xorg-dev np
 TEST_DEBS := $(RUN_DEBS) libonnx-testdata desktop-file-validate:desktop-file-utils xz:xz-utils
 # check-export: Debian's PyTorch and onnx for /usr/bin/python3 (about 1 GB).
 EXPORT_DEBS := python3-torch python3-onnx python3-numpy python3-pil
+# refdata: the same plus torchvision (its PIL transforms are the reference).
+REFDATA_DEBS := $(EXPORT_DEBS) python3-torchvision
 # Go release named in go.mod; an older or missing go gets it from the Go module proxy.
 GO_WANT   := $(shell sed -n 's/^go \([0-9.]*\)$$/\1/p' go.mod)
 GOCACHE_TOOLS := $(HOME)/.cache/fovea/go-$(GO_WANT)
@@ -38,7 +42,7 @@ APP_VERSION := $(shell sed -n 's/^ *Version *= *"\(.*\)"/\1/p' FyneApp.toml)
 PACKAGE   := dist/fovea-$(APP_VERSION)-linux-amd64.tar.xz
 
 .PHONY: run test bench ort deps-run deps-test go-toolchain build check-format vet unit fuzz \
-	install uninstall package fyne-tool check-install check-package check-export deps-export
+	install uninstall package fyne-tool check-install check-package check-export deps-export refdata
 
 run: deps-run build ort
 	$(BIN)
@@ -240,3 +244,14 @@ check-export: deps-export build ort
 	$(BIN) layers --model "$$dir/classifier.onnx" --json > "$$dir/layers.json"; \
 	$(BIN) classify --model "$$dir/classifier.onnx" --image assets/demo/images/$$(ls assets/demo/images | head -1) --k 3 --json > "$$dir/top.json"; \
 	/usr/bin/python3 testdata/export/check_result.py "$$dir/classifier.onnx" "$$dir/layers.json" "$$dir/top.json" assets/demo/images/$$(ls assets/demo/images | head -1)
+
+# refdata: regenerates the reference files that Python made once and the Go
+# tests read (`make test` never runs Python): torchvision's resize/crop
+# pictures, tensors and top-5 probabilities (modelio/prep/testdata/torchvision)
+# and the kernels of real exports read by onnx's numpy_helper
+# (modelio/testdata/onnxref). Each run writes the same bytes; git diff shows
+# any change.
+refdata:
+	@$(call install_debs,$(REFDATA_DEBS))
+	/usr/bin/python3 modelio/prep/testdata/torchvision/gen_torchvision.py
+	/usr/bin/python3 modelio/testdata/onnxref/gen_kernels.py

@@ -44,6 +44,7 @@ func findCommand(name string) *command {
 // common are the flags every model command takes.
 type common struct {
 	model, demo, ortLib, labels string
+	output                      string // --output: the output holding the class scores
 	verbose                     bool
 	prep                        prepFlags
 	names                       map[string]bool // the common flags' names, for the help text
@@ -62,9 +63,10 @@ func (cf *common) declare(fs *flag.FlagSet) {
 	fs.StringVar(&cf.demo, "demo", "", "use the embedded demo `NAME`: healthy or unhealthy (the checkpoint with dead filters)")
 	fs.StringVar(&cf.ortLib, "ort-lib", "", "ONNX Runtime shared library `FILE` (default: $FOVEA_ORT_LIB, the user cache, system folders)")
 	fs.StringVar(&cf.labels, "labels", "", "class labels `FILE`: one per line, or a JSON array (default: the model's metadata)")
-	fs.BoolVar(&cf.verbose, "verbose", false, "print the model, library, preprocessing and labels in force, and where a folder's time went, to stderr")
+	fs.StringVar(&cf.output, "output", "", "the model output `NAME` that holds the class scores (default: chosen by shape, by which output feeds which, and by name; --verbose says which)")
+	fs.BoolVar(&cf.verbose, "verbose", false, "print the model, library, preprocessing, labels and scored output in force, and where a folder's time went, to stderr")
 	fs.StringVar(&cf.prep.size, "size", "", "input size `WxH`, e.g. 224x224")
-	fs.StringVar(&cf.prep.resize, "resize", "", "how the picture reaches the input size, `MODE` stretch (the whole picture) or crop (the centre, after scaling the shorter side)")
+	fs.StringVar(&cf.prep.resize, "resize", "", "how the picture reaches the input size, `MODE` stretch (the whole picture), crop (shorter side to the input size, then the centre) or crop:S (shorter side to S pixels, then the centre; crop:256 for 224 inputs is the common evaluation pipeline)")
 	fs.StringVar(&cf.prep.rng, "range", "", "pixel value `RANGE` before mean/std: 0-1, 0-255 or -1-1")
 	fs.StringVar(&cf.prep.mean, "mean", "", "per-channel mean `R,G,B` subtracted (in the range above)")
 	fs.StringVar(&cf.prep.std, "std", "", "per-channel standard deviation `R,G,B` divided by")
@@ -80,7 +82,7 @@ func (cf *common) declare(fs *flag.FlagSet) {
 
 // sharedOrder is the order the help text lists the common flags in: the
 // model first, then its preprocessing, then the machinery.
-var sharedOrder = []string{"model", "demo", "labels", "size", "resize", "range", "mean", "std", "bgr", "layout", "ort-lib", "verbose"}
+var sharedOrder = []string{"model", "demo", "labels", "output", "size", "resize", "range", "mean", "std", "bgr", "layout", "ort-lib", "verbose"}
 
 // job is what a command's work gets: the open model and the output streams.
 type job struct {
@@ -145,6 +147,11 @@ func (cmd *command) run(c *cli, args []string) int {
 	}
 	if cf.labels != "" {
 		if err := ws.LoadLabels(cf.labels); err != nil {
+			return j.fail(err)
+		}
+	}
+	if cf.output != "" {
+		if err := ws.SetOutput(cf.output); err != nil {
 			return j.fail(err)
 		}
 	}
@@ -215,6 +222,10 @@ func (j *job) describe() {
 		for _, n := range j.ws.GuessNotes() {
 			fmt.Fprintf(w, "               note: %s\n", n)
 		}
+	}
+	if len(m.Outputs) > 1 {
+		name, why := j.ws.ScoreOutput()
+		fmt.Fprintf(w, "scores:        output %q (%s)\n", name, why)
 	}
 	labels, lfrom := j.ws.Labels()
 	if len(labels) > 0 {

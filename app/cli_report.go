@@ -13,22 +13,28 @@ import (
 
 var reportCommand = &command{
 	name:    "report",
-	args:    "--image FILE --out FILE [--versus CLASS]",
+	args:    "--image FILE --out FILE [--versus CLASS] [--json]",
 	summary: "the one-page picture explaining a prediction, to share with a colleague",
 	about: `Composes one PNG page: the image as the model saw it, the top-k predictions, the
 occlusion heatmaps of the predicted class and (with --versus) of the class it should
 have been, side by side on one scale with their legend, the model's name, the
 preprocessing and occlusion settings, the date, and the caution that a heatmap is
-evidence about this model on this image, not proof.`,
+evidence about this model on this image, not proof. With --json it also prints what the
+page states: the model file's SHA-256, the labels' source (and its SHA-256), the
+preprocessing, the predictions, the occlusion settings and the date.`,
 	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
 		var o occlusionFlags
 		o.declare(fs)
 		out := fs.String("out", "", "write the PNG to `FILE` (required; - for stdout)")
 		k := fs.Int("k", 5, "`N` rows in the table of predictions")
 		date := fs.String("date", "", "`YYYY-MM-DD` printed on the page (default: today, or $SOURCE_DATE_EPOCH)")
+		asJSON := fs.Bool("json", false, "print what the page states as JSON on stdout (needs --out FILE, not -)")
 		return func(j *job) int {
 			if *out == "" {
 				return j.usageErr("--out FILE is required")
+			}
+			if *asJSON && *out == "-" {
+				return j.usageErr("--json prints on stdout: give --out FILE, not -")
 			}
 			if *k < 1 {
 				return j.usageErr("--k %d: give at least 1", *k)
@@ -49,7 +55,7 @@ evidence about this model on this image, not proof.`,
 			if err != nil {
 				return j.fail(err)
 			}
-			page, err := j.ws.Report(j.ctx, core.ReportInput{
+			page, content, err := j.ws.ReportPage(j.ctx, core.ReportInput{
 				Image: img, ImageName: filepath.Base(o.image), K: *k, Versus: versus,
 				Occlusion: res.set, Occlusions: res.occ, Date: when,
 			}, nil)
@@ -58,6 +64,9 @@ evidence about this model on this image, not proof.`,
 			}
 			if code := j.writePNG(*out, page); code != exitOK {
 				return code
+			}
+			if *asJSON {
+				return j.writeJSON(content)
 			}
 			if *out != "-" {
 				fmt.Fprintf(j.stdout, "wrote %s (%d×%d)\n", *out, page.Bounds().Dx(), page.Bounds().Dy())

@@ -16,6 +16,7 @@ package main
 
 import (
 	"bytes"
+	"crypto/sha256"
 	"encoding/csv"
 	"encoding/json"
 	"flag"
@@ -495,6 +496,22 @@ func TestCLIPreprocessingFlags(t *testing.T) {
 	}
 }
 
+// --resize crop:S is a setting of the command line: accepted (the settings
+// in force say crop:72), and an S below the input's side is bad input (exit
+// 2) with a message that says what S must be. The pixels crop:S makes are
+// checked against torchvision in modelio/prep (TestFitMatchesTorchvision).
+func TestCLIResizeCropS(t *testing.T) {
+	d := newDemoFiles(t)
+	_, errs, code := runCLI(t, "classify", "--model", d.model, "--image", d.image, "--json", "--verbose", "--resize", "crop:72")
+	if code != exitOK || !strings.Contains(errs, "64x64 RGB, crop:72,") {
+		t.Errorf("--resize crop:72: exit %d, stderr %s", code, errs)
+	}
+	_, errs, code = runCLI(t, "classify", "--model", d.model, "--image", d.image, "--resize", "crop:32")
+	if code != 2 || !strings.Contains(errs, "at least the input's longer side (64)") {
+		t.Errorf("--resize crop:32 on a 64×64 model: exit %d, stderr %s", code, errs)
+	}
+}
+
 // ---- filters ----
 
 func TestCLIFilters(t *testing.T) {
@@ -919,6 +936,105 @@ func TestCLIReport(t *testing.T) {
 	out2 := filepath.Join(d.dir, "again.png")
 	mustRun(t, "report", "--model", d.model, "--image", d.mistake, "--versus", mis.Label, "--out", out2)
 	samePixels(t, "report with SOURCE_DATE_EPOCH", readPNG(t, out2), got, 0)
+}
+
+// report --json states what the page shows, checked against values found
+// outside Fovea: the SHA-256 of the model and label files computed here
+// (crypto/sha256, FIPS 180-4), the preprocessing exactly as the flags set
+// it, and the top-5 probabilities PyTorch computed for the same model and
+// picture (modelio/prep/testdata/torchvision: tiny224.onnx on torchvision's
+// Resize(256)+CenterCrop(224) of a 400×300 picture, stored as a 224×224 PNG,
+// so Fovea's resize leaves it as it is), within 5e-4.
+func TestCLIReportJSON(t *testing.T) {
+	tv := filepath.Join("..", "modelio", "prep", "testdata", "torchvision")
+	dir := filepath.Join(t.TempDir(), "Bericht ü")
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	modelBytes, err := os.ReadFile(filepath.Join(tv, "tiny224.onnx"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	model := filepath.Join(dir, "tiny 224.onnx")
+	labelText := "zero\none\ntwo\nthree\nfour\nfive\nsix\nseven\neight\nnine\n"
+	labels := filepath.Join(dir, "classes ü.txt")
+	for p, b := range map[string][]byte{model: modelBytes, labels: []byte(labelText)} {
+		if err := os.WriteFile(p, b, 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	var ref struct {
+		Top5 map[string][][2]float64 `json:"top5"`
+	}
+	raw, err := os.ReadFile(filepath.Join(tv, "reference.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	decodeJSON(t, string(raw), &ref)
+	want := ref.Top5["400x300-crop-256"]
+	out := filepath.Join(dir, "page.png")
+	stdout := mustRun(t, "report", "--json", "--model", model, "--labels", labels,
+		"--image", filepath.Join(tv, "400x300-crop-256.png"), "--versus", "three", "--date", "2026-01-02", "--out", out,
+		"--range", "0-1", "--mean", "0.485,0.456,0.406", "--std", "0.229,0.224,0.225", "--resize", "stretch")
+	var doc struct {
+		Model, SHA256, Image, Labels string
+		LabelsSHA256                 string `json:"labels_sha256"`
+		Preprocess                   struct {
+			Width, Height, Channels int
+			Resize, Range, Layout   string
+			Mean, Std               []float32
+		}
+		Top []struct {
+			Index       int
+			Label       string
+			Probability float64
+		}
+		Expected *struct {
+			Index int
+			Label string
+		}
+		Heatmaps []struct{ Index int }
+		Softmax  bool `json:"softmax_applied"`
+		Date     string
+	}
+	decodeJSON(t, stdout, &doc)
+	hex := func(b []byte) string { s := sha256.Sum256(b); return fmt.Sprintf("%x", s) }
+	if doc.Model != "tiny 224.onnx" || doc.SHA256 != hex(modelBytes) {
+		t.Errorf("model %q sha256 %s, want tiny 224.onnx %s", doc.Model, doc.SHA256, hex(modelBytes))
+	}
+	if doc.Labels != labels || doc.LabelsSHA256 != hex([]byte(labelText)) {
+		t.Errorf("labels %q sha256 %s, want %s %s", doc.Labels, doc.LabelsSHA256, labels, hex([]byte(labelText)))
+	}
+	p := doc.Preprocess
+	if p.Width != 224 || p.Height != 224 || p.Channels != 3 || p.Resize != "stretch" || p.Range != "0-1" || p.Layout != "nchw" ||
+		!slices.Equal(p.Mean, []float32{0.485, 0.456, 0.406}) || !slices.Equal(p.Std, []float32{0.229, 0.224, 0.225}) {
+		t.Errorf("preprocess %+v, want the flags' 224x224 stretch 0-1 ImageNet mean/std NCHW", p)
+	}
+	if len(doc.Top) != 5 {
+		t.Fatalf("%d predictions, want 5", len(doc.Top))
+	}
+	names := strings.Fields(labelText)
+	for i, w := range want {
+		g := doc.Top[i]
+		if g.Index != int(w[0]) || g.Label != names[int(w[0])] || math.Abs(g.Probability-w[1]) > 5e-4 {
+			t.Errorf("rank %d: %+v, PyTorch class %d (%s) %.6f", i+1, g, int(w[0]), names[int(w[0])], w[1])
+		}
+	}
+	if doc.Expected == nil || doc.Expected.Index != 3 || doc.Expected.Label != "three" {
+		t.Errorf("expected %+v, want class 3 (three)", doc.Expected)
+	}
+	if len(doc.Heatmaps) != 2 || doc.Heatmaps[0].Index != int(want[0][0]) || doc.Heatmaps[1].Index != 3 {
+		t.Errorf("heatmaps of %+v, want the predicted class %d then 3", doc.Heatmaps, int(want[0][0]))
+	}
+	if !doc.Softmax || doc.Date != "2026-01-02" || doc.Image != "400x300-crop-256.png" {
+		t.Errorf("softmax_applied %v, date %q, image %q", doc.Softmax, doc.Date, doc.Image)
+	}
+	if pg := readPNG(t, out); pg.Bounds().Dx() != viz.ReportWidth || pg.Bounds().Dy() != viz.ReportHeight {
+		t.Errorf("page %v", pg.Bounds())
+	}
+	if _, errs, code := runCLI(t, "report", "--json", "--model", model, "--image", filepath.Join(tv, "400x300-crop-256.png"), "--out", "-"); code != 2 || !strings.Contains(errs, "--json") {
+		t.Errorf("--json with --out -: exit %d: %s", code, errs)
+	}
 }
 
 // ---- exit statuses and messages ----

@@ -26,6 +26,8 @@ import (
 	"fovea/modelio"
 	"fovea/modelio/onnxbuild"
 	"fovea/modelio/onnxpb"
+
+	"google.golang.org/protobuf/proto"
 )
 
 // tpModel is one generated third-party model.
@@ -35,22 +37,27 @@ type tpModel struct {
 	// opset of the builder.
 	opset int64
 	// fails: the model cannot be fed (exit 2 expected for every command that
-	// runs it; layers and filters may still work).
+	// runs it; layers works).
 	fails bool
-	check func(t *testing.T, r *tpRuns)
+	// noFilters: no Conv reads the image input, so filters exits 2.
+	noFilters bool
+	check     func(t *testing.T, r *tpRuns)
 }
 
 // tpRuns holds what every subcommand printed for one model.
 type tpRuns struct {
-	path   string
-	layers layersDoc
-	table  string
-	top    classifyDoc
-	filt   filtersDoc
-	maps   map[string]mapsDoc // by layer name
-	occ    occDoc
-	codes  map[string]int
-	b      *onnxbuild.Builder
+	path      string
+	imagePath string // the picture classify ran on
+	layers    layersDoc
+	table     string
+	top       classifyDoc
+	all       classifyDoc // classify --k 100
+	scan      scanDoc
+	filt      filtersDoc
+	maps      map[string]mapsDoc // by layer name
+	occ       occDoc
+	codes     map[string]int
+	b         *onnxbuild.Builder
 }
 
 // tpResult is one in-process run; a panic is caught and reported as such.
@@ -346,9 +353,42 @@ var tpModels = []tpModel{
 			b.Output(f, "N", 12)
 			b.Output(b.Gemm(f, 12, 4), "N", 4)
 		},
-		// Not checked: which output holds the scores. Both are [N,k] and
-		// infer takes the first; a wrong but consistent choice (see the
-		// report of this test's author).
+		// Both outputs are [N,k]; the scores are the one computed from the
+		// other (modelio.Model.ScoreOutput, rule 2): the 4-class Gemm, not
+		// the 12 pooled features. --output reads the other one on request,
+		// and an unknown --output is bad input.
+		check: func(t *testing.T, r *tpRuns) {
+			m, err := modelio.Open(r.path)
+			if err != nil {
+				t.Fatal(err)
+			}
+			feats, logits := m.Outputs[0].Name, m.Outputs[1].Name
+			if len(r.top.Top) != 4 {
+				t.Errorf("classify: %d rows, want the 4 classes of %q", len(r.top.Top), logits)
+			}
+			for _, p := range r.top.Top {
+				if p.Index >= 4 {
+					t.Errorf("classify read the features output: class %d of a 4-class logits output", p.Index)
+				}
+			}
+			res := tpRun("classify", "--json", "--k", "100", "--verbose", "--model", r.path, "--image", r.imagePath, "--output", feats)
+			var doc classifyDoc
+			if res.code != exitOK {
+				t.Fatalf("--output %s: exit %d: %s", feats, res.code, res.stderr)
+			}
+			decodeJSON(t, res.stdout, &doc)
+			if len(doc.Top) != 12 || !strings.Contains(res.stderr, fmt.Sprintf("scores:        output %q (named by --output)", feats)) {
+				t.Errorf("--output %s: %d classes, want 12; stderr %s", feats, len(doc.Top), res.stderr)
+			}
+			res = tpRun("classify", "--verbose", "--model", r.path, "--image", r.imagePath)
+			if !strings.Contains(res.stderr, fmt.Sprintf("scores:        output %q (the other vector outputs are computed into it", logits)) {
+				t.Errorf("--verbose does not say which output is scored: %s", res.stderr)
+			}
+			res = tpRun("classify", "--model", r.path, "--image", r.imagePath, "--output", "nosuch")
+			if res.code != exitUsage || !strings.Contains(res.stderr, `no output named "nosuch"`) || !strings.Contains(res.stderr, "features first") {
+				t.Errorf("--output nosuch: exit %d: %s", res.code, res.stderr)
+			}
+		},
 	},
 	{
 		// A convolutional head, as SqueezeNet exports: scores [N,10,1,1],
@@ -468,7 +508,7 @@ var tpModels = []tpModel{
 	},
 	{
 		// (k) an integer image input.
-		name: "uint8 input.onnx", opset: 13, fails: true,
+		name: "uint8 input.onnx", opset: 13, fails: true, noFilters: true, // no float image input
 		make: func(b *onnxbuild.Builder, dir string) {
 			x := b.Input("image_uint8", onnxbuild.Uint8, "N", 3, 16, 16)
 			x = b.Op("Cast", []string{x}, onnxbuild.Int("to", 1))
@@ -609,11 +649,36 @@ func tpImages(t *testing.T) (string, []string) {
 	return dir, files
 }
 
-// tpExercise runs every subcommand on the model at path and checks the
-// exit status rules; it returns what the successful runs printed.
-func tpExercise(t *testing.T, path string, probe string, image string, fails bool) *tpRuns {
+// tpWant gives the exit status each command must end with on a model:
+// exitOK, or exitUsage when the model cannot do what the command asks (one
+// line on stderr naming the file). what is the command as tpExercise names
+// it: "layers", "filters", "classify", "maps <layer>", "occlude", "scan",
+// "report".
+type tpWant func(what string) int
+
+// runsModel reports whether the command what runs the model (layers and
+// filters only read the file).
+func runsModel(what string) bool {
+	return what != "layers" && what != "filters"
+}
+
+// wantFor is the expectation of a generated model: a model that cannot be
+// fed fails every command that runs it; noFilters fails filters.
+func (tm tpModel) wantFor(what string) int {
+	switch {
+	case tm.fails && runsModel(what), tm.noFilters && what == "filters":
+		return exitUsage
+	}
+	return exitOK
+}
+
+// tpExercise runs every subcommand on the model at path, checks each exit
+// status against want and decodes what the successful runs wrote: JSON
+// documents, the scan's flags against the README's definitions and the
+// report's page size. It returns what they printed.
+func tpExercise(t *testing.T, path string, probe string, image string, want tpWant) *tpRuns {
 	t.Helper()
-	r := &tpRuns{path: path, maps: map[string]mapsDoc{}, codes: map[string]int{}}
+	r := &tpRuns{path: path, imagePath: image, maps: map[string]mapsDoc{}, codes: map[string]int{}}
 	out := t.TempDir()
 	base := filepath.Base(path)
 	try := func(what string, v any, args ...string) bool {
@@ -625,6 +690,14 @@ func tpExercise(t *testing.T, path string, probe string, image string, fails boo
 		}
 		if res.panicked != nil {
 			t.Errorf("%s %s: %v", base, what, res.panicked)
+			return false
+		}
+		key := strings.Fields(what)[0]
+		if key == "maps" {
+			key = what
+		}
+		if w := want(key); res.code != w {
+			t.Errorf("%s %s: exit %d, want %d: %s", base, what, res.code, w, strings.TrimSpace(res.stderr))
 			return false
 		}
 		switch res.code {
@@ -644,26 +717,19 @@ func tpExercise(t *testing.T, path string, probe string, image string, fails boo
 			if !strings.Contains(msg, base) && !strings.Contains(msg, strings.TrimSuffix(base, ".onnx")) {
 				t.Errorf("%s %s: message does not name the model: %q", base, what, msg)
 			}
-			if !fails {
-				t.Errorf("%s %s: exit 2: %s", base, what, msg)
-			}
-		default:
-			t.Errorf("%s %s: exit %d: %s", base, what, res.code, strings.TrimSpace(res.stderr))
 		}
 		return false
 	}
 	m := []string{"--model", path}
 	try("layers --json", &r.layers, append([]string{"layers", "--json"}, m...)...)
-	if res := tpRun(append([]string{"layers"}, m...)...); res.panicked != nil || res.code != exitOK {
-		if res.code != exitUsage || !fails {
-			t.Errorf("%s layers: exit %d %v: %s", base, res.code, res.panicked, res.stderr)
-		}
-	} else {
+	if res := tpRun(append([]string{"layers"}, m...)...); res.panicked != nil || res.code != want("layers") {
+		t.Errorf("%s layers: exit %d %v: %s", base, res.code, res.panicked, res.stderr)
+	} else if res.code == exitOK {
 		r.table = res.stdout
 	}
 	try("filters", &r.filt, append([]string{"filters", "--json", "--out", filepath.Join(out, "filters.png")}, m...)...)
-	var all classifyDoc
-	if try("classify --k 100", &all, append([]string{"classify", "--json", "--k", "100", "--image", image}, m...)...) {
+	all := &r.all
+	if try("classify --k 100", all, append([]string{"classify", "--json", "--k", "100", "--image", image}, m...)...) {
 		sum := 0.0
 		for _, p := range all.Top {
 			sum += p.Probability
@@ -689,9 +755,57 @@ func tpExercise(t *testing.T, path string, probe string, image string, fails boo
 		}
 	}
 	try("occlude", &r.occ, append([]string{"occlude", "--json", "--image", image}, m...)...)
-	try("scan", nil, append([]string{"scan", "--json", "--probe", probe}, m...)...)
-	try("report", nil, append([]string{"report", "--image", image, "--out", filepath.Join(out, "report.png")}, m...)...)
+	if try("scan", &r.scan, append([]string{"scan", "--json", "--probe", probe}, m...)...) {
+		checkScanDoc(t, base, &r.scan, probe)
+	}
+	report := filepath.Join(out, "report.png")
+	if try("report", nil, append([]string{"report", "--image", image, "--out", report}, m...)...) {
+		// One A4 page at 150 dpi: 210 × 297 mm (ISO 216) is 1240 × 1754
+		// pixels (210/25.4·150 = 1240.2, 297/25.4·150 = 1753.9).
+		if pg := readPNG(t, report); pg.Bounds().Dx() != 1240 || pg.Bounds().Dy() != 1754 {
+			t.Errorf("%s report: page %v, want 1240×1754 (A4 at 150 dpi)", base, pg.Bounds())
+		}
+	}
 	return r
+}
+
+// checkScanDoc checks a scan's JSON against the README's definitions: one
+// entry per probe image read, each channel's firing fraction in 0..1 and a
+// multiple of 1/images, "dead" exactly when it never fired, "rare" exactly
+// when it fired on fewer than 1 % of the images but did fire, the mean
+// activation at most the largest, flags from the documented set.
+func checkScanDoc(t *testing.T, base string, d *scanDoc, probe string) {
+	t.Helper()
+	files, _ := filepath.Glob(filepath.Join(probe, "*.png"))
+	if d.Images != len(files) || len(d.Layers) == 0 {
+		t.Errorf("%s scan: %d images and %d layers, want %d images", base, d.Images, len(d.Layers), len(files))
+		return
+	}
+	known := map[string]bool{"dead": true, "rare": true, "constant": true, "zero_kernel": true, "duplicate": true, "not_finite": true}
+	for _, l := range d.Layers {
+		for _, c := range l.Channels {
+			has := map[string]bool{}
+			for _, f := range c.Flags {
+				if !known[f] {
+					t.Errorf("%s scan %s channel %d: unknown flag %q", base, l.Name, c.Index, f)
+				}
+				has[f] = true
+			}
+			k := c.Fires * float64(d.Images)
+			if c.Fires < 0 || c.Fires > 1 || math.Abs(k-math.Round(k)) > 1e-9 {
+				t.Errorf("%s scan %s channel %d: fires %v is not a fraction of %d images", base, l.Name, c.Index, c.Fires, d.Images)
+			}
+			if has["not_finite"] {
+				continue
+			}
+			if has["dead"] != (c.Fires == 0) || has["rare"] != (c.Fires > 0 && c.Fires < 0.01) {
+				t.Errorf("%s scan %s channel %d: fires %v with flags %v", base, l.Name, c.Index, c.Fires, c.Flags)
+			}
+			if c.Mean > c.Max+1e-6*math.Abs(c.Max) {
+				t.Errorf("%s scan %s channel %d: mean %v above max %v", base, l.Name, c.Index, c.Mean, c.Max)
+			}
+		}
+	}
 }
 
 func TestCLIThirdPartyModels(t *testing.T) {
@@ -709,7 +823,7 @@ func TestCLIThirdPartyModels(t *testing.T) {
 			if err := b.Write(path); err != nil {
 				t.Fatal(err)
 			}
-			r := tpExercise(t, path, probe, images[0], tm.fails)
+			r := tpExercise(t, path, probe, images[0], tm.wantFor)
 			r.b = b
 			if tm.check != nil && !t.Failed() {
 				tm.check(t, r)
@@ -729,8 +843,11 @@ func tpNew(opset int64) *onnxbuild.Builder {
 
 // The PyTorch-exported conformance models (Debian libonnx-testdata) that
 // take one 4-D float input: single layers with fixed batch 2 and tiny or
-// odd sizes, whose output is a feature map rather than class scores. Every
-// subcommand must finish with exit 0 or a one-line exit 2 naming the file.
+// odd sizes, whose output is a feature map rather than class scores. Which
+// commands must succeed on each is decided from the model file itself, read
+// with the protobuf types (conformanceWant), and the successful runs'
+// output is decoded: classify lists every value of the stored expected
+// output's per-image shape (the conformance data's output_0.pb) as a class.
 func TestCLIConformanceModels(t *testing.T) {
 	startRuntime(t)
 	probe, images := tpImages(t)
@@ -738,7 +855,7 @@ func TestCLIConformanceModels(t *testing.T) {
 	if len(files) == 0 {
 		t.Fatalf("no conformance models under %s (Debian package libonnx-testdata; `make test` installs it)", conformanceDir)
 	}
-	n := 0
+	n, ran := 0, 0
 	for _, f := range files {
 		m, err := modelio.Open(f)
 		if err != nil || m.Image == nil {
@@ -755,12 +872,116 @@ func TestCLIConformanceModels(t *testing.T) {
 		}
 		n++
 		t.Run(filepath.Base(filepath.Dir(f)), func(t *testing.T) {
-			tpExercise(t, f, probe, images[0], true)
+			want, classes := conformanceWant(t, f)
+			r := tpExercise(t, f, probe, images[0], want)
+			if r.codes["classify --k 100"] == exitOK {
+				ran++
+				if len(r.all.Top) != min(100, classes) {
+					t.Errorf("classify --k 100: %d rows, want min(100, %d) (the expected output's values per image)", len(r.all.Top), classes)
+				}
+			}
 		})
 	}
 	if n < 20 {
 		t.Errorf("only %d conformance models with one 4-D float input, expected about 30", n)
 	}
+	if ran < 10 {
+		t.Errorf("only %d conformance models ran: the expectations decide little", ran)
+	}
+}
+
+// conformanceWant decides from the file alone (the ONNX protobuf, not
+// modelio) which commands must succeed on a conformance model, and returns
+// the number of values per image of its stored expected output:
+//
+//   - layers always (any valid model);
+//   - filters when a Conv reads the graph input (README: the filters are the
+//     first layer's, the Conv reading the image);
+//   - the commands that run the model when the input has 1 or 3 channels
+//     (README: colour or luminance pictures) and no node needs a kernel ONNX
+//     Runtime does not have: AveragePool, BatchNormalization and PRelu
+//     before opset 7 (ONNX Runtime's OperatorKernels.md registers them from
+//     version 7; from memory, and the runtime here says "Could not find an
+//     implementation" for them);
+//   - scan besides needs a ReLU-like activation (README: the channels after
+//     an activation; the scan reads Relu, LeakyRelu, Clip and the like).
+func conformanceWant(t *testing.T, path string) (tpWant, int) {
+	t.Helper()
+	raw, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var pb onnxpb.ModelProto
+	if err := proto.Unmarshal(raw, &pb); err != nil {
+		t.Fatalf("%s: %v", path, err)
+	}
+	g := pb.GetGraph()
+	opset := int64(0)
+	for _, o := range pb.GetOpsetImport() {
+		if o.GetDomain() == "" || o.GetDomain() == "ai.onnx" {
+			opset = o.GetVersion()
+		}
+	}
+	inits := map[string]bool{}
+	for _, i := range g.GetInitializer() {
+		inits[i.GetName()] = true
+	}
+	var input *onnxpb.ValueInfoProto
+	for _, v := range g.GetInput() {
+		if !inits[v.GetName()] {
+			input = v
+		}
+	}
+	dims := input.GetType().GetTensorType().GetShape().GetDim()
+	if len(dims) != 4 {
+		t.Fatalf("%s: input %q has %d dims", path, input.GetName(), len(dims))
+	}
+	channels := dims[1].GetDimValue()
+	runs := channels == 1 || channels == 3
+	convReads, reluLike := false, false
+	for _, nd := range g.GetNode() {
+		switch nd.GetOpType() {
+		case "AveragePool", "BatchNormalization", "PRelu":
+			if opset < 7 {
+				runs = false
+			}
+		case "Conv":
+			if len(nd.GetInput()) > 0 && nd.GetInput()[0] == input.GetName() {
+				convReads = true
+			}
+		case "Relu", "LeakyRelu", "Clip":
+			reluLike = true
+		}
+	}
+	var out onnxpb.TensorProto
+	b, err := os.ReadFile(filepath.Join(filepath.Dir(path), "test_data_set_0", "output_0.pb"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := proto.Unmarshal(b, &out); err != nil {
+		t.Fatalf("%s: expected output: %v", path, err)
+	}
+	classes := 1
+	for _, d := range out.GetDims()[1:] {
+		classes *= int(d)
+	}
+	code := func(ok bool) int {
+		if ok {
+			return exitOK
+		}
+		return exitUsage
+	}
+	return func(what string) int {
+		switch what {
+		case "layers":
+			return exitOK
+		case "filters":
+			return code(convReads)
+		case "scan":
+			return code(runs && reluLike)
+		}
+		return code(runs)
+	}, classes
 }
 
 const conformanceDir = "/usr/share/libonnx-testdata/data"

@@ -8,26 +8,46 @@ import (
 	"time"
 )
 
-// duplicatesSlow is the obviously correct reference for [Duplicates]: the
-// cosine of every pair of non-zero filters in full, float64.
+// duplicatesSlow is the obviously correct reference for [Duplicates], on its
+// own: the documented rule written out from its definition, sharing no code
+// with the package. A filter is zero when its largest |weight| is 0 or at
+// most 1e-6 of the layer's largest (the documented zero_kernel rule) and
+// pairs with nothing; every other pair's cosine similarity, the dot product
+// over the product of the L2 norms, all in float64, must exceed 0.95. The
+// kernels are validated here the same way: a shape that does not match the
+// data, or a weight that is not finite, gives nil.
 func duplicatesSlow(k *Kernels) []Pair {
-	if k.Check() != nil {
+	if k == nil || k.M <= 0 || k.C <= 0 || k.KH <= 0 || k.KW <= 0 || k.M*k.C*k.KH*k.KW != len(k.W) {
 		return nil
 	}
 	per := k.C * k.KH * k.KW
-	norms := k.Norms()
-	zero := zeroFilters(k)
+	norm := make([]float64, k.M)
+	maxAbs := make([]float64, k.M)
+	layerMax := 0.0
+	for i := range k.M {
+		for _, v := range k.W[i*per : (i+1)*per] {
+			x := float64(v)
+			if math.IsNaN(x) || math.IsInf(x, 0) {
+				return nil
+			}
+			norm[i] += x * x
+			maxAbs[i] = math.Max(maxAbs[i], math.Abs(x))
+		}
+		norm[i] = math.Sqrt(norm[i])
+		layerMax = math.Max(layerMax, maxAbs[i])
+	}
+	zero := func(i int) bool { return maxAbs[i] == 0 || maxAbs[i] <= 1e-6*layerMax }
 	var out []Pair
 	for i := range k.M {
 		for j := i + 1; j < k.M; j++ {
-			if zero[i] || zero[j] {
+			if zero(i) || zero(j) {
 				continue
 			}
 			dot := 0.0
 			for t := range per {
 				dot += float64(k.W[i*per+t]) * float64(k.W[j*per+t])
 			}
-			if c := dot / (norms[i] * norms[j]); c > DuplicateCosine {
+			if c := dot / (norm[i] * norm[j]); c > 0.95 {
 				out = append(out, Pair{i, j, c})
 			}
 		}

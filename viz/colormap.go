@@ -14,13 +14,16 @@ import (
 // Sequential: lightness rises linearly from L = 0.33 (a deep blue-violet, not
 // black, so that it still separates from a dark background) to L = 0.93 (a
 // pale yellow, not white, so that it still separates from a light one); the
-// hue turns from 285° through blue, teal and green to 105°. The path is then
+// hue turns from 285° through blue, teal and green to 105°, and chroma is
+// 0.11 + 0.07t² along the path's parameter t in [0, 1] (every point clipped
+// to the sRGB gamut by lowering chroma at its lightness and hue). The path is then
 // re-sampled at equal OKLab distances so that equal steps of v are equal
 // perceived steps.
 //
 // Diverging: zero is a near-white neutral (L = 0.95, no chroma); negative
-// values go to a blue (L = 0.47, hue 255°), positive ones to a burnt orange
-// (L = 0.60, hue 55°); lightness and chroma change linearly with |v|. Blue against orange is the pair that viewers
+// values go to a blue (L = 0.47, C = 0.14, hue 255°), positive ones to a burnt
+// orange (L = 0.60, C = 0.145, hue 55°); lightness and chroma change linearly
+// with |v| (clipped to the gamut like Sequential). Blue against orange is the pair that viewers
 // with the common red–green deficiencies still tell apart, and the two ends
 // also differ in lightness, so that the sign stays readable in grey-scale
 // print and for blue–yellow deficiencies.

@@ -4,13 +4,16 @@ import (
 	"context"
 	"encoding/json"
 	"errors"
+	"fmt"
 	"image"
+	"image/color"
 	"math"
 	"os"
 	"path/filepath"
 	"slices"
 	"strings"
 	"sync"
+	"sync/atomic"
 	"testing"
 	"time"
 
@@ -167,35 +170,101 @@ func TestActivationsOneRun(t *testing.T) {
 
 // Jobs from several goroutines at once, with the settings changed meanwhile:
 // run under the race detector. Each job uses the settings in force when it
-// started.
+// started, whole: its picture and its probabilities are those of one
+// setting (the same setting for both, no mixture of one setting's resize
+// and another's mean), and that setting was in force at some moment between
+// the job's start and its end. Every setting has its own mean and alternates
+// crop and stretch on a 96×64 picture, so each run tells which it used; the
+// reference for each is a run with no other work going on.
 func TestConcurrentJobs(t *testing.T) {
 	w := demo(t, false)
-	img := demoImage(t, 1)
-	c, _ := w.Prep()
+	img := widePicture(demoImage(t, 1))
+	base, _ := w.Prep()
+	const nSet = 6
+	cfgs := make([]prep.Config, nSet)
+	refs := make([]*Classification, nSet)
+	for k := range cfgs {
+		c := base
+		c.Resize = []string{prep.ResizeCrop, prep.ResizeStretch}[k%2]
+		v := float32(k) * 0.05
+		c.Mean = [3]float32{v, v, v}
+		cfgs[k] = c
+		if err := w.SetPrep(c); err != nil {
+			t.Fatal(err)
+		}
+		r, err := w.Classify(t.Context(), img, 3)
+		if err != nil {
+			t.Fatal(err)
+		}
+		refs[k] = r
+	}
+	// which returns the setting whose reference run gave exactly this
+	// picture and these probabilities, or -1.
+	which := func(in *image.NRGBA, probs []float32) int {
+		for k, r := range refs {
+			if slices.Equal(in.Pix, r.Input.Pix) && slices.Equal(probs, r.Probs) {
+				return k
+			}
+		}
+		return -1
+	}
+	if err := w.SetPrep(cfgs[0]); err != nil {
+		t.Fatal(err)
+	}
+	// started counts the SetPrep calls begun, done those returned: a job
+	// that starts when done = d and ends when started = s must use a
+	// setting d..s.
+	var started, done atomic.Int32
 	var wg sync.WaitGroup
-	errs := make(chan error, 16)
-	for i := range 3 {
-		wg.Add(3)
+	errs := make(chan error, 64)
+	check := func(what string, d int32, in *image.NRGBA, probs []float32) {
+		s := started.Load()
+		if k := which(in, probs); k < 0 {
+			errs <- fmt.Errorf("%s: picture and probabilities match no single setting's run", what)
+		} else if int32(k) < d || int32(k) > s {
+			errs <- fmt.Errorf("%s: used setting %d, but settings %d..%d were in force while it ran", what, k, d, s)
+		}
+	}
+	for range 3 {
+		wg.Add(2)
 		go func() {
 			defer wg.Done()
-			_, err := w.Classify(t.Context(), img, 3)
-			errs <- err
+			for range 4 {
+				d := done.Load()
+				r, err := w.Classify(t.Context(), img, 3)
+				if err != nil {
+					errs <- err
+					return
+				}
+				check("Classify", d, r.Input, r.Probs)
+			}
 		}()
 		go func() {
 			defer wg.Done()
-			_, err := w.Activations(t.Context(), img)
-			errs <- err
-		}()
-		go func() {
-			defer wg.Done()
-			c2 := c
-			c2.Resize = []string{prep.ResizeCrop, prep.ResizeStretch}[i%2]
-			errs <- w.SetPrep(c2)
-			w.Prep()
-			w.Labels()
+			for range 2 {
+				d := done.Load()
+				a, err := w.Activations(t.Context(), img)
+				if err != nil {
+					errs <- err
+					return
+				}
+				check("Activations", d, a.Input, a.Class.Probs)
+			}
 		}()
 	}
-	wg.Add(1)
+	wg.Add(2)
+	go func() {
+		defer wg.Done()
+		for k := 1; k < nSet; k++ {
+			started.Store(int32(k))
+			if err := w.SetPrep(cfgs[k]); err != nil {
+				errs <- err
+			}
+			done.Store(int32(k))
+			w.Prep()
+			w.Labels()
+		}
+	}()
 	go func() {
 		defer wg.Done()
 		_, _, err := w.Occlude(t.Context(), img, viz.OcclusionSettings{Patch: 32, Stride: 32}, nil, nil)
@@ -208,6 +277,22 @@ func TestConcurrentJobs(t *testing.T) {
 			t.Error(err)
 		}
 	}
+}
+
+// widePicture puts img (64×64) in the middle of a 96×64 picture with a
+// coloured band on each side, so that crop and stretch give different inputs.
+func widePicture(img image.Image) *image.NRGBA {
+	out := image.NewNRGBA(image.Rect(0, 0, 96, 64))
+	for y := range 64 {
+		for x := range 96 {
+			if x < 16 || x >= 80 {
+				out.SetNRGBA(x, y, color.NRGBA{200, uint8(3 * y), 40, 255})
+			} else {
+				out.Set(x, y, img.At(img.Bounds().Min.X+x-16, img.Bounds().Min.Y+y))
+			}
+		}
+	}
+	return out
 }
 
 func TestOccludeMatchesLibrary(t *testing.T) {
@@ -261,21 +346,37 @@ func TestOccludeMatchesLibrary(t *testing.T) {
 	}
 }
 
-// A cancelled job returns promptly with the context's error.
+// A job cancelled while it runs returns the context's error and stops
+// promptly. In flight deterministically: the cancel comes from the job's
+// own first progress report (stride 1 over 64×64 is 3969 occluded runs, so
+// the first report comes long before the end); promptly: no progress is
+// reported after the one that cancelled beyond the batch then running, and
+// the job stops far short of the total (a job that ignored the context
+// would report every run).
 func TestCancel(t *testing.T) {
 	w := demo(t, false)
 	img := demoImage(t, 0)
 	ctx, cancel := context.WithCancel(t.Context())
-	go func() { time.Sleep(20 * time.Millisecond); cancel() }()
-	startAt := time.Now()
-	_, _, err := w.Occlude(ctx, img, viz.OcclusionSettings{Patch: 2, Stride: 1}, []int{0, 1, 2}, nil)
+	defer cancel()
+	var atCancel, last, total int
+	progress := func(done, all int) {
+		if done > 0 && atCancel == 0 {
+			atCancel = done
+			cancel()
+		}
+		last, total = done, all
+	}
+	_, _, err := w.Occlude(ctx, img, viz.OcclusionSettings{Patch: 2, Stride: 1}, []int{0, 1, 2}, progress)
 	if !errors.Is(err, context.Canceled) {
 		t.Fatalf("cancelled occlusion: %v", err)
 	}
-	// Stride 1 over 64×64 is 3969 runs; a job that ignored the context
-	// would take many seconds. 5 s is far above one batch.
-	if d := time.Since(startAt); d > 5*time.Second {
-		t.Errorf("cancellation took %v", d)
+	if atCancel == 0 || total == 0 {
+		t.Fatalf("no progress reported before the end (cancelled at %d of %d)", atCancel, total)
+	}
+	// One batch may finish after the cancel; a batch is far below half the
+	// runs (the session's batch for the 64×64 demo).
+	if last >= total || last-atCancel > total/2 {
+		t.Errorf("cancelled at %d of %d runs, went on to %d", atCancel, total, last)
 	}
 }
 

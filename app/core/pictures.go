@@ -32,7 +32,8 @@ func (a *Activations) MapLayer(name string) (modelio.Layer, modelio.Tensor, erro
 }
 
 // MapPicture draws the activation-map grid of one layer (viz.MapGrid) with
-// its colour legend under it, on a light page.
+// its colour legend under it, on a light page. Each ChannelStats.Rect says
+// where that channel's tile is in the returned picture.
 func (a *Activations) MapPicture(layer string, o viz.GridOptions) (*image.NRGBA, []viz.ChannelStats, error) {
 	l, t, err := a.MapLayer(layer)
 	if err != nil {
@@ -54,15 +55,24 @@ func (a *Activations) MapPicture(layer string, o viz.GridOptions) (*image.NRGBA,
 	if o.PerTile {
 		unit = "activation (each tile scaled to its own range)"
 	}
+	// The tiles move with the grid onto the page: Rect says where each is
+	// in the picture returned.
+	for i := range stats {
+		stats[i].Rect = stats[i].Rect.Add(image.Pt(legendMargin, legendMargin))
+	}
 	return withLegend(grid, lo, hi, unit, cmap), stats, nil
 }
 
-// legendHeight is the height of a horizontal colour bar with its labels.
-const legendHeight = 56
+// legendHeight is the height of a horizontal colour bar with its labels;
+// legendMargin the page's margin around the picture and the bar.
+const (
+	legendHeight = 56
+	legendMargin = 8
+)
 
 // withLegend puts pic on a light page with a horizontal colour bar under it.
 func withLegend(pic *image.NRGBA, lo, hi float64, unit string, cmap func(float64) color.NRGBA) *image.NRGBA {
-	const margin = 8
+	const margin = legendMargin
 	pw, ph := pic.Bounds().Dx(), pic.Bounds().Dy()
 	barW := max(240, min(pw, 480))
 	w := max(pw, barW) + 2*margin

@@ -8,6 +8,7 @@ import (
 
 	"fovea/modelio/classes"
 	"fovea/modelio/infer"
+	"fovea/modelio/prep"
 	"fovea/viz"
 )
 
@@ -29,15 +30,58 @@ type ReportInput struct {
 	Date       time.Time // printed on the page; zero = now
 }
 
-// Report composes the one-page picture (viz.Report): the image as the model
+// ReportContent is what a report page states, in the form `report --json`
+// prints: where the model, the labels and the settings came from (with
+// SHA-256 digests of the files, so a shared page can be traced to them) and
+// the numbers on the page.
+type ReportContent struct {
+	Model        string          `json:"model"`
+	ModelSHA256  string          `json:"sha256"` // hex SHA-256 of the model file's bytes
+	Image        string          `json:"image"`
+	Labels       string          `json:"labels"`                  // where the class names came from
+	LabelsSHA256 string          `json:"labels_sha256,omitempty"` // of the label file, when they came from one
+	Preprocess   prep.Config     `json:"preprocess"`
+	Top          []ReportClass   `json:"top"`
+	Expected     *ReportClass    `json:"expected"` // the class it should have been (--versus), or null
+	Occlusion    ReportOcclusion `json:"occlusion"`
+	Heatmaps     []ReportClass   `json:"heatmaps"` // the classes whose heatmaps the page shows, in order
+	Softmax      bool            `json:"softmax_applied"`
+	Runtime      string          `json:"runtime"`
+	Date         string          `json:"date"`
+}
+
+// ReportClass is one class on the page.
+type ReportClass struct {
+	Index       int     `json:"index"`
+	Label       string  `json:"label"`
+	Probability float64 `json:"probability"`
+}
+
+// ReportOcclusion is the occlusion settings the heatmaps were made with.
+type ReportOcclusion struct {
+	Patch  int    `json:"patch"`
+	Stride int    `json:"stride"`
+	Fill   string `json:"fill"`
+	Score  string `json:"score"`
+	Scored string `json:"scored"` // which output and how the score was read
+}
+
+// Report composes the one-page picture; see [Workspace.ReportPage].
+func (w *Workspace) Report(ctx context.Context, in ReportInput, progress func(done, total int)) (*image.NRGBA, error) {
+	page, _, err := w.ReportPage(ctx, in, progress)
+	return page, err
+}
+
+// ReportPage composes the one-page picture (viz.Report): the image as the model
 // saw it, the top-k predictions, the occlusion heatmaps of the predicted and
 // the expected class side by side on a shared scale with their legend, the
 // model's name, the preprocessing and occlusion settings, the date and the
 // caution that a heatmap is evidence about one model on one image, not
 // proof. progress follows the occlusion run when one is needed.
-func (w *Workspace) Report(ctx context.Context, in ReportInput, progress func(done, total int)) (*image.NRGBA, error) {
+// It also returns what the page states (ReportContent).
+func (w *Workspace) ReportPage(ctx context.Context, in ReportInput, progress func(done, total int)) (*image.NRGBA, *ReportContent, error) {
 	if in.Image == nil {
-		return nil, inputf(in.ImageName, "no image for the report")
+		return nil, nil, inputf(in.ImageName, "no image for the report")
 	}
 	k := in.K
 	if k <= 0 {
@@ -47,7 +91,7 @@ func (w *Workspace) Report(ctx context.Context, in ReportInput, progress func(do
 	_, labelsFrom := w.Labels()
 	cl, err := w.Classify(ctx, in.Image, k)
 	if err != nil {
-		return nil, err
+		return nil, nil, err
 	}
 	occ := in.Occlusions
 	if len(occ) == 0 {
@@ -67,7 +111,7 @@ func (w *Workspace) Report(ctx context.Context, in ReportInput, progress func(do
 			targets = append(targets, in.Versus)
 		}
 		if occ, _, err = w.Occlude(ctx, in.Image, in.Occlusion, targets, progress); err != nil {
-			return nil, err
+			return nil, nil, err
 		}
 	}
 	set := occ[0].OcclusionSettings
@@ -122,7 +166,29 @@ func (w *Workspace) Report(ctx context.Context, in ReportInput, progress func(do
 		}
 	}
 	settings = append(settings, "softmax        "+softmaxNote(cl), "runtime        ONNX Runtime "+infer.Version())
-	return viz.Report(viz.ReportInput{
+	content := &ReportContent{
+		Model: w.Model.Name, ModelSHA256: w.Hash, Image: name, Labels: labelsFrom,
+		Preprocess: cfg, Softmax: !cl.Softmaxed, Runtime: "ONNX Runtime " + infer.Version(),
+		Date:      date.Format("2006-01-02"),
+		Occlusion: ReportOcclusion{Patch: set.Patch, Stride: set.Stride, Fill: string(set.Fill), Score: occ[0].Unit(), Scored: occ[0].SourceNote},
+	}
+	if sum, err := prep.HashFile(labelsFrom); err == nil {
+		content.LabelsSHA256 = sum
+	}
+	for _, p := range cl.Top {
+		content.Top = append(content.Top, ReportClass{Index: p.Index, Label: className(labels, p.Index), Probability: p.Probability})
+	}
+	if in.Versus >= 0 {
+		c := ReportClass{Index: in.Versus, Label: className(labels, in.Versus)}
+		if in.Versus < len(cl.Probs) {
+			c.Probability = float64(cl.Probs[in.Versus])
+		}
+		content.Expected = &c
+	}
+	for _, o := range occ {
+		content.Heatmaps = append(content.Heatmaps, ReportClass{Index: o.Target, Label: className(labels, o.Target), Probability: o.Probability})
+	}
+	page := viz.Report(viz.ReportInput{
 		Image:     Enlarge(cl.Input, factor),
 		TopK:      withNames(cl.Top, labels),
 		Expected:  expected,
@@ -131,7 +197,8 @@ func (w *Workspace) Report(ctx context.Context, in ReportInput, progress func(do
 		ModelName: w.Model.Name,
 		Settings:  settings,
 		Date:      date.Format("2006-01-02"),
-	}), nil
+	})
+	return page, content, nil
 }
 
 // className is the label of class i, or "class i" when there is none.

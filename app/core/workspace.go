@@ -44,6 +44,7 @@ type Workspace struct {
 	sessions   [kinds]*infer.Session // by kind, made on first use
 	retired    []*infer.Session      // replaced after a change of input size; closed by Close
 	observed   bool
+	output     string // the output holding the class scores, when named (SetOutput)
 }
 
 // OpenModel reads and checks the ONNX file at path and proposes
@@ -136,6 +137,46 @@ func (w *Workspace) SetPrep(c prep.Config) error {
 	return nil
 }
 
+// SetOutput names the model output that holds the class scores (the
+// command line's --output), instead of the model's own choice
+// (modelio.Model.ScoreOutput). The name must be one of the model's outputs;
+// sessions already made are retired like after a change of input size.
+func (w *Workspace) SetOutput(name string) error {
+	names := make([]string, len(w.Model.Outputs))
+	for i, o := range w.Model.Outputs {
+		names[i] = o.Name
+	}
+	if !slices.Contains(names, name) {
+		return inputf(w.Model.Name, "no output named %q to read the scores from (outputs: %s)", name, strings.Join(names, ", "))
+	}
+	w.mu.Lock()
+	defer w.mu.Unlock()
+	for i, s := range w.sessions {
+		if s != nil {
+			w.retired = append(w.retired, s)
+			w.sessions[i] = nil
+		}
+	}
+	w.output = name
+	return nil
+}
+
+// ScoreOutput is the name of the output the class scores are read from and
+// why: named by SetOutput, or chosen by modelio.Model.ScoreOutput.
+func (w *Workspace) ScoreOutput() (name, why string) {
+	w.mu.Lock()
+	out := w.output
+	w.mu.Unlock()
+	if out != "" {
+		return out, "named by --output"
+	}
+	if len(w.Model.Outputs) == 0 {
+		return "", ""
+	}
+	i, why := w.Model.ScoreOutput()
+	return w.Model.Outputs[i].Name, why
+}
+
 // dims are the per-image input dimensions for c in the model's layout
 // (infer.Options.Dims).
 func dims(m *modelio.Model, c prep.Config) []int64 {
@@ -225,8 +266,8 @@ func (w *Workspace) Labels() ([]string, string) {
 }
 
 // Classes is the number of scores the model gives one image, in the output
-// infer reads them from (Result.Score: the first output with exactly one
-// dimension above 1 after the batch, else the first output): the product of
+// infer reads them from (ScoreOutput: named by SetOutput or chosen by
+// modelio.Model.ScoreOutput): the product of
 // that output's dimensions after the batch, as Result.Scores returns them.
 // A convolutional head's [N,10,1,1] scores 10 classes, a [N,10] output 10,
 // an output without a batch axis ([10]) 10. 0 when the dimensions that
@@ -238,24 +279,18 @@ func (w *Workspace) Classes() int {
 		}
 		return s[1:]
 	}
-	pick := -1
-	for j, o := range w.Model.Outputs {
-		big := 0
-		for _, d := range perImage(o.Shape) {
-			if d.Size < 0 {
-				return 0 // the run decides whether this output holds the scores
-			}
-			if d.Size > 1 {
-				big++
-			}
-		}
-		if big == 1 {
-			pick = j
-			break
-		}
+	if len(w.Model.Outputs) == 0 {
+		return 0
 	}
+	name, _ := w.ScoreOutput()
+	pick := slices.IndexFunc(w.Model.Outputs, func(o modelio.Value) bool { return o.Name == name })
 	if pick < 0 {
-		pick = 0
+		return 0
+	}
+	for _, d := range perImage(w.Model.Outputs[pick].Shape) {
+		if d.Size < 0 {
+			return 0 // the run decides
+		}
 	}
 	sh := perImage(w.Model.Outputs[pick].Shape)
 	if len(sh) == 0 {
@@ -348,6 +383,7 @@ func (w *Workspace) sessionLocked(k kind) (*infer.Session, error) {
 	case scanRun:
 		opt = analysis.ScanSession(w.Model, opt.Dims)
 	}
+	opt.Output = w.output
 	if *slot == nil {
 		weights := 0
 		for _, in := range w.Model.Inputs {

@@ -664,20 +664,23 @@ func TestOwnModelSettingsAreRemembered(t *testing.T) {
 	}
 	v := u.vModel
 	v.mean.SetText("0.5, 0.5, 0.5")
+	// A typed crop:S (shorter side to 72, then the 64×64 centre) is a setting
+	// of the window like a chosen one.
+	v.resize.SetText("Crop:72")
 	u.do(func() { test.Tap(v.apply) })
 	u.wait()
 	c, from := u.ws.Prep()
-	if c.Mean != [3]float32{0.5, 0.5, 0.5} || from != core.FromChosen || u.errShown > 0 {
-		t.Fatalf("after Apply the mean is %v (%s), errors %d: %s", c.Mean, from, u.errShown, dialogText(u))
+	if c.Mean != [3]float32{0.5, 0.5, 0.5} || c.Resize != "crop:72" || from != core.FromChosen || u.errShown > 0 {
+		t.Fatalf("after Apply the mean is %v, resize %q (%s), errors %d: %s", c.Mean, c.Resize, from, u.errShown, dialogText(u))
 	}
 	u.do(func() { u.openModel(path) })
 	u.wait()
 	c, from = u.ws.Prep()
-	if c.Mean != [3]float32{0.5, 0.5, 0.5} || from != core.FromSaved {
-		t.Errorf("opened again, the mean is %v from %q, want 0.5 from saved settings", c.Mean, from)
+	if c.Mean != [3]float32{0.5, 0.5, 0.5} || c.Resize != "crop:72" || from != core.FromSaved {
+		t.Errorf("opened again, the mean is %v, resize %q from %q, want 0.5 and crop:72 from saved settings", c.Mean, c.Resize, from)
 	}
-	if !strings.Contains(v.prepFrom.Text, core.FromSaved) || v.mean.Text != "0.5, 0.5, 0.5" {
-		t.Errorf("the Model view shows %q and mean %q", v.prepFrom.Text, v.mean.Text)
+	if !strings.Contains(v.prepFrom.Text, core.FromSaved) || v.mean.Text != "0.5, 0.5, 0.5" || v.resize.Text != "crop:72" {
+		t.Errorf("the Model view shows %q, mean %q, resize %q", v.prepFrom.Text, v.mean.Text, v.resize.Text)
 	}
 
 	// A setting the model cannot take is refused with a dialog and changes

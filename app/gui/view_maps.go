@@ -27,6 +27,7 @@ type mapsView struct {
 	grid    *picture
 	overlay *picture
 	stats   *widget.Label
+	tiles   []viz.ChannelStats // each channel's tile in the grid picture
 
 	layers []modelio.Layer // the layers with maps, in the select's order
 	quiet  bool
@@ -120,6 +121,7 @@ func (v *mapsView) draw() {
 	v.grid.set(nil)
 	v.overlay.set(nil)
 	v.stats.SetText("")
+	v.tiles = nil
 	l, ok := v.current()
 	switch {
 	case u.ws == nil:
@@ -164,6 +166,7 @@ func (v *mapsView) draw() {
 		return
 	}
 	v.grid.set(pic)
+	v.tiles = stats
 	v.stats.SetText(statsText(stats))
 
 	chans := make([]string, len(stats))

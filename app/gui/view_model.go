@@ -37,7 +37,7 @@ type modelView struct {
 	mean     *widget.Entry
 	std      *widget.Entry
 	layout   *widget.Select
-	resize   *widget.Select
+	resize   *widget.SelectEntry // a choice or a typed crop:S
 	bg       *widget.Entry
 	apply    *widget.Button
 
@@ -53,7 +53,9 @@ var (
 	orderChoices   = []string{"RGB", "BGR"}
 	rangeChoices   = []string{prep.RangeUnit, prep.RangeByte, prep.RangeSigned}
 	layoutChoices  = []string{"nchw", "nhwc"}
-	resizeChoices  = []string{"stretch", "crop"}
+	// crop:256 is the common evaluation pipeline for 224-pixel inputs (shorter
+	// side to 256, centre cut); any crop:S can be typed.
+	resizeChoices = []string{prep.ResizeStretch, prep.ResizeCrop, "crop:256"}
 )
 
 func newModelView(u *ui) *modelView {
@@ -85,7 +87,7 @@ func newModelView(u *ui) *modelView {
 	v.mean = widget.NewEntry()
 	v.std = widget.NewEntry()
 	v.layout = widget.NewSelect(layoutChoices, nil)
-	v.resize = widget.NewSelect(resizeChoices, nil)
+	v.resize = widget.NewSelectEntry(resizeChoices)
 	v.bg = widget.NewEntry()
 	v.prepFrom = note("")
 	v.apply = widget.NewButtonWithIcon("Apply and remember", theme.ConfirmIcon(), v.applyPrep)
@@ -107,6 +109,7 @@ func newModelView(u *ui) *modelView {
 	v.mean.SetPlaceHolder("r, g, b")
 	v.std.SetPlaceHolder("r, g, b")
 	v.bg.SetPlaceHolder("#rrggbb (shows through transparency)")
+	v.resize.SetPlaceHolder("stretch, crop or crop:S (shorter side to S, then the centre)")
 
 	v.labelsFrom = note("")
 	v.labels = widget.NewMultiLineEntry()
@@ -254,7 +257,7 @@ func (v *modelView) refresh() {
 	v.mean.SetText(triple(c.Mean))
 	v.std.SetText(triple(c.Std))
 	v.layout.SetSelected(c.Layout)
-	v.resize.SetSelected(c.Resize)
+	v.resize.SetText(c.Resize)
 	v.bg.SetText(fmt.Sprintf("#%02x%02x%02x", c.Background.R, c.Background.G, c.Background.B))
 
 	labels, lfrom := ws.Labels()
@@ -319,7 +322,7 @@ func (v *modelView) applyPrep() {
 		{"mean", v.mean.Text},
 		{"std", v.std.Text},
 		{"layout", v.layout.Selected},
-		{"resize", v.resize.Selected},
+		{"resize", v.resize.Text},
 		{"background", v.bg.Text},
 	}
 	for _, f := range fields {

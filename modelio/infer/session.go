@@ -45,6 +45,11 @@ type Options struct {
 	// in the middle of an operator makes the other spin longer. Left off,
 	// a lone run is a little faster.
 	NoSpin bool
+	// Output names the model output that holds the class scores
+	// (Result.Score); "" lets the model decide (modelio.Model.ScoreOutput:
+	// by shape, by which output is computed from which, by name). A name
+	// that is not a float32 output of the model is an error of NewSession.
+	Output string
 }
 
 // Limits that keep a run away from sizes that only a broken or hostile
@@ -85,6 +90,8 @@ type Session struct {
 	nOut     int            // how many of names are model outputs
 	capIndex map[string]int // captured name -> index in names
 	dropped  []string       // model outputs left out, with the reason
+	score    string         // the output holding the class scores ("": by shape at run time)
+	scoreSet bool           // score was named by Options.Output: used whatever its shape
 
 	// Learned from the first run of each chunk size: the raw shape of every
 	// returned tensor. With them the next runs of that size get
@@ -96,6 +103,11 @@ type Session struct {
 	estBytes int64     // estimated result bytes per image before the first run
 	work     int64     // estimated working bytes per image inside the runtime
 	pad      []float32 // zero-padded input chunk for a batch fixed above 1
+
+	// execHook, when set (by tests only), is called with the run's context
+	// just before each runtime run, after the terminate flag is armed: a
+	// test can cancel there and know the run is in flight.
+	execHook func(ctx context.Context)
 }
 
 // NewSession opens m in ONNX Runtime (Init must have succeeded). With
@@ -142,6 +154,14 @@ func NewSession(m *modelio.Model, opt Options) (*Session, error) {
 		return nil, fmt.Errorf("infer: %s: no float32 output (outputs: %s)", file, strings.Join(s.dropped, ", "))
 	}
 	s.nOut = len(s.names)
+	if opt.Output != "" {
+		if !slices.Contains(s.names[:s.nOut], opt.Output) {
+			return nil, fmt.Errorf("infer: %s: no float32 output named %q to read the scores from (outputs: %s)", file, opt.Output, strings.Join(s.names[:s.nOut], ", "))
+		}
+		s.score, s.scoreSet = opt.Output, true
+	} else if i, _ := m.ScoreOutput(); i < len(m.Outputs) {
+		s.score = m.Outputs[i].Name
+	}
 	var extra []string
 	for _, c := range opt.Capture {
 		if _, dup := s.capIndex[c]; dup {
@@ -662,7 +682,7 @@ func (s *Session) result(n int, dst *Result) *Result {
 	for name, j := range s.capIndex {
 		res.Maps[name] = ts[j]
 	}
-	res.Score = scoreIndex(res.Outputs)
+	res.Score = s.scoreIndex(res.Outputs)
 	if dst != nil {
 		*dst = *res
 		return dst
@@ -727,6 +747,9 @@ func (s *Session) execOn(ctx context.Context, sess *ort.DynamicAdvancedSession, 
 		defer close(fired)
 		_ = s.runOpt.Terminate()
 	})
+	if s.execHook != nil {
+		s.execHook(ctx)
+	}
 	err := sess.RunWithOptions(in, out, s.runOpt)
 	if !stop() {
 		<-fired

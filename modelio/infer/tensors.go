@@ -84,7 +84,7 @@ func (s *Session) RunTensors(ctx context.Context, in []modelio.Tensor) (*Result,
 	for name, j := range s.capIndex {
 		res.Maps[name] = ts[j]
 	}
-	res.Score = scoreIndex(res.Outputs)
+	res.Score = s.scoreIndex(res.Outputs)
 	return res, nil
 }
 

@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"image/color"
 	"math"
+	"strconv"
 	"strings"
 )
 
@@ -14,7 +15,7 @@ import (
 type Config struct {
 	Width, Height int         // input size in pixels
 	Channels      int         // 3 (colour) or 1 (luminance, ITU-R BT.601)
-	Resize        string      // "stretch": whole picture to Width×Height; "crop": shorter side to size, centre cropped
+	Resize        string      // "stretch": whole picture to Width×Height; "crop": shorter side to size, centre cut; "crop:S": shorter side to S, centre cut
 	Range         string      // value range before mean/std: "0-1", "0-255" or "-1-1"
 	Mean, Std     [3]float32  // per tensor channel (so in B,G,R order when BGR), applied as (v - Mean)/Std
 	BGR           bool        // channel order blue, green, red instead of red, green, blue
@@ -26,11 +27,15 @@ type Config struct {
 const (
 	ResizeStretch = "stretch"
 	ResizeCrop    = "crop"
-	RangeUnit     = "0-1"
-	RangeByte     = "0-255"
-	RangeSigned   = "-1-1"
-	LayoutNCHW    = "nchw"
-	LayoutNHWC    = "nhwc"
+	// ResizeCropPrefix starts "crop:S": the shorter side scaled to S pixels,
+	// then Width×Height cut from the centre (S = 256 for a 224 input is the
+	// common evaluation pipeline); see [CropSide].
+	ResizeCropPrefix = "crop:"
+	RangeUnit        = "0-1"
+	RangeByte        = "0-255"
+	RangeSigned      = "-1-1"
+	LayoutNCHW       = "nchw"
+	LayoutNHWC       = "nhwc"
 )
 
 // MaxSide is the largest Width or Height a Config may ask for. Real classifiers take a
@@ -64,8 +69,12 @@ func (c Config) Validate() error {
 	if c.Channels != 1 && c.Channels != 3 {
 		bad("%d channels: only 3 (colour) or 1 (luminance) are supported", c.Channels)
 	}
-	if c.Resize != ResizeStretch && c.Resize != ResizeCrop {
-		bad("resize %q: use %q or %q", c.Resize, ResizeStretch, ResizeCrop)
+	if s, ok := cropSide(c.Resize); ok {
+		if s < max(c.Width, c.Height) || s > MaxSide {
+			bad("resize %q: S must be at least the input's longer side (%d) and at most %d", c.Resize, max(c.Width, c.Height), MaxSide)
+		}
+	} else if c.Resize != ResizeStretch && c.Resize != ResizeCrop {
+		bad("resize %q: use %q, %q or %q", c.Resize, ResizeStretch, ResizeCrop, ResizeCropPrefix+"S")
 	}
 	if c.Range != RangeUnit && c.Range != RangeByte && c.Range != RangeSigned {
 		bad("range %q: use %q, %q or %q", c.Range, RangeUnit, RangeByte, RangeSigned)
@@ -144,3 +153,24 @@ func (c Config) Shape(n int) []int64 {
 
 // Len is the number of values of one image's tensor: Channels×Height×Width.
 func (c Config) Len() int { return c.Channels * c.Height * c.Width }
+
+// CropSide returns S of a "crop:S" resize setting, and 0 for any other value
+// (including a malformed one, which [Config.Validate] reports).
+func CropSide(resize string) int {
+	s, _ := cropSide(resize)
+	return s
+}
+
+// cropSide reads "crop:S"; ok says resize has the prefix (S may still be out
+// of range, or 0 when it is not a number).
+func cropSide(resize string) (s int, ok bool) {
+	rest, ok := strings.CutPrefix(resize, ResizeCropPrefix)
+	if !ok {
+		return 0, false
+	}
+	n, err := strconv.Atoi(rest)
+	if err != nil || n < 1 {
+		return 0, true
+	}
+	return n, true
+}

@@ -29,7 +29,9 @@ func TestValidateMessages(t *testing.T) {
 		{func(c *Config) { c.Width = 0 }, []string{"input size 0x224", "1..4096"}},
 		{func(c *Config) { c.Height = 100000 }, []string{"224x100000"}},
 		{func(c *Config) { c.Channels = 4 }, []string{"4 channels", "3 (colour) or 1 (luminance)"}},
-		{func(c *Config) { c.Resize = "fit" }, []string{`resize "fit"`, `"stretch" or "crop"`}},
+		{func(c *Config) { c.Resize = "fit" }, []string{`resize "fit"`, `"stretch", "crop" or "crop:S"`}},
+		{func(c *Config) { c.Resize = "crop:200" }, []string{`resize "crop:200"`, `at least the input's longer side (224)`}},
+		{func(c *Config) { c.Resize = "crop:x" }, []string{`resize "crop:x"`, `at least the input's longer side`}},
 		{func(c *Config) { c.Range = "0-100" }, []string{`range "0-100"`, `"0-1", "0-255" or "-1-1"`}},
 		{func(c *Config) { c.Layout = "chw" }, []string{`layout "chw"`}},
 		{func(c *Config) { c.Std[1] = 0 }, []string{"std[1] is 0", "positive"}},
@@ -159,6 +161,14 @@ func TestParseHelpers(t *testing.T) {
 	}
 	if r, err := ParseResize("Crop"); err != nil || r != ResizeCrop {
 		t.Errorf("ParseResize(Crop) = %q, %v", r, err)
+	}
+	if r, err := ParseResize(" Crop:0256 "); err != nil || r != "crop:256" {
+		t.Errorf("ParseResize(Crop:0256) = %q, %v, want crop:256", r, err)
+	}
+	for _, bad := range []string{"crop:", "crop:0", "crop:-5", "crop:4097", "crop:2.5", "crop256"} {
+		if r, err := ParseResize(bad); err == nil {
+			t.Errorf("ParseResize(%q) = %q, want an error", bad, r)
+		}
 	}
 	if _, err := ParseResize("fill"); err == nil {
 		t.Error("ParseResize(fill) accepted")

@@ -19,11 +19,20 @@ var resample = imaging.Linear
 //   - transparent pixels are composited over c.Background (straight or premultiplied
 //     alpha, as the image's colour model says);
 //   - Resize "stretch" scales the whole picture to Width×Height, ignoring its aspect ratio;
-//     Resize "crop" keeps the largest centred part with the aspect ratio Width:Height
-//     (the shorter side scaled to size, the longer one centre-cropped) and scales that.
+//   - Resize "crop" scales the picture just enough to cover Width×Height (for a square
+//     input: the shorter side to the input's side, the longer one to floor(side·long/short))
+//     and cuts Width×Height from the centre: torchvision's Resize(224) then
+//     CenterCrop(224) for a 224×224 input;
+//   - Resize "crop:S" scales the shorter side to S (the longer one to floor(S·long/short))
+//     and cuts Width×Height from the centre: torchvision's Resize(S) then CenterCrop.
 //
-// Cropping comes first, so a 10000×20 strip costs a 20×20 crop, not a 112000×224 resize;
-// no side ever rounds to 0. The result's Rect starts at (0, 0); img is not modified.
+// Both crops use Pillow's bilinear arithmetic (see resizeWindow), so they give the
+// pixels torchvision gives a PIL image (a test compares them), and compute only the
+// window they keep: a 10000×20 strip costs a 224×224 window, not a 112000×224 resize.
+// Stretch uses imaging's antialiased bilinear filter, within one 8-bit level of
+// torchvision's Resize((H, W)). No side ever rounds to 0. The result's Rect starts
+// at (0, 0); img is not modified.
+//
 // Fit panics when c's size is outside 1..MaxSide or img is empty: both are mistakes of
 // the caller ([Load] never returns an empty image, [Config.Validate] checks the size).
 func Fit(img image.Image, c Config) *image.NRGBA {
@@ -34,10 +43,17 @@ func Fit(img image.Image, c Config) *image.NRGBA {
 	if b.Empty() {
 		panic(fmt.Sprintf("prep: Fit of an empty image (bounds %v)", b))
 	}
-	r := b
-	if c.Resize == ResizeCrop {
-		r = cropRect(b, c.Width, c.Height)
+	if s := CropSide(c.Resize); s > 0 || c.Resize == ResizeCrop {
+		rw, rh := scaledSize(b.Dx(), b.Dy(), c.Width, c.Height, s)
+		win := centreWindow(rw, rh, c.Width, c.Height)
+		if rw == b.Dx() && rh == b.Dy() {
+			// Nothing to resize (the filter's taps would copy each pixel):
+			// only the cut.
+			return flatten(img, win.Add(b.Min), c.Background)
+		}
+		return resizeWindow(img, b, c.Background, rw, rh, win)
 	}
+	r := b
 	if r.Dx() > c.Width && r.Dy() > bandRows {
 		// Shrinking a wide picture: flatten and narrow it band by band, so that a
 		// 24-megapixel photo never exists as a whole opaque copy.
@@ -66,21 +82,6 @@ func narrow(img image.Image, r image.Rectangle, bg color.NRGBA, w int) *image.NR
 		copy(out.Pix[(y0-r.Min.Y)*out.Stride:], band.Pix)
 	}
 	return out
-}
-
-// cropRect is the largest rectangle centred in b with the aspect ratio w:h, each side
-// rounded to the nearest pixel and at least 1.
-func cropRect(b image.Rectangle, w, h int) image.Rectangle {
-	sw, sh := int64(b.Dx()), int64(b.Dy())
-	cw, ch := sw, sh
-	if sw*int64(h) > sh*int64(w) { // wider than wanted: keep the full height
-		cw = min(max((2*sh*int64(w)+int64(h))/(2*int64(h)), 1), sw)
-	} else { // taller than (or as) wanted: keep the full width
-		ch = min(max((2*sw*int64(h)+int64(w))/(2*int64(w)), 1), sh)
-	}
-	x0 := b.Min.X + int((sw-cw)/2)
-	y0 := b.Min.Y + int((sh-ch)/2)
-	return image.Rect(x0, y0, x0+int(cw), y0+int(ch))
 }
 
 // flatten copies the part r of img into a new opaque NRGBA with origin (0, 0),

@@ -11,28 +11,34 @@ import (
 	"github.com/disintegration/imaging"
 )
 
-// cropRect: the largest centred rectangle of the wanted aspect ratio, sides rounded,
-// never 0. Expected rectangles worked out by hand.
-func TestCropRect(t *testing.T) {
+// scaledSize and centreWindow: the resized size and the cut of the crop policies,
+// worked out by hand from torchvision 0.14's rules (transforms/functional.py:
+// _compute_resized_output_size makes the longer side int(S·long/short), center_crop
+// places the window at int(round((size − crop)/2.0)), Python's round taking halves
+// to even). s = 0 is crop: scaled just enough to cover w×h.
+func TestScaledSizeAndCentreWindow(t *testing.T) {
 	cases := []struct {
-		src  image.Rectangle
-		w, h int
-		want image.Rectangle
+		sw, sh, w, h, s int
+		rw, rh          int
+		win             image.Rectangle
 	}{
-		{image.Rect(0, 0, 640, 480), 224, 224, image.Rect(80, 0, 560, 480)},    // landscape: 480×480, (640-480)/2 = 80
-		{image.Rect(0, 0, 480, 640), 224, 224, image.Rect(0, 80, 480, 560)},    // portrait
-		{image.Rect(0, 0, 10000, 20), 224, 224, image.Rect(4990, 0, 5010, 20)}, // extreme strip: 20×20 in the middle
-		{image.Rect(0, 0, 20, 10000), 224, 224, image.Rect(0, 4990, 20, 5010)},
-		{image.Rect(0, 0, 1, 1), 224, 224, image.Rect(0, 0, 1, 1)},
-		{image.Rect(0, 0, 3, 1), 1, 3, image.Rect(1, 0, 2, 1)},             // 1/3 px wide rounds to 0: kept at 1
-		{image.Rect(0, 0, 100, 100), 200, 100, image.Rect(0, 25, 100, 75)}, // 2:1 from a square
-		{image.Rect(0, 0, 101, 100), 100, 100, image.Rect(0, 0, 100, 100)}, // odd extra column: (101-100)/2 = 0
-		{image.Rect(10, 20, 50, 40), 10, 10, image.Rect(20, 20, 40, 40)},   // non-zero origin
-		{image.Rect(0, 0, 300, 100), 3, 1, image.Rect(0, 0, 300, 100)},     // already the right ratio
+		{640, 480, 224, 224, 0, 298, 224, image.Rect(37, 0, 261, 224)},          // 224·640/480 = 298.67; (298−224)/2 = 37
+		{640, 480, 224, 224, 256, 341, 256, image.Rect(58, 16, 282, 240)},       // 341.33; 117/2 = 58.5 → 58 (even)
+		{480, 640, 224, 224, 256, 256, 341, image.Rect(16, 58, 240, 282)},       // portrait
+		{400, 300, 224, 224, 256, 341, 256, image.Rect(58, 16, 282, 240)},       // 256·400/300 = 341.33
+		{10000, 20, 224, 224, 0, 112000, 224, image.Rect(55888, 0, 56112, 224)}, // extreme strip: only the window is computed
+		{1, 1, 224, 224, 0, 224, 224, image.Rect(0, 0, 224, 224)},
+		{3, 1, 1, 3, 0, 9, 3, image.Rect(4, 0, 5, 3)},                        // wider than 1:3: height limits, 3·3/1 = 9
+		{100, 100, 200, 100, 0, 200, 200, image.Rect(0, 50, 200, 150)},       // 2:1 from a square: width limits
+		{101, 100, 100, 100, 0, 101, 100, image.Rect(0, 0, 100, 100)},        // surplus 1: 0.5 → 0 (even)
+		{103, 100, 100, 100, 0, 103, 100, image.Rect(2, 0, 102, 100)},        // surplus 3: 1.5 → 2 (even)
+		{119 + 224, 224, 224, 224, 0, 343, 224, image.Rect(60, 0, 284, 224)}, // 59.5 → 60 (even)
 	}
 	for _, tc := range cases {
-		if got := cropRect(tc.src, tc.w, tc.h); got != tc.want {
-			t.Errorf("cropRect(%v, %dx%d) = %v, want %v", tc.src, tc.w, tc.h, got, tc.want)
+		rw, rh := scaledSize(tc.sw, tc.sh, tc.w, tc.h, tc.s)
+		win := centreWindow(rw, rh, tc.w, tc.h)
+		if rw != tc.rw || rh != tc.rh || win != tc.win {
+			t.Errorf("%dx%d to %dx%d (S %d): resized %dx%d window %v, want %dx%d %v", tc.sw, tc.sh, tc.w, tc.h, tc.s, rw, rh, win, tc.rw, tc.rh, tc.win)
 		}
 	}
 }
@@ -88,12 +94,12 @@ func TestCropVersusStretch(t *testing.T) {
 }
 
 // A constant picture stays exactly constant whatever the resize: the filter weights sum
-// to 1. Covers 1×1 up-scaling and the 10000×20 strip in both policies.
+// to 1. Covers 1×1 up-scaling and the 10000×20 strip in every policy.
 func TestFitConstantAnySize(t *testing.T) {
 	col := color.NRGBA{12, 34, 56, 255}
 	for _, src := range [][2]int{{1, 1}, {10000, 20}, {20, 10000}, {3, 7}} {
 		img := solidNRGBA(src[0], src[1], col)
-		for _, r := range []string{ResizeStretch, ResizeCrop} {
+		for _, r := range []string{ResizeStretch, ResizeCrop, "crop:256"} {
 			c := Default()
 			c.Width, c.Height, c.Resize = 224, 224, r
 			out := Fit(img, c)
@@ -283,7 +289,8 @@ func TestFitPanics(t *testing.T) {
 
 // Fit's band-by-band path gives exactly what one resize of the whole flattened picture
 // gives (imaging.Resize, the library's own result, is the reference), for a picture of
-// random pixels with alpha, several bands and a partial last band, in both policies.
+// random pixels with alpha, several bands and a partial last band (stretch: the crops
+// take resizeWindow's path, checked against torchvision in torchvision_test.go).
 func TestFitBandsMatchWholeResize(t *testing.T) {
 	rng := rand.New(rand.NewPCG(3, 4))
 	img := image.NewNRGBA(image.Rect(-5, 7, 695, 7+5*bandRows+17))
@@ -292,13 +299,9 @@ func TestFitBandsMatchWholeResize(t *testing.T) {
 	}
 	for _, c := range []Config{
 		{Width: 50, Height: 40, Resize: ResizeStretch, Background: color.NRGBA{10, 20, 30, 255}},
-		{Width: 64, Height: 64, Resize: ResizeCrop, Background: white},
 		{Width: 90, Height: 300, Resize: ResizeStretch, Background: black}, // taller output, still narrower
 	} {
 		r := img.Rect
-		if c.Resize == ResizeCrop {
-			r = cropRect(r, c.Width, c.Height)
-		}
 		if !(r.Dx() > c.Width && r.Dy() > bandRows) {
 			t.Fatalf("case %dx%d does not take the band path", c.Width, c.Height)
 		}
@@ -307,5 +310,25 @@ func TestFitBandsMatchWholeResize(t *testing.T) {
 		if !bytes.Equal(got.Pix, want.Pix) || got.Rect != want.Rect {
 			t.Errorf("%dx%d %s: band path differs from the whole resize", c.Width, c.Height, c.Resize)
 		}
+	}
+}
+
+// A crop that needs no resize (the picture's shorter side already is the
+// input's) is the plain cut; it equals what the general resize path makes
+// with its identity taps, on random pixels with alpha and a non-zero origin.
+func TestCropWithoutResizeIsTheCut(t *testing.T) {
+	rng := rand.New(rand.NewPCG(7, 8))
+	img := image.NewNRGBA(image.Rect(3, -4, 3+103, -4+100))
+	for i := range img.Pix {
+		img.Pix[i] = uint8(rng.IntN(256))
+	}
+	c := Config{Width: 100, Height: 100, Resize: ResizeCrop, Background: color.NRGBA{10, 200, 30, 255}}
+	got := Fit(img, c)
+	// 103×100 to 100×100: no resize; a surplus of 3 leaves 2 on the left (1.5 rounds to even).
+	win := image.Rect(2, 0, 102, 100)
+	slow := resizeWindow(img, img.Rect, c.Background, 103, 100, win)
+	cut := flatten(img, win.Add(img.Rect.Min), c.Background)
+	if !bytes.Equal(got.Pix, slow.Pix) || !bytes.Equal(got.Pix, cut.Pix) || got.Rect != image.Rect(0, 0, 100, 100) {
+		t.Error("a crop without resize differs from the resize path's identity or from the plain cut")
 	}
 }

@@ -74,13 +74,23 @@ func ParseLayout(s string) (string, error) {
 	return "", fmt.Errorf("prep: layout %q: use %s (channels first) or %s (channels last)", s, LayoutNCHW, LayoutNHWC)
 }
 
-// ParseResize reads "stretch" or "crop" in any case.
+// ParseResize reads "stretch", "crop" or "crop:S" (S a whole number of pixels,
+// 1..MaxSide) in any case, and returns the canonical form ("crop:256"). Whether
+// S suits the input size is [Config.Validate]'s question.
 func ParseResize(s string) (string, error) {
-	switch r := strings.ToLower(strings.TrimSpace(s)); r {
+	r := strings.ToLower(strings.TrimSpace(s))
+	switch r {
 	case ResizeStretch, ResizeCrop:
 		return r, nil
 	}
-	return "", fmt.Errorf("prep: resize %q: use %s (whole picture, aspect ratio not kept) or %s (shorter side to size, centre cropped)", s, ResizeStretch, ResizeCrop)
+	if rest, ok := strings.CutPrefix(r, ResizeCropPrefix); ok {
+		n, err := strconv.Atoi(strings.TrimSpace(rest))
+		if err != nil || n < 1 || n > MaxSide {
+			return "", fmt.Errorf("prep: resize %q: S in crop:S must be a whole number of pixels 1..%d, e.g. crop:256", s, MaxSide)
+		}
+		return ResizeCropPrefix + strconv.Itoa(n), nil
+	}
+	return "", fmt.Errorf("prep: resize %q: use %s (whole picture, aspect ratio not kept), %s (shorter side to size, centre cut) or %sS (shorter side to S, then the centre cut, e.g. crop:256)", s, ResizeStretch, ResizeCrop, ResizeCropPrefix)
 }
 
 // ParseOrder reads a channel order, "rgb" or "bgr", and reports whether it is BGR.

@@ -56,7 +56,7 @@ func TestSettingsRoundTrip(t *testing.T) {
 		t.Fatalf("before saving: found %v, err %v", found, err)
 	}
 	s := Settings{Hash: testHash, Model: "/models/parts.onnx", Labels: "/models/parts.txt",
-		Prep: mustSet(t, Default(), "preset", "imagenet", "size", "64x64", "resize", "crop", "background", "#000")}
+		Prep: mustSet(t, Default(), "preset", "imagenet", "size", "64x64", "resize", "crop:72", "background", "#000")}
 	if err := SaveSettings(dir, &s); err != nil {
 		t.Fatal(err)
 	}
@@ -75,7 +75,7 @@ func TestSettingsRoundTrip(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, w := range []string{"{\n  \"sha256\": \"" + testHash + "\"", "\n  \"preprocess\": {", "\"range\": \"0-1\"", "\"labels\": \"/models/parts.txt\"", "\"background\": \"#000000\""} {
+	for _, w := range []string{"{\n  \"sha256\": \"" + testHash + "\"", "\n  \"preprocess\": {", "\"range\": \"0-1\"", "\"resize\": \"crop:72\"", "\"labels\": \"/models/parts.txt\"", "\"background\": \"#000000\""} {
 		if !bytes.Contains(data, []byte(w)) {
 			t.Errorf("settings file lacks %q:\n%s", w, data)
 		}

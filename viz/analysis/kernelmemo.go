@@ -19,6 +19,11 @@ var kernelMemo = struct {
 	byModel map[weak.Pointer[modelio.Model]]map[string]convFlags
 }{byModel: map[weak.Pointer[modelio.Model]]map[string]convFlags{}}
 
+// memoForgot, when set (by tests only, under kernelMemo's lock), is called
+// after the memo has dropped a collected model's flags: the runtime runs
+// cleanups on its own goroutine, and a test needs to know when it has.
+var memoForgot func(weak.Pointer[modelio.Model])
+
 // memoFlags returns the flags of convolution node of m, computing them with
 // compute on the first call. compute's result is kept only when ok.
 func memoFlags(m *modelio.Model, node string, compute func() (convFlags, bool)) (convFlags, bool) {
@@ -42,7 +47,11 @@ func memoFlags(m *modelio.Model, node string, compute func() (convFlags, bool)) 
 		runtime.AddCleanup(m, func(k weak.Pointer[modelio.Model]) {
 			kernelMemo.Lock()
 			delete(kernelMemo.byModel, k)
+			done := memoForgot
 			kernelMemo.Unlock()
+			if done != nil {
+				done(k)
+			}
 		}, key)
 	}
 	byNode[node] = f
