@@ -29,7 +29,7 @@ type command struct {
 
 // commands in the order `fovea help` lists them.
 var commands = []*command{
-	layersCommand, classifyCommand, filtersCommand, mapsCommand, occludeCommand, scanCommand, reportCommand,
+	layersCommand, classifyCommand, filtersCommand, mapsCommand, occludeCommand, scanCommand, reportCommand, evaluateCommand,
 }
 
 func findCommand(name string) *command {

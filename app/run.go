@@ -60,6 +60,8 @@ func (c *cli) run(args []string) int {
 		return exitOK
 	case "fetch-runtime":
 		return c.fetchRuntime(rest)
+	case "merge":
+		return c.merge(rest)
 	}
 	if cmd := findCommand(name); cmd != nil {
 		return cmd.run(c, rest)
@@ -135,6 +137,9 @@ func (c *cli) help(args []string) int {
 		if args[0] == "fetch-runtime" {
 			return c.fetchRuntime([]string{"--help"})
 		}
+		if args[0] == "merge" {
+			return c.merge([]string{"--help"})
+		}
 		fmt.Fprintf(c.stderr, "fovea help: unknown command %q\n", args[0])
 		return exitUsage
 	}
@@ -152,6 +157,7 @@ Commands:
 	for _, cmd := range commands {
 		fmt.Fprintf(w, "  %-14s %s\n", cmd.name, cmd.summary)
 	}
+	fmt.Fprintf(w, "  %-14s %s\n", "merge", "combine the parts of `evaluate --shard K/N` into one result")
 	fmt.Fprintf(w, "  %-14s %s\n", "fetch-runtime", "download ONNX Runtime "+runtimeVersion+" into the user cache folder")
 	fmt.Fprintf(w, "  %-14s %s\n", "version", "print the version")
 	fmt.Fprintf(w, "  %-14s %s\n", "help", "this text; `fovea help COMMAND` or `fovea COMMAND --help` for one command")
@@ -161,7 +167,7 @@ Every command that runs a model takes --model FILE (default: the embedded demo),
 --resize, --range, --mean, --std, --bgr, --layout (defaults: guessed from the model).
 
 Exit status: 0 done, 1 failure while working, 2 bad usage or bad input (the reason,
-naming the file, on stderr), 3 scan --max-dead exceeded.
+naming the file, on stderr), 3 scan --max-dead exceeded or evaluate --min-accuracy not met.
 `)
 	return exitOK
 }
