@@ -33,7 +33,7 @@ type EvalRow struct {
 	Index      int     `json:"index"` // position in the sorted entries of the whole data set
 	File       string  `json:"file"`  // Sample.File
 	True       int     `json:"true"`
-	Predicted  int     `json:"predicted"`  // most probable class (the lowest index among equals)
+	Predicted  int     `json:"predicted"`   // most probable class (the lowest index among equals)
 	PPredicted float64 `json:"p_predicted"` // its probability
 	PTrue      float64 `json:"p_true"`      // the true class's probability
 	Margin     float64 `json:"margin"`      // most probable minus second most probable probability
