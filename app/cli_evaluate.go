@@ -1,7 +1,6 @@
 package main
 
 import (
-	"encoding/csv"
 	"encoding/json"
 	"flag"
 	"fmt"
@@ -173,7 +172,7 @@ func (o *evalOutput) write(c *cli, cmd string, e *analysis.Evaluation) int {
 		enc.SetEscapeHTML(false)
 		err = enc.Encode(evaluateDocOf(e, top))
 	case o.csv:
-		err = writeEvalCSV(c.stdout, e)
+		err = e.WriteCSV(c.stdout)
 	default:
 		if top < 0 {
 			top = 20
@@ -247,28 +246,6 @@ func evaluateDocOf(e *analysis.Evaluation, top int) evaluateDoc {
 		d.Skipped = append(d.Skipped, skippedDoc{s.File, s.Reason})
 	}
 	return d
-}
-
-// writeEvalCSV writes one line per class: index, label, support, predicted,
-// precision, recall, then the confusion matrix row (images of this true
-// class predicted as each class).
-func writeEvalCSV(w io.Writer, e *analysis.Evaluation) error {
-	cw := csv.NewWriter(w)
-	head := []string{"index", "label", "support", "predicted", "precision", "recall"}
-	for c := 0; c < e.Classes; c++ {
-		head = append(head, "as_"+strconv.Itoa(c))
-	}
-	cw.Write(head)
-	for _, m := range e.PerClass() {
-		row := []string{strconv.Itoa(m.Index), m.Label, strconv.Itoa(m.Support), strconv.Itoa(m.Predicted),
-			strconv.FormatFloat(m.Precision, 'g', -1, 64), strconv.FormatFloat(m.Recall, 'g', -1, 64)}
-		for _, n := range e.Confusion[m.Index] {
-			row = append(row, strconv.Itoa(n))
-		}
-		cw.Write(row)
-	}
-	cw.Flush()
-	return cw.Error()
 }
 
 // writeSkipped lists the entries that were not evaluated.
