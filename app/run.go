@@ -104,6 +104,7 @@ func (c *cli) window(args []string) int {
 	fs.StringVar(&o.Probe, "probe", "", "folder `DIR` of probe images for the dead-filter scan")
 	fs.StringVar(&o.View, "view", "", "`VIEW` to show first")
 	fs.StringVar(&o.Theme, "theme", "", "colour theme: light or dark (default: the system's)")
+	fs.StringVar(&o.Data, "data", "", "labelled folder or list `FILE` the scorecard view evaluates at start")
 	fs.StringVar(&o.Expect, "expect", "", "`CLASS` the image should have been (name or index), for the side-by-side heatmaps")
 	if err := fs.Parse(args); err != nil {
 		fmt.Fprintf(c.stderr, "fovea: %v; `fovea help` lists the commands and the window's options\n", flagError(err))
@@ -147,7 +148,7 @@ func (c *cli) help(args []string) int {
 	fmt.Fprintf(w, `Fovea shows what a trained ONNX image classifier responds to.
 
 Usage:
-  fovea [--model FILE] [--image FILE] [--expect CLASS] [--probe DIR] [--view VIEW] [--theme light|dark] [--ort-lib FILE] [MODEL.onnx]
+  fovea [--model FILE] [--image FILE] [--expect CLASS] [--probe DIR] [--data DIR_OR_LIST] [--view VIEW] [--theme light|dark] [--ort-lib FILE] [MODEL.onnx]
         opens the window (needs a display)
   fovea COMMAND [flags]
         does one job without a display and exits

@@ -292,7 +292,7 @@ func (u *ui) loadModel(what string, open func(context.Context) (*core.Workspace,
 func (u *ui) setWorkspace(ws *core.Workspace) {
 	old := u.ws
 	u.ws = ws
-	for _, r := range []*runner{u.imageJobs, u.vOcc.jobs, u.vHealth.jobs, u.fileJobs} {
+	for _, r := range []*runner{u.imageJobs, u.vOcc.jobs, u.vHealth.jobs, u.fileJobs, u.vScore.jobs, u.vScore.thumbs} {
 		if r.cur != nil && r.cur.ws == old {
 			r.cancel()
 		}
@@ -316,6 +316,7 @@ func (u *ui) setWorkspace(ws *core.Workspace) {
 	u.vMaps.refresh()
 	u.vOcc.modelChanged()
 	u.vHealth.refresh()
+	u.vScore.modelChanged()
 	u.status.SetText(fmt.Sprintf("Opened %s: %d layers, %s parameters", ws.Name(), len(ws.Model.Layers), count(ws.Model.Total.Params)))
 	if u.img != nil {
 		u.analyze()

@@ -37,6 +37,10 @@ type Options struct {
 	// Expect is the class the image should have been (label or number): the
 	// occlusion view then explains predicted against expected. "" = none.
 	Expect string
+	// Data is a labelled folder or list file: the scorecard view evaluates
+	// the model on it at start. "" = none (the demo's probe images when the
+	// scorecard view opens first on the demo).
+	Data string
 }
 
 // Views lists the names Options.View accepts, in tab order, with the tab
@@ -48,6 +52,7 @@ var Views = []struct{ Name, Title string }{
 	{viewMaps, "Layer maps"},
 	{viewOcclusion, "Occlusion"},
 	{viewHealth, "Filter health"},
+	{viewScorecard, "Scorecard"},
 }
 
 const (
@@ -57,6 +62,7 @@ const (
 	viewMaps      = "maps"
 	viewOcclusion = "occlusion"
 	viewHealth    = "health"
+	viewScorecard = "scorecard"
 )
 
 // Run opens the window and blocks until it is closed. It returns the process

@@ -50,10 +50,13 @@ func (u *ui) menu() *fyne.MainMenu {
 		fyne.NewMenuItemSeparator(),
 		item("Export explanation picture…", keyExport, u.vOcc.export),
 		item("Export scan table as CSV…", keyExportCSV, u.vHealth.exportCSV),
+		item("Export confusion matrix as PNG…", nil, u.vScore.exportPNG),
+		item("Export per-class table as CSV…", nil, u.vScore.exportCSV),
 	)
 	analyse := fyne.NewMenu("Analyse",
 		item("Run occlusion", keyRun, u.vOcc.run),
 		item("Scan probe folder", keyScan, u.vHealth.run),
+		item("Evaluate labelled images", nil, u.vScore.run),
 		fyne.NewMenuItemSeparator(),
 		item("Stop everything", keyStop, u.stopAll),
 	)
@@ -90,7 +93,7 @@ func (u *ui) setTheme(choice string) {
 
 // stopAll cancels every running job.
 func (u *ui) stopAll() {
-	for _, r := range []*runner{u.modelJobs, u.imageJobs, u.fileJobs, u.vOcc.jobs, u.vHealth.jobs} {
+	for _, r := range []*runner{u.modelJobs, u.imageJobs, u.fileJobs, u.vOcc.jobs, u.vHealth.jobs, u.vScore.jobs, u.vScore.thumbs} {
 		r.cancel()
 	}
 }

@@ -89,6 +89,7 @@ type ui struct {
 	vMaps     *mapsView
 	vOcc      *occlusionView
 	vHealth   *healthView
+	vScore    *scorecardView
 	errShown  int // errors shown so far (tests read it)
 }
 
@@ -193,10 +194,12 @@ func newUI(a fyne.App, w fyne.Window, o Options) *ui {
 	u.vMaps = newMapsView(u)
 	u.vOcc = newOcclusionView(u)
 	u.vHealth = newHealthView(u)
+	u.vScore = newScorecardView(u)
 
 	contents := map[string]fyne.CanvasObject{
 		viewModel: u.vModel.content, viewKernels: u.vKernels.content, viewPredict: u.vPredict.content,
 		viewMaps: u.vMaps.content, viewOcclusion: u.vOcc.content, viewHealth: u.vHealth.content,
+		viewScorecard: u.vScore.content,
 	}
 	u.tabs = container.NewAppTabs()
 	u.tabByView = map[string]*container.TabItem{}
@@ -271,6 +274,13 @@ func (u *ui) start() {
 			u.vHealth.run()
 		case u.opts.View == viewHealth && u.ws != nil && u.ws.Demo != "":
 			u.vHealth.run() // asked for on the command line: show the demo's scan
+		}
+		switch {
+		case u.opts.Data != "":
+			u.vScore.setData(u.opts.Data)
+			u.vScore.run()
+		case u.opts.View == viewScorecard && u.ws != nil && u.ws.Demo != "":
+			u.vScore.run() // the demo's probe images
 		}
 	}
 	if u.opts.Model != "" {

@@ -10,6 +10,7 @@ import (
 	"fyne.io/fyne/v2/widget"
 
 	"fovea/app/core"
+	"fovea/modelio/classes"
 )
 
 // predictView is the "Prediction" tab: the picture as the model sees it and
@@ -38,7 +39,12 @@ func newPredictView(u *ui) *predictView {
 	})
 	v.demo.PlaceHolder = "(choose one)"
 	open := widget.NewButtonWithIcon("Open image…", theme.FileImageIcon(), u.chooseImage)
-	explain := widget.NewButtonWithIcon("Explain with occlusion", theme.NavigateNextIcon(), func() { u.showView(viewOcclusion) })
+	explain := widget.NewButtonWithIcon("Explain with occlusion", theme.NavigateNextIcon(), func() {
+		u.showView(viewOcclusion)
+		if u.occ == nil && u.acts != nil && u.vOcc.expected() >= 0 {
+			u.vOcc.run() // an expected class is set (the scorecard sets it): show both heatmaps at once
+		}
+	})
 	v.pic = newPicture(fyne.NewSize(256, 256), 8)
 	v.caption = widget.NewLabel("")
 	v.caption.Wrapping = fyne.TextWrapWord
@@ -81,8 +87,12 @@ func (v *predictView) refresh() {
 	if i, ok := demoTruth(u.ws, name); ok && u.imgPath == "" && i < len(labelsOf(u.ws)) {
 		name += " (demo image of a " + labelsOf(u.ws)[i] + ")"
 	}
-	v.caption.SetText(fmt.Sprintf("%s, %d×%d after %s resizing; prepared as %s.",
-		name, a.Input.Bounds().Dx(), a.Input.Bounds().Dy(), c.Resize, c.String()))
+	text := fmt.Sprintf("%s, %d×%d after %s resizing; prepared as %s.",
+		name, a.Input.Bounds().Dx(), a.Input.Bounds().Dy(), c.Resize, c.String())
+	if exp := u.vOcc.expected(); exp >= 0 {
+		text += " Expected class: " + classes.Label(labelsOf(u.ws), exp) + "."
+	}
+	v.caption.SetText(text)
 	cl := a.Class
 	for i, p := range cl.Top {
 		if i >= topK {

@@ -9,6 +9,12 @@
 //     rates, maxima, means and flags per channel of every ReLU-like layer),
 //     with its CSV and JSON forms and the session settings it runs best with
 //     (ScanSession).
+//   - Evaluate: a model over labelled images (a folder with one sub-folder
+//     per class, or a list file: ReadFolder, ReadList) with accuracy, its
+//     Wilson interval, per-class precision and recall, the confusion matrix,
+//     the mistakes and the least sure right answers; shards of the sorted
+//     entries (Labelled.Shard) merge exactly (Merge), as scans do
+//     (ScanPart, MergeScan).
 //
 // The package sits above the drawing package in the dependency order: it may
 // use viz's data types, and viz never imports it, so drawing needs no model

@@ -39,6 +39,17 @@ type Labelled struct {
 	Samples []Sample // sorted by File
 	// open opens a sample's File for reading.
 	open func(file string) (fs.File, error)
+	// local is a sample's path on disk; nil for data not on disk.
+	local func(file string) string
+}
+
+// Path returns the file system path of a sample's File, or "" when the
+// data is not on disk (an embedded or in-memory fs.FS).
+func (l *Labelled) Path(file string) string {
+	if l.local == nil {
+		return ""
+	}
+	return l.local(file)
 }
 
 // Images counts the entries that are samples (no Problem).
@@ -220,6 +231,7 @@ func OpenFolder(dir string, r ClassResolver) (*Labelled, error) {
 		return nil, err
 	}
 	l.Source = dir
+	l.local = func(file string) string { return filepath.Join(dir, filepath.FromSlash(file)) }
 	return l, nil
 }
 
@@ -306,12 +318,18 @@ func OpenList(file string, r ClassResolver) (*Labelled, error) {
 		return nil, fmt.Errorf("viz: list: %w", err)
 	}
 	dir := filepath.Dir(file)
-	return ReadList(data, file, r, func(p string) (fs.File, error) {
+	local := func(p string) string {
 		if !filepath.IsAbs(p) {
 			p = filepath.Join(dir, filepath.FromSlash(p))
 		}
-		return os.Open(p)
-	})
+		return p
+	}
+	l, err := ReadList(data, file, r, func(p string) (fs.File, error) { return os.Open(local(p)) })
+	if err != nil {
+		return nil, err
+	}
+	l.local = local
+	return l, nil
 }
 
 // sortSamples orders entries by File; equal names keep their read order.
