@@ -115,7 +115,7 @@ func ConfusionPicture(counts [][]int, o ConfusionOptions) (*image.NRGBA, Confusi
 	scale := math.Max(0.05, math.Ceil(worst*20-1e-9)/20)
 	grid := ConfusionGrid{Origin: image.Pt(left, top), Cell: cell, N: n, Scale: scale}
 	legendH := 56
-	w := max(left+n*cell+pad, left+260+pad)
+	w := max(left+n*cell+pad, left+236+18+6+60+pad)
 	h := top + n*cell + 12 + legendH + pad
 	img, err := newCanvas("confusion matrix", w, h, Light)
 	if err != nil {
@@ -164,7 +164,7 @@ func ConfusionPicture(counts [][]int, o ConfusionOptions) (*image.NRGBA, Confusi
 	bar := ColorBar(220, legendH, 0, 100*scale, "% of the true class's images", func(v float64) color.NRGBA { return Sequential(1 - v) })
 	blit(img, bar, image.Pt(left, ly))
 	sw := image.Rect(left+236, ly+8, left+236+18, ly+26)
-	if sw.Max.X+80 < w {
+	if sw.Max.X+6+60 <= w {
 		fill(img, sw, diagonalFill)
 		frame(img, sw, 1, line, false)
 		DrawText(img, sw.Max.X+6, sw.Min.Y+1, "correct", small)

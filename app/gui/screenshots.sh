@@ -7,7 +7,8 @@
 #
 # Environment: FOVEA (binary, default: builds bin/fovea), FOVEA_MODEL,
 # FOVEA_IMAGE, FOVEA_PROBE (default: the embedded demo, and for the health
-# view its unhealthy twin scanning the demo's probe images), FOVEA_EXPECT
+# view its unhealthy twin scanning the demo's probe images, for the scorecard
+# view the same twin evaluated on them), FOVEA_EXPECT
 # (the class the occlusion view explains against), SHOT_VIEWS, SHOT_THEMES,
 # SHOT_WAIT (seconds to let a view settle, default 6).
 # Needs Xvfb, ImageMagick (import, convert) and xwininfo.
@@ -18,7 +19,7 @@ export LANG=C.UTF-8 LC_ALL=C.UTF-8 LANGUAGE=en
 
 root=$(cd "$(dirname "$0")/../.." && pwd)
 out=${1:-$root/assets/screenshots}
-views=${SHOT_VIEWS:-"model kernels predict maps occlusion health"}
+views=${SHOT_VIEWS:-"model kernels predict maps occlusion health scorecard"}
 themes=${SHOT_THEMES:-"light dark"}
 wait=${SHOT_WAIT:-6}
 for tool in Xvfb import convert xwininfo; do
@@ -52,6 +53,9 @@ for theme in $themes; do
 		# The health view shows the demo's unhealthy twin: it has dead filters.
 		[ "$view" = health ] && [ -z "${FOVEA_MODEL:-}" ] &&
 			extra+=(--model "$root/assets/demo/parts_unhealthy.onnx" --probe "$root/assets/demo/probe")
+		# The scorecard shows the unhealthy twin's mistakes on the demo's probe images.
+		[ "$view" = scorecard ] && [ -z "${FOVEA_MODEL:-}" ] &&
+			extra+=(--model "$root/assets/demo/parts_unhealthy.onnx" --data "$root/assets/demo/probe/labels.csv")
 		[ "$view" = occlusion ] && [ -n "${FOVEA_EXPECT:-}" ] && extra+=(--expect "$FOVEA_EXPECT")
 		rm -rf "$home/.config"  # every shot starts from no remembered state
 		"$bin" "${args[@]}" "${extra[@]}" --view "$view" --theme "$theme" >"$home/log" 2>&1 &

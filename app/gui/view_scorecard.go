@@ -133,7 +133,7 @@ func thumbCaption(r analysis.EvalRow) string {
 	if r.Correct() {
 		return fmt.Sprintf("margin %.2f", r.Margin)
 	}
-	return fmt.Sprintf("p %.2f · %s", r.PPredicted, path.Base(r.File))
+	return fmt.Sprintf("p %.2f", r.PPredicted)
 }
 
 // setData chooses the labelled data ("" = the demo's probe images).
