@@ -25,6 +25,9 @@ type command struct {
 	setup func(fs *flag.FlagSet, cf *common) func(j *job) int
 	// noModel: the command does not open a model (none so far).
 	noModel bool
+	// many: the command takes image files and folders as arguments besides
+	// its flags (job.args).
+	many bool
 }
 
 // commands in the order `fovea help` lists them.
@@ -92,6 +95,8 @@ type job struct {
 	ws  *core.Workspace
 	fs  *flag.FlagSet
 	set map[string]bool // flags given on the command line
+	// args are the arguments that are not flags (commands with many set).
+	args []string
 	// midLine is true while a progress line is drawn without its newline.
 	midLine bool
 }
@@ -104,15 +109,24 @@ func (cmd *command) run(c *cli, args []string) int {
 	var cf common
 	work := cmd.setup(fs, &cf)
 	cf.declare(fs)
-	if err := fs.Parse(args); err != nil {
-		if errors.Is(err, flag.ErrHelp) {
-			cmd.usage(c.stdout, fs, &cf)
-			return exitOK
+	var positional []string
+	for {
+		if err := fs.Parse(args); err != nil {
+			if errors.Is(err, flag.ErrHelp) {
+				cmd.usage(c.stdout, fs, &cf)
+				return exitOK
+			}
+			return c.usageError(cmd.name, "%v", flagError(err))
 		}
-		return c.usageError(cmd.name, "%v", flagError(err))
-	}
-	if fs.NArg() > 0 {
-		return c.usageError(cmd.name, "unexpected argument %q (flags come as --name value)", fs.Arg(0))
+		if fs.NArg() == 0 {
+			break
+		}
+		if !cmd.many {
+			return c.usageError(cmd.name, "unexpected argument %q (flags come as --name value)", fs.Arg(0))
+		}
+		// Images may come before, between and after the flags.
+		positional = append(positional, fs.Arg(0))
+		args = fs.Args()[1:]
 	}
 	set := map[string]bool{}
 	fs.Visit(func(f *flag.Flag) { set[f.Name] = true })
@@ -125,7 +139,7 @@ func (cmd *command) run(c *cli, args []string) int {
 
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
-	j := &job{cli: c, cmd: cmd.name, ctx: ctx, fs: fs, set: set}
+	j := &job{cli: c, cmd: cmd.name, ctx: ctx, fs: fs, set: set, args: positional}
 	if err := core.Start(cf.ortLib); err != nil {
 		return j.fail(err)
 	}

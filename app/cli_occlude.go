@@ -12,7 +12,8 @@ import (
 
 var occludeCommand = &command{
 	name:    "occlude",
-	args:    "--image FILE (--out FILE | --json) [--class CLASS] [--versus CLASS]",
+	args:    "--image FILE (--out FILE | --json) [--class CLASS] [--versus CLASS]\n       fovea occlude IMAGE... | FOLDER (--out-dir DIR | --json) [flags]",
+	many:    true,
 	summary: "occlusion sensitivity: which parts of the image the score depends on (PNG or JSON)",
 	about: `Hides one square patch of the image at a time and measures how much the score of
 the target class drops (Zeiler & Fergus 2014). The heatmap is drawn over the image
@@ -20,13 +21,59 @@ as the model saw it (after resizing): orange where hiding the patch lowered the
 score, blue where it raised it. With --versus the second class's map is drawn beside the first
 on the same scale.
 
+With several images or a folder, the model is opened once, each image's overlay is
+written to --out-dir as NAME.occlusion.png and --json prints one object per line.
+
 The map is evidence about this model on this image, not proof of what it looks at.`,
 	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
 		var o occlusionFlags
 		o.declare(fs)
 		out := fs.String("out", "", "write the heatmap overlay PNG to `FILE` (- for stdout)")
 		asJSON := fs.Bool("json", false, "print the scores as JSON")
+		outDir := fs.String("out-dir", "", "with several images: write one overlay PNG per image into `DIR`")
 		return func(j *job) int {
+			files, many, err := j.imageList(o.image)
+			if err != nil {
+				return j.fail(err)
+			}
+			if many {
+				if *out != "" {
+					return j.usageErr("with several images give --out-dir DIR, not --out")
+				}
+				if *outDir == "" && !*asJSON {
+					return j.usageErr("give --out-dir DIR for the pictures, --json for the scores, or both")
+				}
+				if *outDir != "" {
+					if err := checkOutDir(*outDir); err != nil {
+						return j.fail(err)
+					}
+				}
+				used := map[string]bool{}
+				return j.eachImage(files, func(f string) int {
+					o.image = f
+					res, code := o.run(j)
+					if res == nil {
+						return code
+					}
+					if *outDir != "" {
+						p := outPath(*outDir, f, ".occlusion.png", used)
+						img := viz.RenderOcclusion(res.fit, res.occ, viz.HeatOptions{Captions: true})
+						if code := j.writePNG(p, img); code != exitOK {
+							return code
+						}
+						if !*asJSON {
+							fmt.Fprintf(j.stdout, "wrote %s\n", p)
+						}
+					}
+					if *asJSON {
+						return j.writeJSONLine(occlusionJSON(j, res))
+					}
+					return exitOK
+				})
+			}
+			if len(files) == 1 {
+				o.image = files[0]
+			}
 			if *out == "" && !*asJSON {
 				return j.usageErr("give --out FILE for the picture, --json for the scores, or both")
 			}
@@ -74,7 +121,7 @@ type occlusionFlags struct {
 }
 
 func (o *occlusionFlags) declare(fs *flag.FlagSet) {
-	fs.StringVar(&o.image, "image", "", "image `FILE` (required)")
+	fs.StringVar(&o.image, "image", "", "image `FILE` (or give image files or a folder as arguments)")
 	fs.StringVar(&o.class, "class", "", "target `CLASS`, a label or a number (default: the predicted class)")
 	fs.StringVar(&o.versus, "versus", "", "a second `CLASS` to compare with, e.g. the one the image should have been")
 	fs.IntVar(&o.patch, "patch", 0, "side of the hidden square in input `PIXELS` (default: a sixth of the shorter side)")

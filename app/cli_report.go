@@ -13,7 +13,8 @@ import (
 
 var reportCommand = &command{
 	name:    "report",
-	args:    "--image FILE --out FILE [--versus CLASS] [--json]",
+	args:    "--image FILE --out FILE [--versus CLASS] [--json]\n       fovea report IMAGE... | FOLDER --out-dir DIR [flags]",
+	many:    true,
 	summary: "the one-page picture explaining a prediction, to share with a colleague",
 	about: `Composes one PNG page: the image as the model saw it, the top-k predictions, the
 occlusion heatmaps of the predicted class and (with --versus) of the class it should
@@ -21,7 +22,9 @@ have been, side by side on one scale with their legend, the model's name, the
 preprocessing and occlusion settings, the date, and the caution that a heatmap is
 evidence about this model on this image, not proof. With --json it also prints what the
 page states: the model file's SHA-256, the labels' source (and its SHA-256), the
-preprocessing, the predictions, the occlusion settings and the date.`,
+preprocessing, the predictions, the occlusion settings and the date. With several
+images or a folder, the model is opened once, each page is written to --out-dir as
+NAME.report.png and --json prints one object per line.`,
 	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
 		var o occlusionFlags
 		o.declare(fs)
@@ -29,8 +32,23 @@ preprocessing, the predictions, the occlusion settings and the date.`,
 		k := fs.Int("k", 5, "`N` rows in the table of predictions")
 		date := fs.String("date", "", "`YYYY-MM-DD` printed on the page (default: today, or $SOURCE_DATE_EPOCH)")
 		asJSON := fs.Bool("json", false, "print what the page states as JSON on stdout (needs --out FILE, not -)")
+		outDir := fs.String("out-dir", "", "with several images: write one page per image into `DIR`")
 		return func(j *job) int {
-			if *out == "" {
+			files, many, err := j.imageList(o.image)
+			if err != nil {
+				return j.fail(err)
+			}
+			if len(files) == 1 {
+				o.image = files[0]
+			}
+			if many {
+				if *out != "" || *outDir == "" {
+					return j.usageErr("with several images give --out-dir DIR (one page per image)")
+				}
+				if err := checkOutDir(*outDir); err != nil {
+					return j.fail(err)
+				}
+			} else if *out == "" {
 				return j.usageErr("--out FILE is required")
 			}
 			if *asJSON && *out == "-" {
@@ -43,37 +61,53 @@ preprocessing, the predictions, the occlusion settings and the date.`,
 			if err != nil {
 				return j.usageErr("%v", err)
 			}
-			res, code := o.run(j)
-			if res == nil {
-				return code
+			if many {
+				used := map[string]bool{}
+				return j.eachImage(files, func(f string) int {
+					o.image = f
+					p := outPath(*outDir, f, ".report.png", used)
+					return reportOne(j, &o, p, *k, when, *asJSON, true)
+				})
 			}
-			versus := -1
-			if len(res.occ) > 1 {
-				versus = res.occ[1].Target
-			}
-			img, err := core.LoadImage(o.image)
-			if err != nil {
-				return j.fail(err)
-			}
-			page, content, err := j.ws.ReportPage(j.ctx, core.ReportInput{
-				Image: img, ImageName: filepath.Base(o.image), K: *k, Versus: versus,
-				Occlusion: res.set, Occlusions: res.occ, Date: when,
-			}, nil)
-			if err != nil {
-				return j.fail(err)
-			}
-			if code := j.writePNG(*out, page); code != exitOK {
-				return code
-			}
-			if *asJSON {
-				return j.writeJSON(content)
-			}
-			if *out != "-" {
-				fmt.Fprintf(j.stdout, "wrote %s (%d×%d)\n", *out, page.Bounds().Dx(), page.Bounds().Dy())
-			}
-			return exitOK
+			return reportOne(j, &o, *out, *k, when, *asJSON, false)
 		}
 	},
+}
+
+// reportOne writes the page of o.image to out; with asJSON it prints what
+// the page states, on one line when oneLine (several images).
+func reportOne(j *job, o *occlusionFlags, out string, k int, when time.Time, asJSON, oneLine bool) int {
+	res, code := o.run(j)
+	if res == nil {
+		return code
+	}
+	versus := -1
+	if len(res.occ) > 1 {
+		versus = res.occ[1].Target
+	}
+	img, err := core.LoadImage(o.image)
+	if err != nil {
+		return j.fail(err)
+	}
+	page, content, err := j.ws.ReportPage(j.ctx, core.ReportInput{
+		Image: img, ImageName: filepath.Base(o.image), K: k, Versus: versus,
+		Occlusion: res.set, Occlusions: res.occ, Date: when,
+	}, nil)
+	if err != nil {
+		return j.fail(err)
+	}
+	if code := j.writePNG(out, page); code != exitOK {
+		return code
+	}
+	switch {
+	case asJSON && oneLine:
+		return j.writeJSONLine(content)
+	case asJSON:
+		return j.writeJSON(content)
+	case out != "-":
+		fmt.Fprintf(j.stdout, "wrote %s (%d×%d)\n", out, page.Bounds().Dx(), page.Bounds().Dy())
+	}
+	return exitOK
 }
 
 // reportDate is the date printed on a report: the flag, else
