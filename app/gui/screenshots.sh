@@ -18,7 +18,8 @@ set -euo pipefail
 export LANG=C.UTF-8 LC_ALL=C.UTF-8 LANGUAGE=en
 
 root=$(cd "$(dirname "$0")/../.." && pwd)
-out=${1:-$root/assets/screenshots}
+out=$(realpath -m "${1:-$root/assets/screenshots}")
+cd "$root" # the scorecard shot names its list relative to the repository
 views=${SHOT_VIEWS:-"model kernels predict maps occlusion health scorecard"}
 themes=${SHOT_THEMES:-"light dark"}
 wait=${SHOT_WAIT:-6}
@@ -55,7 +56,7 @@ for theme in $themes; do
 			extra+=(--model "$root/assets/demo/parts_unhealthy.onnx" --probe "$root/assets/demo/probe")
 		# The scorecard shows the unhealthy twin's mistakes on the demo's probe images.
 		[ "$view" = scorecard ] && [ -z "${FOVEA_MODEL:-}" ] &&
-			extra+=(--model "$root/assets/demo/parts_unhealthy.onnx" --data "$root/assets/demo/probe/labels.csv")
+			extra+=(--model "$root/assets/demo/parts_unhealthy.onnx" --data assets/demo/probe/labels.csv)
 		[ "$view" = occlusion ] && [ -n "${FOVEA_EXPECT:-}" ] && extra+=(--expect "$FOVEA_EXPECT")
 		rm -rf "$home/.config"  # every shot starts from no remembered state
 		"$bin" "${args[@]}" "${extra[@]}" --view "$view" --theme "$theme" >"$home/log" 2>&1 &
