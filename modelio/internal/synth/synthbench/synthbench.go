@@ -201,6 +201,7 @@ func rows(demo string) []row {
 		}
 	}
 	return append(out, []row{
+		{"labelled-folder evaluation throughput / plain batched inference throughput", "ResNet-18 224×224", "BenchmarkEvaluateRatio/resnet18", "evaluate/plain", 0.8, false, perImage},
 		{"open + layer table / reading the file once", "VGG-16 (553 MB)", "BenchmarkOpenRatio", "open/read", 2, true, func(m map[string]float64) string {
 			return fmt.Sprintf("read %.0f ms, open %.0f ms", m["read-ms"], m["open-ms"])
 		}},
