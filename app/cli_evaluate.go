@@ -74,7 +74,7 @@ With --min-accuracy X the exit status is 3 when the accuracy is below X.`,
 				return j.fail(err)
 			}
 			if *shard != "" {
-				return j.writeJSON(evalPart{Format: partFormat, Command: "evaluate", Shard: [2]int{k + 1, n}, Settings: cfg.String(), Result: e})
+				return j.writeJSON(evalPart{Format: partFormat, Command: "evaluate", Model: j.ws.Name(), Shard: [2]int{k + 1, n}, Settings: cfg.String(), Result: e})
 			}
 			if e.Images == 0 {
 				fmt.Fprintf(j.stderr, "fovea evaluate: %s: none of the %d entries could be evaluated\n", set.Source, total)
@@ -109,6 +109,7 @@ const partFormat = "fovea-part-1"
 type evalPart struct {
 	Format   string               `json:"format"`
 	Command  string               `json:"command"`
+	Model    string               `json:"model"`
 	Shard    [2]int               `json:"shard"`    // K (1-based) and N
 	Settings string               `json:"settings"` // the preprocessing in force: parts must agree
 	Result   *analysis.Evaluation `json:"result"`

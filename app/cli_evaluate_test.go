@@ -284,3 +284,34 @@ func TestCLIEvaluateOtherExporter(t *testing.T) {
 		t.Errorf("%d mistakes, classify finds %d", len(doc.Mistakes), len(mistakes))
 	}
 }
+
+// TestCLIScanShards: `scan --shard K/N` for N = 1, 3 and 7, merged by
+// `fovea merge`, prints byte for byte what one scan prints (text, CSV, JSON),
+// with the same --max-dead gate.
+func TestCLIScanShards(t *testing.T) {
+	d := newDemoFiles(t)
+	folder, _ := probeFolder(t)
+	probe := filepath.Join(folder, "washer") // 40 images, some channels dead
+	base := []string{"scan", "--model", d.unhealthy, "--probe", probe}
+	single := map[string]string{}
+	for _, form := range []string{"--json", "--csv", "--all"} {
+		single[form] = mustRun(t, append(base, form)...)
+	}
+	dir := t.TempDir()
+	for _, n := range []int{1, 3, 7} {
+		var parts []string
+		for k := 1; k <= n; k++ {
+			p := filepath.Join(dir, fmt.Sprintf("scan %d of %d.json", k, n))
+			os.WriteFile(p, []byte(mustRun(t, append(base, "--shard", fmt.Sprintf("%d/%d", k, n))...)), 0o644)
+			parts = append(parts, p)
+		}
+		for form, want := range single {
+			if got := mustRun(t, append(append([]string{"merge"}, parts...), form)...); got != want {
+				t.Errorf("n = %d, %s: merged scan differs from the single scan:\n%s\n---\n%s", n, form, got, want)
+			}
+		}
+		if _, _, code := runCLI(t, append(append([]string{"merge"}, parts...), "--max-dead", "0")...); code != exitGate {
+			t.Errorf("n = %d: merge --max-dead 0 exit %d, want 3", n, code)
+		}
+	}
+}

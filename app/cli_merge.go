@@ -23,12 +23,15 @@ func (c *cli) merge(args []string) int {
 	fs.SetOutput(io.Discard)
 	var out evalOutput
 	out.declare(fs)
+	maxDead := fs.Int("max-dead", -1, "scan parts: exit with status 3 when more than `N` channels are dead")
+	all := fs.Bool("all", false, "scan parts: list every channel in the table, not only flagged ones")
 	usage := func(w io.Writer) {
 		fmt.Fprint(w, `Usage: fovea merge PART... [--json | --csv] [--top N] [--min-accuracy X]
 
-Combines the partial results of `+"`fovea evaluate --shard K/N`"+` (one file per
-shard, all N of them) into exactly what one run over all the images prints.
-Counts add up; mistakes and least sure answers are concatenated and sorted again.
+Combines the partial results of `+"`fovea evaluate --shard K/N`"+` or
+`+"`fovea scan --shard K/N`"+` (one file per shard, all N of them) into exactly what one
+run over all the images prints. Counts and sums add up, maxima are taken; mistakes
+and least sure answers are concatenated and sorted again.
 
 Flags:
 `)
@@ -55,14 +58,14 @@ Flags:
 		rest = fs.Args()[1:]
 	}
 	if len(files) == 0 {
-		return c.usageError("merge", "give the part files `fovea evaluate --shard K/N` wrote")
+		return c.usageError("merge", "give the part files `fovea evaluate --shard K/N` or `fovea scan --shard K/N` wrote")
 	}
 	if msg := out.check(); msg != "" {
 		return c.usageError("merge", "%s", msg)
 	}
-	var parts []*analysis.Evaluation
-	var first *evalPart
+	var first *partHeader
 	seen := map[int]string{}
+	byShard := map[int]*partHeader{}
 	for _, f := range files {
 		p, err := readPart(f)
 		if err != nil {
@@ -83,14 +86,58 @@ Flags:
 			fmt.Fprintf(c.stderr, "fovea merge: %s and %s are both shard %d/%d\n", seen[p.Shard[0]], f, p.Shard[0], p.Shard[1])
 			return exitUsage
 		}
+		if p.Command != first.Command {
+			fmt.Fprintf(c.stderr, "fovea merge: %s is a part of `fovea %s`, %s of `fovea %s`\n", f, p.Command, files[0], first.Command)
+			return exitUsage
+		}
 		seen[p.Shard[0]] = f
-		parts = append(parts, p.Result)
+		byShard[p.Shard[0]] = p
 	}
 	for k := 1; k <= first.Shard[1]; k++ {
 		if seen[k] == "" {
 			fmt.Fprintf(c.stderr, "fovea merge: shard %d/%d is missing\n", k, first.Shard[1])
 			return exitUsage
 		}
+	}
+	// The parts in shard order: skipped files are then listed as one run lists them.
+	ordered := make([]*partHeader, 0, len(files))
+	for k := 1; k <= first.Shard[1]; k++ {
+		ordered = append(ordered, byShard[k])
+	}
+	if first.Command == "scan" {
+		if out.top != -1 || out.minAcc != "" {
+			return c.usageError("merge", "--top and --min-accuracy are for evaluate parts")
+		}
+		var sparts []*analysis.ScanPart
+		for _, p := range ordered {
+			var sp analysis.ScanPart
+			if err := json.Unmarshal(p.Result, &sp); err != nil {
+				fmt.Fprintf(c.stderr, "fovea merge: %s: %v\n", seen[p.Shard[0]], err)
+				return exitUsage
+			}
+			sparts = append(sparts, &sp)
+		}
+		merged, err := analysis.MergeScan(sparts)
+		if err == nil {
+			var r *analysis.ScanReport
+			if r, err = merged.Report(); err == nil {
+				return writeScan(c, "merge", first.Model, r, out.json, out.csv, *all, *maxDead)
+			}
+		}
+		fmt.Fprintf(c.stderr, "fovea merge: %v\n", trimPrefix(err))
+		return exitUsage
+	}
+	if *maxDead != -1 || *all {
+		return c.usageError("merge", "--max-dead and --all are for scan parts")
+	}
+	var parts []*analysis.Evaluation
+	for _, p := range ordered {
+		var e analysis.Evaluation
+		if err := json.Unmarshal(p.Result, &e); err != nil {
+			fmt.Fprintf(c.stderr, "fovea merge: %s: %v\n", seen[p.Shard[0]], err)
+			return exitUsage
+		}
+		parts = append(parts, &e)
 	}
 	e, err := analysis.Merge(parts)
 	if err != nil {
@@ -105,8 +152,18 @@ Flags:
 	return out.write(c, "merge", e)
 }
 
+// partHeader is what every part file holds around its counts.
+type partHeader struct {
+	Format   string          `json:"format"`
+	Command  string          `json:"command"`
+	Model    string          `json:"model"`
+	Shard    [2]int          `json:"shard"`
+	Settings string          `json:"settings"`
+	Result   json.RawMessage `json:"result"`
+}
+
 // readPart reads and checks one part file.
-func readPart(file string) (*evalPart, error) {
+func readPart(file string) (*partHeader, error) {
 	f, err := os.Open(file)
 	if err != nil {
 		return nil, err
@@ -119,15 +176,15 @@ func readPart(file string) (*evalPart, error) {
 	if len(data) > maxPartBytes {
 		return nil, fmt.Errorf("%s: larger than %d bytes", file, maxPartBytes)
 	}
-	var p evalPart
+	var p partHeader
 	if err := json.Unmarshal(data, &p); err != nil {
-		return nil, fmt.Errorf("%s: not a part file of `fovea evaluate --shard` (%v)", file, err)
+		return nil, fmt.Errorf("%s: not a part file of `--shard` (%v)", file, err)
 	}
-	if p.Format != partFormat || p.Result == nil {
-		return nil, fmt.Errorf("%s: not a part file of `fovea evaluate --shard` (format %q)", file, p.Format)
+	if p.Format != partFormat || len(p.Result) == 0 {
+		return nil, fmt.Errorf("%s: not a part file of `--shard` (format %q)", file, p.Format)
 	}
-	if p.Command != "evaluate" {
-		return nil, fmt.Errorf("%s: a part of `fovea %s`; only evaluate parts can be merged", file, p.Command)
+	if p.Command != "evaluate" && p.Command != "scan" {
+		return nil, fmt.Errorf("%s: a part of `fovea %s`; only evaluate and scan parts can be merged", file, p.Command)
 	}
 	if p.Shard[1] < 1 || p.Shard[0] < 1 || p.Shard[0] > p.Shard[1] {
 		return nil, fmt.Errorf("%s: shard %d/%d is not K/N with 1 ≤ K ≤ N", file, p.Shard[0], p.Shard[1])

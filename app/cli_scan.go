@@ -3,6 +3,7 @@ package main
 import (
 	"flag"
 	"fmt"
+	"io"
 	"strconv"
 	"strings"
 
@@ -13,7 +14,7 @@ import (
 
 var scanCommand = &command{
 	name:    "scan",
-	args:    "--probe DIR [--csv | --json] [--max-dead N]",
+	args:    "--probe DIR [--csv | --json] [--max-dead N] [--shard K/N]",
 	summary: "find dead, rare and constant filters over a folder of probe images",
 	about: `Runs the model on every image in the probe folder and records, for each channel
 of each ReLU-like activation layer, on what fraction of the images it fired
@@ -22,7 +23,9 @@ rare (fired on fewer than --rare of the images), constant (one value everywhere)
 zero_kernel and duplicate (from the weights of the convolution feeding it).
 
 With --max-dead N the exit status is 3 when more than N channels are dead, so a
-training pipeline can stop a bad run.`,
+training pipeline can stop a bad run. With --shard K/N only the K-th of N slices of
+the sorted probe files is scanned and the counts are printed as JSON;
+` + "`fovea merge PART...`" + ` adds the N parts up into exactly what one scan prints.`,
 	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
 		probe := fs.String("probe", "", "folder `DIR` of probe images (default for the demo: its own probe images)")
 		asCSV := fs.Bool("csv", false, "print every channel as CSV")
@@ -31,6 +34,7 @@ training pipeline can stop a bad run.`,
 		rare := fs.Float64("rare", analysis.DefaultRare, "`FRACTION` of images under which a firing channel is rare")
 		skip := fs.Bool("skip-unreadable", false, "pass over probe files that cannot be read (listed in the report) instead of stopping")
 		all := fs.Bool("all", false, "list every channel in the table, not only flagged ones")
+		shard := fs.String("shard", "", "scan only slice `K/N` (1 ≤ K ≤ N) of the sorted probe files and print its counts as JSON")
 		return func(j *job) int {
 			if *asCSV && *asJSON {
 				return j.usageErr("give --csv or --json, not both")
@@ -55,42 +59,85 @@ training pipeline can stop a bad run.`,
 			if err != nil {
 				return j.fail(err)
 			}
-			r, err := j.ws.Scan(j.ctx, files, analysis.ScanOptions{Rare: *rare, SkipUnreadable: *skip}, j.progressFunc("scanning"))
+			opt := analysis.ScanOptions{Rare: *rare, SkipUnreadable: *skip}
+			if *shard != "" {
+				if *asCSV || *asJSON || *maxDead >= 0 {
+					return j.usageErr("--shard prints its counts as JSON; give --csv, --json or --max-dead to `fovea merge`")
+				}
+				return scanShard(j, *shard, files, opt)
+			}
+			r, err := j.ws.Scan(j.ctx, files, opt, j.progressFunc("scanning"))
 			if err != nil {
 				return j.fail(err)
 			}
 			if cf.verbose {
 				fmt.Fprintf(j.stderr, "scan time:     %s\n", r.Stages)
 			}
-			code := exitOK
-			switch {
-			case *asJSON:
-				if err := r.WriteJSON(j.stdout); err != nil {
-					code = j.fail(err)
-				}
-			case *asCSV:
-				if err := r.WriteCSV(j.stdout); err != nil {
-					code = j.fail(err)
-				}
-			default:
-				writeScanTable(j, r, *all)
-			}
-			if code != exitOK {
-				return code
-			}
-			if dead := r.Count(modelio.FlagDead); *maxDead >= 0 && dead > *maxDead {
-				fmt.Fprintf(j.stderr, "fovea scan: %d dead channels, more than --max-dead %d\n", dead, *maxDead)
-				return exitGate
-			}
-			return exitOK
+			return writeScan(j.cli, "scan", j.ws.Name(), r, *asJSON, *asCSV, *all, *maxDead)
 		}
 	},
 }
 
+// writeScan prints a scan report in the chosen form and applies --max-dead.
+func writeScan(c *cli, cmd, model string, r *analysis.ScanReport, asJSON, asCSV, all bool, maxDead int) int {
+	code := exitOK
+	fail := func(err error) int {
+		fmt.Fprintf(c.stderr, "fovea %s: %v\n", cmd, err)
+		return exitFail
+	}
+	switch {
+	case asJSON:
+		if err := r.WriteJSON(c.stdout); err != nil {
+			code = fail(err)
+		}
+	case asCSV:
+		if err := r.WriteCSV(c.stdout); err != nil {
+			code = fail(err)
+		}
+	default:
+		writeScanTable(c.stdout, model, r, all)
+	}
+	if code != exitOK {
+		return code
+	}
+	if dead := r.Count(modelio.FlagDead); maxDead >= 0 && dead > maxDead {
+		fmt.Fprintf(c.stderr, "fovea %s: %d dead channels, more than --max-dead %d\n", cmd, dead, maxDead)
+		return exitGate
+	}
+	return exitOK
+}
+
+// scanShard scans the K-th of N slices of files and prints its counts.
+func scanShard(j *job, spec string, files []string, opt analysis.ScanOptions) int {
+	k, n, err := parseShard(spec)
+	if err != nil {
+		return j.usageErr("--shard %s: %v", spec, err)
+	}
+	part := analysis.EmptyScanPart(j.ws.Model, opt.Rare)
+	if sh := files[len(files)*k/n : len(files)*(k+1)/n]; len(sh) > 0 {
+		r, err := j.ws.Scan(j.ctx, sh, opt, j.progressFunc("scanning"))
+		if err != nil {
+			return j.fail(err)
+		}
+		part = r.Part()
+	}
+	cfg, _ := j.ws.Prep()
+	return j.writeJSON(scanPartDoc{Format: partFormat, Command: "scan", Model: j.ws.Name(), Shard: [2]int{k + 1, n}, Settings: cfg.String(), Result: part})
+}
+
+// scanPartDoc is what `scan --shard K/N` prints.
+type scanPartDoc struct {
+	Format   string             `json:"format"`
+	Command  string             `json:"command"`
+	Model    string             `json:"model"`
+	Shard    [2]int             `json:"shard"`
+	Settings string             `json:"settings"`
+	Result   *analysis.ScanPart `json:"result"`
+}
+
 // writeScanTable prints the flagged channels (or all) and a summary per layer.
-func writeScanTable(j *job, r *analysis.ScanReport, all bool) {
-	w := j.stdout
-	fmt.Fprintf(w, "%s: %d probe images, rare below %g of them\n", j.ws.Name(), r.Images, r.Rare)
+func writeScanTable(w io.Writer, model string, r *analysis.ScanReport, all bool) {
+	fmt.Fprintf(w, "%s: %d probe images, rare below %g of them\n", model, r.Images, r.Rare)
 	for _, s := range r.Skipped {
 		fmt.Fprintf(w, "skipped (unreadable): %s\n", s)
 	}

@@ -5,10 +5,10 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"io"
 	"math"
 	"slices"
 	"strings"
-	"sync"
 
 	"fovea/modelio/classes"
 	"fovea/modelio/infer"
@@ -42,8 +42,8 @@ type EvalRow struct {
 // Correct reports whether the most probable class is the true one.
 func (r EvalRow) Correct() bool { return r.True == r.Predicted }
 
-// Skipped is an entry that was not evaluated, and why.
-type Skipped struct {
+// SkippedEntry is an entry that was not evaluated, and why.
+type SkippedEntry struct {
 	Index  int    `json:"index"` // position in the sorted entries of the whole data set
 	File   string `json:"file"`
 	Reason string `json:"reason"`
@@ -68,8 +68,8 @@ type Evaluation struct {
 	Mistakes []EvalRow `json:"mistakes"`
 	// LeastSure: the KeepLeastSure correct answers with the smallest Margin
 	// (then Index).
-	LeastSure []EvalRow `json:"least_sure"`
-	Skipped   []Skipped `json:"skipped"` // by Index
+	LeastSure []EvalRow      `json:"least_sure"`
+	Skipped   []SkippedEntry `json:"skipped"` // by Index
 	// Rows holds every evaluated image's row, by Index; only a run fills it
 	// (the window lists a confusion cell's images from it), not a merge.
 	Rows []EvalRow `json:"-"`
@@ -104,14 +104,14 @@ func Evaluate(ctx context.Context, s Runner, data *Labelled, c prep.Config, o Ev
 		return nil, fmt.Errorf("viz: evaluate: %w", err)
 	}
 	e := &Evaluation{Model: o.Model, Data: data.Source, Entries: o.Entries, Labels: o.Labels,
-		Mistakes: []EvalRow{}, LeastSure: []EvalRow{}, Skipped: []Skipped{}}
+		Mistakes: []EvalRow{}, LeastSure: []EvalRow{}, Skipped: []SkippedEntry{}}
 	if e.Entries == 0 {
 		e.Entries = len(data.Samples)
 	}
 	var work []int // indices into data.Samples of the images to run
 	for i, smp := range data.Samples {
 		if smp.Problem != "" {
-			e.Skipped = append(e.Skipped, Skipped{Index: o.Offset + i, File: smp.File, Reason: smp.Problem})
+			e.Skipped = append(e.Skipped, SkippedEntry{Index: o.Offset + i, File: smp.File, Reason: smp.Problem})
 			continue
 		}
 		work = append(work, i)
@@ -122,22 +122,19 @@ func Evaluate(ctx context.Context, s Runner, data *Labelled, c prep.Config, o Ev
 	if err := ctx.Err(); err != nil {
 		return nil, err
 	}
-	size := c.Len()
-	bs := max(1, min(s.BatchSize(), len(work)))
-	load := func(k int, dst []float32) error {
-		img, err := data.Load(data.Samples[work[k]].File)
-		if err != nil {
-			return err
-		}
-		c.TensorFromImage(prep.Fit(img, c), dst)
-		return nil
+	names := make([]string, len(work))
+	for k, i := range work {
+		names[k] = data.name(data.Samples[i].File)
 	}
-	err := runBatches(ctx, s, len(work), bs, size, load, func(res *infer.Result, batch []int, skipped []loadFailure) error {
+	bs := max(1, min(s.BatchSize(), len(work)))
+	feed := NewFeed(ctx, names, c, FeedOptions{FS: data.fsys, Batch: bs, SkipUnreadable: true})
+	defer feed.Close()
+	err := evalFeed(ctx, s, feed, names, c.Len(), func(res *infer.Result, ks []int, skipped []loadFailure) error {
 		for _, f := range skipped {
 			i := work[f.k]
-			e.Skipped = append(e.Skipped, Skipped{Index: o.Offset + i, File: data.Samples[i].File, Reason: f.reason})
+			e.Skipped = append(e.Skipped, SkippedEntry{Index: o.Offset + i, File: data.Samples[i].File, Reason: f.reason})
 		}
-		for b, k := range batch {
+		for b, k := range ks {
 			i := work[k]
 			smp := data.Samples[i]
 			scores := res.Scores(b)
@@ -154,17 +151,18 @@ func Evaluate(ctx context.Context, s Runner, data *Labelled, c prep.Config, o Ev
 				return fmt.Errorf("viz: evaluate: the model gave %d scores for %s, %d before", len(scores), smp.File, e.Classes)
 			}
 			if smp.Class >= e.Classes {
-				e.Skipped = append(e.Skipped, Skipped{Index: o.Offset + i, File: smp.File,
+				e.Skipped = append(e.Skipped, SkippedEntry{Index: o.Offset + i, File: smp.File,
 					Reason: fmt.Sprintf("class %d, but the model has %d classes", smp.Class, e.Classes)})
 				continue
 			}
 			p, _ := classes.Probabilities(scores)
 			e.add(answer(o.Offset+i, smp.File, smp.Class, p))
 		}
-		if progress != nil && len(batch) > 0 {
-			progress(work[batch[len(batch)-1]]+1, len(data.Samples))
-		}
 		return nil
+	}, func(done int) {
+		if progress != nil && done > 0 {
+			progress(work[done-1]+1, len(data.Samples))
+		}
 	})
 	if err != nil {
 		if ctx.Err() != nil {
@@ -256,7 +254,7 @@ func (e *Evaluation) finish() {
 		return cmp.Or(cmp.Compare(b.PPredicted, a.PPredicted), cmp.Compare(a.Index, b.Index))
 	})
 	e.trimLeastSure()
-	slices.SortFunc(e.Skipped, func(a, b Skipped) int { return cmp.Compare(a.Index, b.Index) })
+	slices.SortFunc(e.Skipped, func(a, b SkippedEntry) int { return cmp.Compare(a.Index, b.Index) })
 	slices.SortFunc(e.Rows, func(a, b EvalRow) int { return cmp.Compare(a.Index, b.Index) })
 }
 
@@ -269,7 +267,7 @@ func Merge(parts []*Evaluation) (*Evaluation, error) {
 		return nil, errors.New("viz: merge: no parts")
 	}
 	out := &Evaluation{Model: parts[0].Model, Data: parts[0].Data, Entries: parts[0].Entries,
-		Mistakes: []EvalRow{}, LeastSure: []EvalRow{}, Skipped: []Skipped{}}
+		Mistakes: []EvalRow{}, LeastSure: []EvalRow{}, Skipped: []SkippedEntry{}}
 	for _, p := range parts {
 		if p.Model != out.Model || p.Data != out.Data || p.Entries != out.Entries {
 			return nil, fmt.Errorf("viz: merge: parts of different runs (model %q, data %q, %d entries; and model %q, data %q, %d entries)",
@@ -407,52 +405,49 @@ type loadFailure struct {
 	reason string
 }
 
-// feedBatch is a batch of prepared images on its way to the model.
-type feedBatch struct {
-	data    []float32
-	ks      []int // work indices of the images in data, in order
-	skipped []loadFailure
-}
-
-// runBatches is the evaluation's image pipeline: one goroutine decodes
-// images 0..n-1 (load) into batches of up to bs while the model runs the
-// previous batch; use gets each batch's result with the work indices it
-// holds and the images that failed to load. Three input buffers circulate,
-// so memory does not grow with n. It returns use's first error, a run's
-// error, or ctx.Err() after every goroutine finished.
-func runBatches(ctx context.Context, s Runner, n, bs, size int, load func(k int, dst []float32) error,
-	use func(res *infer.Result, ks []int, skipped []loadFailure) error) error {
-	const buffers = 3
-	free := make(chan []float32, buffers)
-	for i := 0; i < buffers; i++ {
-		free <- make([]float32, bs*size)
-	}
-	full := make(chan feedBatch, 1)
-	ctx2, cancel := context.WithCancel(ctx)
-	var wg sync.WaitGroup
-	defer func() {
-		cancel()
-		wg.Wait()
-	}()
-	wg.Add(1)
-	go func() {
-		defer wg.Done()
-		defer close(full)
-		decodeFeed(ctx2, n, bs, size, load, free, full)
-	}()
+// evalFeed runs the batches of feed (the shared decoding pipeline, in file
+// order, over names) through s and hands each result to use with the work indices of
+// its images and of the files that could not be read; done gets the number
+// of files covered so far. It returns use's first error, a run's error or
+// ctx.Err().
+func evalFeed(ctx context.Context, s Runner, feed *Feed, names []string, size int,
+	use func(res *infer.Result, ks []int, skipped []loadFailure) error, done func(int)) error {
 	var res *infer.Result
-	for b := range full {
-		if len(b.ks) > 0 {
-			var err error
-			res, err = s.RunInto(ctx, b.data[:len(b.ks)*size], len(b.ks), res)
-			if err != nil {
+	next := 0 // first work index not yet accounted for
+	for {
+		b, err := feed.Next()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			return fmt.Errorf("viz: evaluate: %w", err)
+		}
+		// A batch covers work indices [next, b.Done): its images in order,
+		// less the skipped ones (in order too).
+		var ks []int
+		var skipped []loadFailure
+		sk := 0
+		for k := next; k < b.Done; k++ {
+			if sk < len(b.Skipped) && (len(ks) == b.N || names[k] == b.Skipped[sk].File) {
+				skipped = append(skipped, loadFailure{k: k, reason: reason(b.Skipped[sk].Err)})
+				sk++
+				continue
+			}
+			ks = append(ks, k)
+		}
+		next = b.Done
+		if b.N > 0 {
+			if res, err = s.RunInto(ctx, b.Data[:b.N*size], b.N, res); err != nil {
+				feed.Release(b)
 				return fmt.Errorf("viz: evaluate: %w", err)
 			}
 		}
-		if err := use(res, b.ks, b.skipped); err != nil {
+		err = use(res, ks, skipped)
+		feed.Release(b)
+		if err != nil {
 			return err
 		}
-		free <- b.data
+		done(next)
 	}
 	return ctx.Err()
 }
@@ -460,37 +455,4 @@ func runBatches(ctx context.Context, s Runner, n, bs, size int, load func(k int,
 // reason is an error message for a person: the package prefix dropped.
 func reason(err error) string {
 	return strings.TrimPrefix(err.Error(), "prep: ")
-}
-
-// decodeFeed fills batches: the evaluation's only tie to how images are
-// decoded, so that a shared decoding pipeline can replace it.
-func decodeFeed(ctx context.Context, n, bs, size int, load func(k int, dst []float32) error,
-	free <-chan []float32, full chan<- feedBatch) {
-	next := 0
-	for next < n {
-		var buf []float32
-		select {
-		case buf = <-free:
-		case <-ctx.Done():
-			return
-		}
-		b := feedBatch{data: buf}
-		for len(b.ks) < bs && next < n {
-			if ctx.Err() != nil {
-				return
-			}
-			k := next
-			next++
-			if err := load(k, buf[len(b.ks)*size:(len(b.ks)+1)*size]); err != nil {
-				b.skipped = append(b.skipped, loadFailure{k: k, reason: reason(err)})
-				continue
-			}
-			b.ks = append(b.ks, k)
-		}
-		select {
-		case full <- b:
-		case <-ctx.Done():
-			return
-		}
-	}
 }

@@ -442,7 +442,7 @@ func TestReadList(t *testing.T) {
 		{"x/b.png\tcat\nx/a.png\tbird\n", []Sample{{"x/a.png", -1, `unknown label "bird"`}, {"x/b.png", 0, ""}}},
 		{"a.png\nb.png,2\n", []Sample{{"b.png", -1, "class 2 is outside 0…1"}, {"l.csv:1", -1, "line has no label (want path,label)"}}},
 	} {
-		l, err := ReadList([]byte(tc.text), "l.csv", r, fsys.Open)
+		l, err := ReadList([]byte(tc.text), "l.csv", r, fsys, ".")
 		if err != nil {
 			t.Errorf("%q: %v", tc.text, err)
 			continue
@@ -451,7 +451,7 @@ func TestReadList(t *testing.T) {
 			t.Errorf("%q: %+v, want %+v", tc.text, l.Samples, tc.want)
 		}
 	}
-	if _, err := ReadList([]byte("a.png,\"cat\n"), "l.csv", r, fsys.Open); err == nil || !strings.Contains(err.Error(), "l.csv: line 1") {
+	if _, err := ReadList([]byte("a.png,\"cat\n"), "l.csv", r, fsys, "."); err == nil || !strings.Contains(err.Error(), "l.csv: line 1") {
 		t.Errorf("bad quoting: err %v, want one naming l.csv line 1", err)
 	}
 }

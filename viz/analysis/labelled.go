@@ -37,19 +37,20 @@ type Sample struct {
 type Labelled struct {
 	Source  string   // the folder or list file as given, for messages
 	Samples []Sample // sorted by File
-	// open opens a sample's File for reading.
-	open func(file string) (fs.File, error)
-	// local is a sample's path on disk; nil for data not on disk.
-	local func(file string) string
+	// fsys holds the images; nil means the operating system's files.
+	fsys fs.FS
+	// name is the name a sample's File is opened under: in fsys, or a path
+	// of the operating system when fsys is nil.
+	name func(file string) string
 }
 
 // Path returns the file system path of a sample's File, or "" when the
 // data is not on disk (an embedded or in-memory fs.FS).
 func (l *Labelled) Path(file string) string {
-	if l.local == nil {
+	if l.fsys != nil {
 		return ""
 	}
-	return l.local(file)
+	return l.name(file)
 }
 
 // Images counts the entries that are samples (no Problem).
@@ -66,7 +67,10 @@ func (l *Labelled) Images() int {
 // Load decodes a sample's image with prep's limits and EXIF orientation,
 // exactly as prep.Load does for a file on disk.
 func (l *Labelled) Load(file string) (image.Image, error) {
-	f, err := l.open(file)
+	if l.fsys == nil {
+		return prep.Load(l.name(file))
+	}
+	f, err := l.fsys.Open(l.name(file))
 	if err != nil {
 		return nil, fmt.Errorf("prep: %w", err)
 	}
@@ -158,7 +162,7 @@ func ReadFolder(fsys fs.FS, root string, r ClassResolver) (*Labelled, error) {
 	if err != nil {
 		return nil, fmt.Errorf("viz: labelled folder: %w", err)
 	}
-	l := &Labelled{Source: root, open: func(file string) (fs.File, error) { return fsys.Open(path.Join(root, file)) }}
+	l := &Labelled{Source: root, fsys: fsys, name: func(file string) string { return path.Join(root, file) }}
 	for _, e := range ents {
 		name := e.Name()
 		if strings.HasPrefix(name, ".") {
@@ -230,8 +234,9 @@ func OpenFolder(dir string, r ClassResolver) (*Labelled, error) {
 	if err != nil {
 		return nil, err
 	}
-	l.Source = dir
-	l.local = func(file string) string { return filepath.Join(dir, filepath.FromSlash(file)) }
+	// Opened as paths: the same as classify's prep.Load of the file.
+	l.Source, l.fsys = dir, nil
+	l.name = func(file string) string { return filepath.Join(dir, filepath.FromSlash(file)) }
 	return l, nil
 }
 
@@ -246,9 +251,10 @@ const MaxListBytes = 256 << 20
 // comments. A line with one field, an empty path or an unknown label becomes
 // an entry with a Problem named "list:LINE" or by its path.
 //
-// open opens a path as written in the list; OpenList gives one for files on
-// disk.
-func ReadList(data []byte, name string, r ClassResolver, open func(file string) (fs.File, error)) (*Labelled, error) {
+// Paths are opened in fsys relative to dir (fsys nil: the operating
+// system's files, relative to dir unless absolute); OpenList and ReadListFS
+// give both.
+func ReadList(data []byte, name string, r ClassResolver, fsys fs.FS, dir string) (*Labelled, error) {
 	comma := ','
 	first, _, _ := bytes.Cut(data, []byte("\n"))
 	if bytes.ContainsRune(first, '\t') {
@@ -259,7 +265,15 @@ func ReadList(data []byte, name string, r ClassResolver, open func(file string) 
 	cr.Comment = '#'
 	cr.FieldsPerRecord = -1
 	cr.ReuseRecord = true
-	l := &Labelled{Source: name, open: open}
+	l := &Labelled{Source: name, fsys: fsys, name: func(p string) string { return path.Join(dir, p) }}
+	if fsys == nil {
+		l.name = func(p string) string {
+			if filepath.IsAbs(p) {
+				return p
+			}
+			return filepath.Join(dir, filepath.FromSlash(p))
+		}
+	}
 	for rowNo := 0; ; rowNo++ {
 		rec, err := cr.Read()
 		if err == io.EOF {
@@ -317,19 +331,7 @@ func OpenList(file string, r ClassResolver) (*Labelled, error) {
 	if err != nil {
 		return nil, fmt.Errorf("viz: list: %w", err)
 	}
-	dir := filepath.Dir(file)
-	local := func(p string) string {
-		if !filepath.IsAbs(p) {
-			p = filepath.Join(dir, filepath.FromSlash(p))
-		}
-		return p
-	}
-	l, err := ReadList(data, file, r, func(p string) (fs.File, error) { return os.Open(local(p)) })
-	if err != nil {
-		return nil, err
-	}
-	l.local = local
-	return l, nil
+	return ReadList(data, file, r, nil, filepath.Dir(file))
 }
 
 // sortSamples orders entries by File; equal names keep their read order.
@@ -344,6 +346,5 @@ func ReadListFS(fsys fs.FS, name string, r ClassResolver) (*Labelled, error) {
 	if err != nil {
 		return nil, fmt.Errorf("viz: list: %w", err)
 	}
-	dir := path.Dir(name)
-	return ReadList(data, name, r, func(p string) (fs.File, error) { return fsys.Open(path.Join(dir, p)) })
+	return ReadList(data, name, r, fsys, path.Dir(name))
 }

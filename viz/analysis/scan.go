@@ -52,7 +52,8 @@ type ScanReport struct {
 	Layers  []ScanLayer `json:"layers"`
 	// Stages says where the scan's time went (for --verbose); it is not
 	// part of the result and differs from run to run.
-	Stages Stages `json:"-"`
+	Stages Stages    `json:"-"`
+	part   *ScanPart // the counts behind the report (ScanReport.Part)
 }
 
 // ScanLayer is the scan of one activation layer.
@@ -144,11 +145,11 @@ func feedingConv(m *modelio.Model, i int) int {
 
 // channelAcc accumulates one channel's statistics over images.
 type channelAcc struct {
-	fires  int     // images on which some value was > 0
-	max    float64 // largest value so far
-	sum    float64 // sum of all values so far
-	first  float32 // the first value seen
-	varies bool    // some value differed from first
+	fires  int      // images on which some value was > 0
+	max    float64  // largest value so far
+	sum    exactSum // sum of all values so far, exact (shards merge to the same sum)
+	first  float32  // the first value seen
+	varies bool     // some value differed from first
 }
 
 // layerAcc accumulates one layer: the channel axis is 1 (ONNX's NCHW
@@ -205,7 +206,7 @@ func (a *layerAcc) addChannels(t modelio.Tensor, n, lo, hi int) {
 			if float64(mx) > acc.max || mx != mx {
 				acc.max = float64(mx)
 			}
-			acc.sum += sum
+			acc.sum.add(sum)
 			if !acc.varies {
 				// Only channels that have looked constant so far are
 				// compared value by value; most stop at the first value.
@@ -529,37 +530,13 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 	}
 	st.Decode, st.Prepare = feed.Stages()
 	st.Summarise = summarise
-	for _, a := range accs {
-		l := ScanLayer{Name: a.layer.Name, Output: a.layer.Output}
-		var kflags map[int][]modelio.Flag
-		if kf, ok := kernels[a.conv]; ok && kf.m == len(a.channels) {
-			l.Conv = m.Layers[a.conv].Name
-			kflags = kf.flags
-		}
-		for i, ch := range a.channels {
-			cs := ChannelScan{Index: i, Fires: float64(ch.fires) / float64(rep.Images), Max: ch.max,
-				Mean: ch.sum / float64(a.values), Flags: []modelio.Flag{}}
-			switch {
-			case ch.fires == 0:
-				cs.Flags = append(cs.Flags, modelio.FlagDead)
-			case cs.Fires < rare:
-				cs.Flags = append(cs.Flags, modelio.FlagRare)
-			}
-			if ch.fires > 0 && !ch.varies {
-				cs.Flags = append(cs.Flags, modelio.FlagConstant)
-			}
-			if !finite(cs.Max) || !finite(cs.Mean) {
-				// Firing and constancy mean little for such a channel.
-				cs.Max, cs.Mean = 0, 0
-				cs.Flags = append(cs.Flags[:0], FlagNotFinite)
-			}
-			cs.Flags = append(cs.Flags, kflags[i]...)
-			l.Channels = append(l.Channels, cs)
-		}
-		rep.Layers = append(rep.Layers, l)
+	out, err := scanPart(m, accs, kernels, rep.Images, rep.Skipped, rare).Report()
+	if err != nil {
+		return nil, err
 	}
-	st.Wall = time.Since(start)
-	return rep, nil
+	out.Stages = rep.Stages
+	out.Stages.Wall = time.Since(start)
+	return out, nil
 }
 
 // spinMACsPerPixel is where scan sessions switch to spinning worker threads:

@@ -150,8 +150,8 @@ func TestAddParallel(t *testing.T) {
 			t.Fatalf("%s: the dead or constant channel or the count is not what the maps hold: %+v, %d values", a.layer.Output, a.channels[:2], a.values)
 		}
 	}
-	if !math.IsNaN(ref[0].channels[3].sum) {
-		t.Fatalf("the NaN did not reach the sum: %v", ref[0].channels[3].sum)
+	if !math.IsNaN(ref[0].channels[3].sum.float64()) {
+		t.Fatalf("the NaN did not reach the sum: %v", ref[0].channels[3].sum.float64())
 	}
 	for parts := 2; parts <= 7; parts++ {
 		got := run(parts)
@@ -159,7 +159,7 @@ func TestAddParallel(t *testing.T) {
 			for c, ch := range a.channels {
 				r := ref[i].channels[c]
 				if ch.fires != r.fires || math.Float64bits(ch.max) != math.Float64bits(r.max) ||
-					math.Float64bits(ch.sum) != math.Float64bits(r.sum) || ch.varies != r.varies || ch.first != r.first {
+					math.Float64bits(ch.sum.float64()) != math.Float64bits(r.sum.float64()) || ch.varies != r.varies || ch.first != r.first {
 					t.Errorf("%d parts, %s channel %d: %+v, one goroutine %+v", parts, a.layer.Output, c, ch, r)
 				}
 			}
