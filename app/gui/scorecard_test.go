@@ -45,6 +45,13 @@ func TestScorecardFromMatrixToOcclusion(t *testing.T) {
 			t.Errorf("thumbnail %d: %+v, image loaded %v", i, it.row, it.img != nil)
 		}
 	}
+	u.do(func() { test.Tap(button(t, u, "Least sure right")) })
+	u.wait()
+	if len(v.items) != min(len(e.LeastSure), maxThumbs) || len(v.items) == 0 || !v.items[0].row.Correct() {
+		t.Errorf("least sure right: %d thumbnails for %d rows", len(v.items), len(e.LeastSure))
+	}
+	u.do(func() { test.TapAt(v.matrix, at) })
+	u.wait()
 	row := v.items[0].row
 	u.do(func() { v.grid.OnSelected(0) })
 	u.wait()

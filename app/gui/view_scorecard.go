@@ -114,12 +114,13 @@ func newScorecardView(u *ui) *scorecardView {
 		}
 	}
 	mistakes := widget.NewButton("All mistakes", func() { v.showCell(-1, -1) })
+	unsure := widget.NewButton("Least sure right", func() { v.showCell(-2, -2) })
 	bar := container.NewVBox(
 		container.NewBorder(nil, nil, widget.NewLabel("Labelled data:"), nil, v.source),
 		container.NewHBox(folder, list, demo, v.runBtn, v.pngBtn, v.csvBtn))
 	left := container.NewBorder(note("Rows: true class. Columns: predicted. Click a cell."), nil, nil, nil,
 		container.NewScroll(v.matrix))
-	right := container.NewBorder(container.NewBorder(nil, nil, nil, mistakes, v.cellTxt), nil, nil, nil, v.grid)
+	right := container.NewBorder(container.NewBorder(nil, nil, nil, container.NewVBox(mistakes, unsure), v.cellTxt), nil, nil, nil, v.grid)
 	split := container.NewHSplit(left, right)
 	split.SetOffset(0.5)
 	v.content = container.NewBorder(container.NewVBox(bar, v.jobs.box, v.thumbs.box, v.summary), nil, nil, nil, split)
@@ -294,8 +295,9 @@ func (v *scorecardView) tapped(pt image.Point) {
 	}
 }
 
-// showCell lists the images of cell (t, p) as thumbnails; t < 0 lists all
-// mistakes, most confident first. Thumbnails load off the UI goroutine.
+// showCell lists the images of cell (t, p) as thumbnails; t = -1 lists all
+// mistakes, most confident first, t = -2 the right answers with the
+// smallest margin. Thumbnails load off the UI goroutine.
 func (v *scorecardView) showCell(t, p int) {
 	e, set, ws := v.eval, v.set, v.u.ws
 	if e == nil || set == nil || ws == nil {
@@ -303,10 +305,14 @@ func (v *scorecardView) showCell(t, p int) {
 	}
 	var rows []analysis.EvalRow
 	var what string
-	if t < 0 {
+	switch {
+	case t == -1:
 		rows = e.Mistakes
 		what = fmt.Sprintf("All %d mistakes, most confident first", len(rows))
-	} else {
+	case t < 0:
+		rows = e.LeastSure
+		what = fmt.Sprintf("The %d right answers with the smallest margin between the two most probable classes", len(rows))
+	default:
 		rows = e.Cell(t, p)
 		if t != p {
 			// The most confident mistakes first, as in the mistakes list.
