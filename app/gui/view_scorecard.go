@@ -226,7 +226,7 @@ func (v *scorecardView) run() {
 	}
 	data := v.data
 	if data == "" && ws.Demo == "" && !hasDemoLabels(ws) {
-		u.showError("Evaluation", fmt.Errorf("choose a labelled folder or list file first"))
+		u.showError("Evaluation", fmt.Errorf("the demo's probe images fit only the demo's classes: choose a labelled folder or list file for %s", ws.Name()))
 		return
 	}
 	u.showView(viewScorecard)
@@ -244,6 +244,13 @@ func (v *scorecardView) run() {
 		e, err := ws.Evaluate(ctx, set, analysis.EvalOptions{}, progress)
 		if err != nil {
 			return nil, err
+		}
+		if e.Images == 0 {
+			first := ""
+			if len(e.Skipped) > 0 {
+				first = fmt.Sprintf("; the first, %s: %s", e.Skipped[0].File, e.Skipped[0].Reason)
+			}
+			return nil, fmt.Errorf("%s: none of the %d entries could be evaluated%s", set.Source, len(set.Samples), first)
 		}
 		return func(current bool) {
 			if current {

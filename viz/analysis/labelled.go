@@ -279,14 +279,14 @@ func ReadList(data []byte, name string, r ClassResolver, fsys fs.FS, dir string)
 		if err == io.EOF {
 			break
 		}
-		line, _ := cr.FieldPos(0)
 		if err != nil {
 			var pe *csv.ParseError
 			if errors.As(err, &pe) {
-				line = pe.Line
+				return nil, fmt.Errorf("viz: list %s: line %d: %v", name, pe.Line, pe.Err)
 			}
-			return nil, fmt.Errorf("viz: list %s: line %d: %v", name, line, err)
+			return nil, fmt.Errorf("viz: list %s: %v", name, err)
 		}
+		line, _ := cr.FieldPos(0)
 		where := name + ":" + strconv.Itoa(line)
 		if rowNo == 0 && len(rec) > 0 {
 			switch strings.ToLower(strings.TrimSpace(strings.TrimPrefix(rec[0], "\ufeff"))) {
