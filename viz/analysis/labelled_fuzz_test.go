@@ -20,7 +20,7 @@ func FuzzReadList(f *testing.F) {
 	}
 	r := ClassResolver{Labels: []string{"cat", "dog"}, Classes: 2}
 	f.Fuzz(func(t *testing.T, data []byte) {
-		l, err := ReadList(data, "list.csv", r, fstest.MapFS{}.Open)
+		l, err := ReadList(data, "list.csv", r, fstest.MapFS{}, ".")
 		if err != nil {
 			return
 		}
