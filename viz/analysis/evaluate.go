@@ -91,9 +91,9 @@ type EvalOptions struct {
 // correct answers. Probabilities are classes.Probabilities of the scores
 // (softmax unless the output already is a distribution), as for one image.
 //
-// Images are decoded in batches of s.BatchSize() by one goroutine while the
-// model runs on the previous batch; memory grows with the number of images
-// by one EvalRow each, nothing more. An unreadable image, an entry with a
+// Images are decoded by the shared Feed (a pool of workers, batches of
+// s.BatchSize() in file order) while the model runs on the previous batch;
+// memory grows with the number of images by one EvalRow each, nothing more. An unreadable image, an entry with a
 // Problem and a class the model has no score for are recorded in Skipped
 // and the run goes on. progress, when not nil, gets the entries done and
 // the total. A cancelled ctx returns ctx.Err() promptly with every goroutine
