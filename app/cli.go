@@ -154,7 +154,6 @@ func (cmd *command) run(c *cli, args []string) int {
 		return j.fail(err)
 	}
 	defer ws.Close()
-	defer core.Cleanup()
 	j.ws = ws
 	if err := j.applyPrep(&cf.prep); err != nil {
 		return j.fail(err)

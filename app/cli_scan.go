@@ -45,21 +45,19 @@ the sorted probe files is scanned and the counts are printed as JSON;
 			if *maxDead < -1 {
 				return j.usageErr("--max-dead %d: give 0 or more (or -1 for no limit)", *maxDead)
 			}
-			dir := *probe
-			if dir == "" {
-				if j.ws.Demo == "" {
-					return j.usageErr("--probe DIR is required for your own model")
-				}
-				var err error
-				if dir, err = core.DemoProbeDir(); err != nil {
-					return j.fail(err)
-				}
+			opt := analysis.ScanOptions{Rare: *rare, SkipUnreadable: *skip}
+			var files []string
+			var err error
+			if *probe != "" {
+				files, err = core.ProbeFiles(*probe)
+			} else if j.ws.Demo == "" {
+				return j.usageErr("--probe DIR is required for your own model")
+			} else {
+				opt.FS, files, err = core.DemoProbes()
 			}
-			files, err := core.ProbeFiles(dir)
 			if err != nil {
 				return j.fail(err)
 			}
-			opt := analysis.ScanOptions{Rare: *rare, SkipUnreadable: *skip}
 			if *shard != "" {
 				if *asCSV || *asJSON || *maxDead >= 0 {
 					return j.usageErr("--shard prints its counts as JSON; give --csv, --json or --max-dead to `fovea merge`")

@@ -125,7 +125,6 @@ func (c *cli) window(args []string) int {
 		return exitUsage
 	}
 	o.ORTLib = core.Library()
-	defer core.Cleanup()
 	return gui.Run(o)
 }
 

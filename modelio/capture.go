@@ -53,18 +53,6 @@ var neutralNext = map[string]bool{
 // numbers the separate operator would see: merging them saves time only.
 var sameValueActs = map[string]bool{"Relu": true, "LeakyRelu": true, "Clip": true}
 
-// continuesMap are elementwise steps that carry a feature map on to the same
-// shape: the normalisation, the activation and the residual sum after a
-// convolution. A tensor whose one reader is such a step is an inner stage of
-// the layer, not the map the layer hands on.
-var continuesMap = map[string]bool{
-	"BatchNormalization": true, "InstanceNormalization": true,
-	"Relu": true, "LeakyRelu": true, "PRelu": true, "Clip": true, "Elu": true, "Selu": true, "Celu": true,
-	"ThresholdedRelu": true, "Sigmoid": true, "HardSigmoid": true, "HardSwish": true, "Tanh": true,
-	"Softplus": true, "Softsign": true, "Gelu": true, "Mish": true,
-	"Add": true, "Sub": true, "Mul": true, "Div": true, "Sum": true,
-}
-
 // CaptureEffect says what returning the tensor name besides the model's
 // outputs does to a run (see the type). Unknown names count as free: the
 // rewrite refuses them anyway.
@@ -105,51 +93,4 @@ func (m *Model) soleReader(name string) (int, bool) {
 		return 0, false
 	}
 	return c[0], true
-}
-
-// MapLayers returns the activation layers (ActivationLayers) whose output is
-// the map the layer hands on: it leaves out a layer whose output is read
-// only by a following normalisation, activation or residual sum of the same
-// shape, whose result is that layer's map. For Conv → BatchNormalization →
-// Relu → MaxPool it keeps Relu and MaxPool. Those are the maps a user reads
-// as "what the layer responds to", and capturing only them keeps the
-// runtime's merged steps (CaptureEffect): a run returning them costs little
-// more than a plain one.
-func (m *Model) MapLayers() []Layer {
-	var out []Layer
-	for _, l := range m.ActivationLayers() {
-		if next, ok := m.soleReader(l.Output); ok && continuesMap[m.g.nodes[next].GetOpType()] {
-			var a, b Shape
-			if t := m.g.info[l.Output]; t != nil {
-				a = t.shape
-			}
-			if outs := m.g.nodes[next].GetOutput(); len(outs) > 0 {
-				if t := m.g.info[outs[0]]; t != nil {
-					b = t.shape
-				}
-			}
-			if !shapesDiffer(a, b) {
-				continue // an inner stage of the layer
-			}
-		}
-		out = append(out, l)
-	}
-	return out
-}
-
-// shapesDiffer reports whether two shapes are known to differ: ranks, or a
-// dimension both know. Unknown parts are taken to agree.
-func shapesDiffer(a, b Shape) bool {
-	if a == nil || b == nil {
-		return false
-	}
-	if len(a) != len(b) {
-		return true
-	}
-	for i := range a {
-		if a[i].Known() && b[i].Known() && a[i].Size != b[i].Size {
-			return true
-		}
-	}
-	return false
 }

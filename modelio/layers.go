@@ -166,6 +166,11 @@ func (m *Model) override(name string, o *tinfo) {
 func (m *Model) layer(i int, ins []*tinfo, o *tinfo) Layer {
 	n := m.g.nodes[i]
 	l := Layer{Name: m.g.names[i], Op: n.GetOpType(), Output: n.GetOutput()[0], Shape: cloneShape(o.shape)}
+	for _, in := range n.GetInput() {
+		if in != "" {
+			l.Inputs = append(l.Inputs, in)
+		}
+	}
 	l.Width, l.Height, l.Depth = -1, -1, -1
 	switch {
 	case o.src == SourceObserved:
@@ -651,44 +656,6 @@ func keepAxes(op string, ax axes, in *tinfo, outRank int) axes {
 		return axes{}
 	}
 	return ax
-}
-
-// ActivationLayers returns the layers whose outputs are activation maps
-// worth capturing: rank-4 outputs (one map per channel) of convolutions,
-// activations, pooling, normalisation and merges, with more than one value
-// per map (or a size still unknown). Layout-only ops (Identity, Dropout,
-// Transpose, Reshape, Pad, Cast) are left out, and so is the input
-// normalisation before the first convolution (receptive field 1).
-func (m *Model) ActivationLayers() []Layer {
-	var out []Layer
-	for _, l := range m.Layers {
-		switch l.Op {
-		case "Identity", "Dropout", "Transpose", "Reshape", "Pad", "Cast", "Flatten", "Squeeze", "Unsqueeze",
-			"Shape", "Gather", "Slice", "Split", "Constant", "Softmax", "LogSoftmax", "QuantizeLinear", "DequantizeLinear":
-			continue
-		}
-		if l.ShapeSource == SourceUnknown {
-			if l.Shape != nil && len(l.Shape) != 4 {
-				continue
-			}
-			out = append(out, l)
-			continue
-		}
-		if len(l.Shape) != 4 {
-			continue
-		}
-		if t := m.g.info[l.Output]; t != nil && t.elem != 0 && !elemTypes[t.elem].float {
-			continue
-		}
-		if l.Width == 1 && l.Height == 1 {
-			continue
-		}
-		if l.RF == 1 && l.Jump == 1 {
-			continue // before the first spatial layer: the image rescaled, not a feature map
-		}
-		out = append(out, l)
-	}
-	return out
 }
 
 // layerIndex finds a layer by node name or output tensor name.

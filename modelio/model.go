@@ -121,7 +121,11 @@ type ImageInput struct {
 // volume or a vector computed from the model's inputs.
 type Layer struct {
 	Name, Op, Output string // node name (or op_index when unnamed), op type, output tensor name
-	Shape            Shape  // model's own layout, batch first
+	// Inputs are the tensors the node reads, in the node's order (data
+	// first, then weights and other operands; optional inputs left empty in
+	// the file are left out). Model.LayerOf finds the layer computing one.
+	Inputs []string
+	Shape  Shape // model's own layout, batch first
 	// Width, Height, Depth of the output volume for one image: rank-4
 	// outputs per the tensor's layout (NCHW unless the image's NHWC axes
 	// were tracked to it), rank 3 [N, C, L] as L×1×C, rank 2 [N, F] as

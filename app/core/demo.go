@@ -5,14 +5,13 @@ import (
 	"encoding/hex"
 	"fmt"
 	"image"
-	"os"
+	"io/fs"
 	"path"
-	"path/filepath"
-	"sync"
 
 	"fovea/assets"
 	"fovea/modelio"
 	"fovea/modelio/prep"
+	"fovea/viz/analysis"
 )
 
 // The embedded demo (package assets): a parts-sorting classifier, its
@@ -77,52 +76,13 @@ func DemoImage(name string) (image.Image, error) {
 	return img, nil
 }
 
-var demoTemp struct {
-	sync.Mutex
-	probe string // folder holding the probe images, "" until written
-	dirs  []string
-}
-
-// DemoProbeDir returns a folder holding the demo's probe images. A scan needs
-// file paths, so they are written once per process to a new temporary folder
-// (never into the user's folders); [Cleanup] removes it.
-func DemoProbeDir() (string, error) {
-	demoTemp.Lock()
-	defer demoTemp.Unlock()
-	if demoTemp.probe != "" {
-		if _, err := os.Stat(demoTemp.probe); err == nil {
-			return demoTemp.probe, nil
-		}
-	}
-	probe, err := assets.Probe()
+// DemoProbes returns the embedded demo's probe images: the file system that
+// holds them and their names in it, sorted, for analysis.ScanOptions.FS.
+// Nothing is written to disk.
+func DemoProbes() (fs.FS, []string, error) {
+	names, err := analysis.ProbeFilesFS(assets.Files, assets.ProbeDir)
 	if err != nil {
-		return "", fmt.Errorf("core: embedded demo: %w", err)
+		return nil, nil, fmt.Errorf("core: embedded demo: %w", err)
 	}
-	dir, err := os.MkdirTemp("", "fovea-demo-probe-")
-	if err != nil {
-		return "", fmt.Errorf("core: a temporary folder for the demo's probe images: %w", err)
-	}
-	for _, p := range probe {
-		b, err := assets.Files.ReadFile(p.File)
-		if err == nil {
-			err = os.WriteFile(filepath.Join(dir, path.Base(p.File)), b, 0o644)
-		}
-		if err != nil {
-			os.RemoveAll(dir)
-			return "", fmt.Errorf("core: writing the demo's probe images to %s: %w", dir, err)
-		}
-	}
-	demoTemp.probe = dir
-	demoTemp.dirs = append(demoTemp.dirs, dir)
-	return dir, nil
-}
-
-// Cleanup removes the temporary files the demo needed. Call it before exit.
-func Cleanup() {
-	demoTemp.Lock()
-	defer demoTemp.Unlock()
-	for _, d := range demoTemp.dirs {
-		os.RemoveAll(d)
-	}
-	demoTemp.dirs, demoTemp.probe = nil, ""
+	return assets.Files, names, nil
 }

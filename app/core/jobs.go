@@ -229,7 +229,7 @@ func (w *Workspace) Scan(ctx context.Context, files []string, o analysis.ScanOpt
 	if err != nil {
 		return nil, err
 	}
-	if len(analysis.ScanLayers(w.Model)) == 0 {
+	if len(w.Model.ReluLayers()) == 0 {
 		// A property of the model the user chose, not a failure while running.
 		return nil, inputf(w.Model.Name, "no ReLU-like activation layer to scan (a scan counts how often the channels after Relu, Clip, LeakyRelu and the like fire)")
 	}

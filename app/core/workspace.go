@@ -353,7 +353,7 @@ type kind int
 
 const (
 	plainRun  kind = iota // the logits behind a final Softmax (analysis.OcclusionCapture): classification, occlusion
-	layersRun             // every layer's output the window can show (infer.LayerOutputs)
+	layersRun             // every layer's output the window can show (modelio.OutputsOf of ActivationLayers)
 	scanRun               // the ReLU-like maps a scan reads (analysis.ScanCapture)
 	kinds
 )
@@ -379,7 +379,7 @@ func (w *Workspace) sessionLocked(k kind) (*infer.Session, error) {
 		// log-probability scores; the outputs stay those of a plain run.
 		opt.Capture = analysis.OcclusionCapture(w.Model)
 	case layersRun:
-		opt.Capture = infer.LayerOutputs(w.Model)
+		opt.Capture = modelio.OutputsOf(w.Model.ActivationLayers())
 	case scanRun:
 		opt = analysis.ScanSession(w.Model, opt.Dims)
 	}

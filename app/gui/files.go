@@ -395,13 +395,11 @@ func (u *ui) setActivations(acts *core.Activations) {
 	}
 }
 
-// setProbeDir chooses the folder of probe images for the scan; the user's
-// folders go to the recent list (the demo's is temporary).
+// setProbeDir chooses the folder of probe images for the scan and puts it on
+// the recent list.
 func (u *ui) setProbeDir(dir string) {
-	u.scanDir = dir
-	if dir != u.demoProbes {
-		u.addRecent(prefProbes, dir)
-	}
+	u.scanDir, u.scanDemo = dir, false
+	u.addRecent(prefProbes, dir)
 	u.vHealth.refresh()
 }
 

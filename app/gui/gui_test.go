@@ -39,7 +39,6 @@ func TestMain(m *testing.M) {
 		os.Exit(1)
 	}
 	code := m.Run()
-	core.Cleanup()
 	os.Exit(code)
 }
 

@@ -4,6 +4,7 @@ import (
 	"encoding/binary"
 	"image"
 	"image/color"
+	"io/fs"
 	"math"
 	"os"
 	"path/filepath"
@@ -165,9 +166,20 @@ func TestWindowViewsShowKnownValues(t *testing.T) {
 	// planted filter dead in that layer, and its tile wears the frame of a
 	// severe flag (magenta-red, viz.Tiles) in the ring around it while a
 	// live filter's ring does not.
-	dir, err := core.DemoProbeDir()
+	// The probe images go into a folder, as a user would choose one.
+	dir := t.TempDir()
+	fsys, names, err := core.DemoProbes()
 	if err != nil {
 		t.Fatal(err)
+	}
+	for _, n := range names {
+		b, err := fs.ReadFile(fsys, n)
+		if err == nil {
+			err = os.WriteFile(filepath.Join(dir, filepath.Base(n)), b, 0o644)
+		}
+		if err != nil {
+			t.Fatal(err)
+		}
 	}
 	u.showView(viewHealth)
 	u.setProbeDir(dir)

@@ -59,17 +59,17 @@ type ui struct {
 	perWS  map[*core.Workspace]*sync.WaitGroup
 
 	// What is open.
-	ws         *core.Workspace
-	img        image.Image          // the image as loaded (nil: none)
-	imgName    string               // its file name, or the demo image's name
-	imgPath    string               // its path ("" for an embedded demo image)
-	acts       *core.Activations    // the model's run on img: maps and top-k
-	occ        []*viz.Occlusion     // the last occlusion: predicted class first, then the expected one
-	occPic     *image.NRGBA         // its rendering
-	scan       *analysis.ScanReport // the last dead-filter scan of ws
-	scanDir    string               // the probe folder ("" none chosen)
-	demoProbes string               // the demo's probe folder, once written
-	layer      string               // output tensor of the layer chosen in the layer panel
+	ws       *core.Workspace
+	img      image.Image          // the image as loaded (nil: none)
+	imgName  string               // its file name, or the demo image's name
+	imgPath  string               // its path ("" for an embedded demo image)
+	acts     *core.Activations    // the model's run on img: maps and top-k
+	occ      []*viz.Occlusion     // the last occlusion: predicted class first, then the expected one
+	occPic   *image.NRGBA         // its rendering
+	scan     *analysis.ScanReport // the last dead-filter scan of ws
+	scanDir  string               // the probe folder ("" none chosen)
+	scanDemo bool                 // the last scan read the demo's embedded probe images
+	layer    string               // output tensor of the layer chosen in the layer panel
 	// onImage runs once after the next image was run through the model
 	// (start-up: occlusion when the window opens on that view).
 	onImage func()

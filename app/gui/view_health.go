@@ -230,7 +230,7 @@ func severity(flags []modelio.Flag) int {
 func (v *healthView) refresh() {
 	u := v.u
 	switch {
-	case u.scanDir != "" && u.scanDir == u.demoProbes:
+	case u.scanDir == "" && u.scanDemo:
 		v.folder.SetText("the demo's probe images")
 	case u.scanDir != "":
 		v.folder.SetText(u.scanDir)
@@ -331,30 +331,31 @@ func (v *healthView) run() {
 		return
 	}
 	dir := u.scanDir
-	demo := dir == "" || dir == u.demoProbes
+	demo := dir == ""
 	if demo && ws.Demo == "" {
 		u.showError("Scanning", fmt.Errorf("choose a folder of probe images first"))
 		return
 	}
 	u.showView(viewHealth)
 	v.jobs.launch("Scan", "images", ws, func(ctx context.Context, progress func(int, int)) (result, error) {
+		o := analysis.ScanOptions{Rare: rare / 100, SkipUnreadable: true}
+		var files []string
+		var err error
 		if demo {
-			var err error
-			if dir, err = core.DemoProbeDir(); err != nil { // written to a temporary folder on first use
-				return nil, err
-			}
+			o.FS, files, err = core.DemoProbes() // read from the embedded files
+		} else {
+			files, err = core.ProbeFiles(dir)
 		}
-		files, err := core.ProbeFiles(dir)
 		if err != nil {
 			return nil, err
 		}
-		rep, err := ws.Scan(ctx, files, analysis.ScanOptions{Rare: rare / 100, SkipUnreadable: true}, progress)
+		rep, err := ws.Scan(ctx, files, o, progress)
 		if err != nil {
 			return nil, err
 		}
 		return func(current bool) {
 			if demo {
-				u.demoProbes, u.scanDir = dir, dir
+				u.scanDemo, u.scanDir = true, ""
 			}
 			if current {
 				u.scan = rep

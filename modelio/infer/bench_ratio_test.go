@@ -62,7 +62,7 @@ func fileExists(p string) bool {
 }
 
 // BenchmarkCaptureRatioResNet18 reports the time of a run returning every
-// activation map (infer.ActivationOutputs) over a plain run of the same
+// activation map (modelio.OutputsOf(m.MapLayers())) over a plain run of the same
 // batch, on the ResNet-18-sized network (He et al. 2016; 224×224×3): goal
 // at most 1.3. The batch is the plain session's preferred one; the
 // capturing session splits it into its own chunks if it prefers smaller
@@ -75,7 +75,7 @@ func BenchmarkCaptureRatioResNet18(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
-	capture := infer.ActivationOutputs(m)
+	capture := modelio.OutputsOf(m.MapLayers())
 	plain, err := infer.NewSession(m, infer.Options{})
 	if err != nil {
 		b.Fatal(err)

@@ -63,7 +63,7 @@ func benchSessions(b *testing.B) (plain, all *Session, x []float32, n int) {
 		b.Logf("%s not found; using a CNN of the same size built by the test", demoModel)
 		m = writeModel(b, "partslike.onnx", modelBytes(b, partsLikeCNN(), 13, nil))
 	}
-	capture := ActivationOutputs(m)
+	capture := modelio.OutputsOf(m.MapLayers())
 	if len(capture) == 0 {
 		b.Fatalf("%s: no activation layers to capture", m.Name)
 	}
@@ -109,7 +109,7 @@ func benchRun(b *testing.B, s *Session, x []float32, n int) {
 
 // BenchmarkCaptureRatio measures, in one run and interleaved so that both
 // see the same machine load, a plain run and a run returning every
-// activation map (ActivationOutputs) on the same batch of the demo model,
+// activation map (modelio.OutputsOf(m.MapLayers())) on the same batch of the demo model,
 // and reports their ratio. Issue 5 sets the goal at 1.3 or less.
 func BenchmarkCaptureRatio(b *testing.B) {
 	plain, all, x, n := benchSessions(b)

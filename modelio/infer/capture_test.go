@@ -77,12 +77,12 @@ func TestCaptureKeepsOutputs(t *testing.T) {
 			}
 			plain := newSession(t, m, Options{})
 			capt := newSession(t, m, Options{Capture: every})
-			maps := newSession(t, m, Options{Capture: ActivationOutputs(m)})
+			maps := newSession(t, m, Options{Capture: modelio.OutputsOf(m.MapLayers())})
 			if got := capt.twin != nil; got != c.twin {
 				t.Errorf("capturing every tensor: second run for the outputs = %v, want %v", got, c.twin)
 			}
 			if maps.twin != nil {
-				t.Errorf("ActivationOutputs %v needs a second run; it should capture only maps the runtime materialises anyway", ActivationOutputs(m))
+				t.Errorf("ActivationOutputs %v needs a second run; it should capture only maps the runtime materialises anyway", modelio.OutputsOf(m.MapLayers()))
 			}
 			dims, err := plain.ImageDims()
 			if err != nil {

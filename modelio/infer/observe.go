@@ -7,34 +7,6 @@ import (
 	"fovea/modelio"
 )
 
-// ActivationOutputs names every activation map of m: the output of each
-// layer that hands a feature map on (m.MapLayers: the Relu after a Conv, not
-// the Conv's own output; the pooling; the residual block's final Relu), in
-// execution order. It is the value for Options.Capture when every map is
-// wanted, and the cheap one: these tensors exist in a plain run anyway.
-func ActivationOutputs(m *modelio.Model) []string {
-	return outputs(m.MapLayers())
-}
-
-// LayerOutputs names the output of every layer m.ActivationLayers lists,
-// including the inner stages ActivationOutputs leaves out (a Conv's output
-// before its normalisation and activation). Capturing them costs the
-// runtime's merged steps, and for some models a second run for exact
-// outputs (Options.Capture); worth it for one image, not for a folder.
-func LayerOutputs(m *modelio.Model) []string {
-	return outputs(m.ActivationLayers())
-}
-
-func outputs(layers []modelio.Layer) []string {
-	var names []string
-	for _, l := range layers {
-		if l.Output != "" && !slices.Contains(names, l.Output) {
-			names = append(names, l.Output)
-		}
-	}
-	return names
-}
-
 // ObserveShapes runs m once on a blank image with every layer whose output
 // shape static inference could not resolve captured, and records the shapes
 // the runtime produced with m.Observe (their ShapeSource becomes

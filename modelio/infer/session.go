@@ -21,8 +21,9 @@ type Options struct {
 	// operator; 0 means one per core (runtime.NumCPU).
 	Threads int
 	// Capture names intermediate tensors to return besides the model's
-	// outputs, in Result.Maps; ActivationOutputs(m) lists every activation
-	// map, LayerOutputs(m) every layer's output. Names that are already
+	// outputs, in Result.Maps; modelio.OutputsOf(m.MapLayers()) lists every
+	// activation map, modelio.OutputsOf(m.ActivationLayers()) every layer's
+	// output. Names that are already
 	// model outputs are returned from those. The model's outputs in a
 	// Result are always those of a plain run, bit for bit: when a captured
 	// tensor would stop a merge that rounds differently

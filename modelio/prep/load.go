@@ -10,6 +10,7 @@ import (
 	_ "image/jpeg" // registers JPEG
 	_ "image/png"  // registers PNG
 	"io"
+	"io/fs"
 	"os"
 	"path/filepath"
 	"strings"
@@ -92,6 +93,37 @@ func Load(path string) (image.Image, error) {
 		return nil, &FileError{File: path, Class: ErrFormat, Detail: "is a folder"}
 	}
 	return decode(f, st.Size(), path, MaxPixels)
+}
+
+// LoadFS is [Load] for the file name inside fsys (an io/fs path: forward slashes, no
+// leading slash), for example the embedded demo images. A file that cannot be read at
+// random offsets (io.ReaderAt) is read into memory, up to 1 GiB (twice the largest
+// uncompressed picture [MaxPixels] allows); embedded files and os.DirFS files are not.
+func LoadFS(fsys fs.FS, name string) (image.Image, error) {
+	f, err := fsys.Open(name)
+	if err != nil {
+		return nil, fmt.Errorf("prep: %w", err) // *PathError already names the file
+	}
+	defer f.Close()
+	st, err := f.Stat()
+	if err != nil {
+		return nil, fmt.Errorf("prep: %w", err)
+	}
+	if st.IsDir() {
+		return nil, &FileError{File: name, Class: ErrFormat, Detail: "is a folder"}
+	}
+	if ra, ok := f.(io.ReaderAt); ok {
+		return decode(ra, st.Size(), name, MaxPixels)
+	}
+	const maxInMemory = 1 << 30
+	if st.Size() > maxInMemory {
+		return nil, &FileError{File: name, Class: ErrTooLarge, Detail: fmt.Sprintf("%d bytes, more than %d", st.Size(), maxInMemory)}
+	}
+	b, err := io.ReadAll(io.LimitReader(f, maxInMemory))
+	if err != nil {
+		return nil, fmt.Errorf("prep: %s: %w", name, err)
+	}
+	return Decode(b, name)
 }
 
 // Decode is [Load] for an image already in memory; name is used in messages only.

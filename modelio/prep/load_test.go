@@ -6,7 +6,9 @@ import (
 	"fmt"
 	"image"
 	"image/color"
+	"image/png"
 	"io"
+	"io/fs"
 	"os"
 	"path/filepath"
 	"runtime"
@@ -229,6 +231,64 @@ func TestLoadNotAFile(t *testing.T) {
 		}
 	}
 }
+
+// LoadFS reads the same pixels as Load from a file system's file, whether
+// the file can be read at offsets (os.DirFS) or only in sequence (a reader
+// without ReadAt), and names the file in its errors.
+func TestLoadFS(t *testing.T) {
+	dir := t.TempDir()
+	img := image.NewNRGBA(image.Rect(0, 0, 2, 2))
+	img.Pix = []uint8{255, 0, 0, 255, 0, 255, 0, 255, 0, 0, 255, 255, 10, 20, 30, 255}
+	var buf bytes.Buffer
+	if err := png.Encode(&buf, img); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(filepath.Join(dir, "a.png"), buf.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	want, err := Load(filepath.Join(dir, "a.png"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for name, fsys := range map[string]fs.FS{"os.DirFS": os.DirFS(dir), "sequential": seqFS{os.DirFS(dir)}} {
+		t.Run(name, func(t *testing.T) {
+			got, err := LoadFS(fsys, "a.png")
+			if err != nil {
+				t.Fatal(err)
+			}
+			for y := 0; y < 2; y++ {
+				for x := 0; x < 2; x++ {
+					if colourAt(got, x, y) != colourAt(want, x, y) {
+						t.Errorf("(%d,%d) = %v, Load gave %v", x, y, colourAt(got, x, y), colourAt(want, x, y))
+					}
+				}
+			}
+			for _, bad := range []string{"missing.png", "."} {
+				if _, err := LoadFS(fsys, bad); err == nil || !strings.HasPrefix(err.Error(), "prep: ") || !strings.Contains(err.Error(), bad) {
+					t.Errorf("LoadFS(%q): %v", bad, err)
+				}
+			}
+		})
+	}
+}
+
+// seqFS hides the io.ReaderAt of its files: LoadFS must read them in
+// sequence.
+type seqFS struct{ fs.FS }
+
+func (s seqFS) Open(name string) (fs.File, error) {
+	f, err := s.FS.Open(name)
+	if err != nil {
+		return nil, err
+	}
+	return seqFile{f}, nil
+}
+
+type seqFile struct{ f fs.File }
+
+func (s seqFile) Stat() (fs.FileInfo, error) { return s.f.Stat() }
+func (s seqFile) Read(b []byte) (int, error) { return s.f.Read(b) }
+func (s seqFile) Close() error               { return s.f.Close() }
 
 // DecodeLimit applies a caller's lower limit, and Decode (MaxPixels) accepts the same image.
 func TestDecodeLimit(t *testing.T) {

@@ -2,7 +2,6 @@ package analysis
 
 import (
 	"context"
-	"fmt"
 	"image"
 	"io"
 	"io/fs"
@@ -206,31 +205,12 @@ func (f *Feed) work(jobs <-chan feedJob) {
 	}
 }
 
-// load decodes one file, from the FS when there is one.
+// load decodes one file, from the FS when there is one (prep.LoadFS).
 func (f *Feed) load(name string) (image.Image, error) {
 	if f.opt.FS == nil {
 		return prep.Load(name)
 	}
-	file, err := f.opt.FS.Open(name)
-	if err != nil {
-		return nil, err // *fs.PathError names the file
-	}
-	defer file.Close()
-	st, err := file.Stat()
-	if err != nil {
-		return nil, err
-	}
-	if st.IsDir() {
-		return nil, &prep.FileError{File: name, Class: prep.ErrFormat, Detail: "is a folder"}
-	}
-	if ra, ok := file.(io.ReaderAt); ok {
-		return prep.DecodeLimit(ra, st.Size(), name, 0)
-	}
-	data, err := io.ReadAll(file)
-	if err != nil {
-		return nil, fmt.Errorf("%s: %w", name, err)
-	}
-	return prep.Decode(data, name)
+	return prep.LoadFS(f.opt.FS, name)
 }
 
 // Next returns the next batch in file order, io.EOF after the last, or the

@@ -5,7 +5,9 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"io/fs"
 	"math"
+	"slices"
 	"sync"
 	"sync/atomic"
 	"time"
@@ -38,6 +40,10 @@ type ScanOptions struct {
 	// channels, gather the statistics of a batch. 0 means one per
 	// GOMAXPROCS. The report does not depend on it.
 	Workers int
+	// FS, when not nil, holds the probe files: Scan's file names are io/fs
+	// paths inside it (the embedded demo's probe images, for example).
+	// nil means the names are paths of the operating system's files.
+	FS fs.FS
 }
 
 // ScanReport is the result of a dead-filter scan. Its JSON form is the one
@@ -86,61 +92,11 @@ type ChannelScan struct {
 	Flags []modelio.Flag `json:"flags"`
 }
 
-// reluLike are the activation ops the scan looks at: their output is > 0
-// exactly where their input is > 0, so "fires" (any value > 0) means the
-// same for all of them and a channel that never fires passes no signal (or,
-// for the leaky kinds, only the negative slope; PRelu with a non-negative
-// slope). Clip is assumed to be the ReLU6 kind (min 0); a Clip with a
-// negative minimum would count values in (min, 0] as not firing, which is
-// what "fires" means anyway. ThresholdedRelu fires above its threshold.
-var reluLike = map[string]bool{
-	"Relu": true, "LeakyRelu": true, "PRelu": true, "Clip": true, "ThresholdedRelu": true,
-	"Elu": true, "Celu": true, "Selu": true, "Gelu": true, "HardSwish": true,
-}
-
-// ScanLayers returns the layers a scan of m looks at: those whose op is
-// ReLU-like (Relu, LeakyRelu, PRelu, Clip, ThresholdedRelu, Elu, Celu, Selu,
-// Gelu, HardSwish), in execution order. Their channel axis is 1, ONNX's
-// convention for every operator after a Conv; a ReLU after a Gemm has one
-// value per feature, and each feature counts as a channel.
-func ScanLayers(m *modelio.Model) []modelio.Layer {
-	var out []modelio.Layer
-	for _, l := range m.Layers {
-		if reluLike[l.Op] {
-			out = append(out, l)
-		}
-	}
-	return out
-}
-
 // ScanCapture returns the tensor names a session must capture
-// (infer.Options.Capture) for Scan to read them.
+// (infer.Options.Capture) for Scan to read them: the outputs of the
+// ReLU-like layers (modelio.Model.ReluLayers).
 func ScanCapture(m *modelio.Model) []string {
-	var names []string
-	for _, l := range ScanLayers(m) {
-		names = append(names, l.Output)
-	}
-	return names
-}
-
-// feedingConv returns the Conv whose output reaches layer i of m through at
-// most a BatchNormalization, or -1. modelio.Layer does not say which
-// tensors a node reads, so a node's immediate predecessor in execution
-// order is taken as its input: right for the Conv [→ BatchNormalization] →
-// ReLU chains exporters write, and the Conv is used only when its number of
-// filters matches the layer's channels (see kernelFlags).
-func feedingConv(m *modelio.Model, i int) int {
-	for j := i - 1; j >= 0 && j >= i-2; j-- {
-		switch m.Layers[j].Op {
-		case "Conv":
-			return j
-		case "BatchNormalization":
-			continue
-		default:
-			return -1
-		}
-	}
-	return -1
+	return modelio.OutputsOf(m.ReluLayers())
 }
 
 // channelAcc accumulates one channel's statistics over images.
@@ -358,7 +314,7 @@ func accumulate(ctx context.Context, accs []*layerAcc, parts int, jobs <-chan st
 }
 
 // Scan runs the probe files through the model and reports, for each channel
-// of each ReLU-like activation layer (ScanLayers), how often it fires, its
+// of each ReLU-like activation layer (modelio.Model.ReluLayers), how often it fires, its
 // largest and mean value, and flags: dead, rare, constant, and from the Conv
 // kernels feeding it (KernelFlags) zero_kernel and duplicate.
 //
@@ -399,9 +355,10 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 		return nil, fmt.Errorf("viz: scan: %d decoding workers: want 0 (automatic) or more", o.Workers)
 	}
 	var accs []*layerAcc
+	scanned := ScanCapture(m)
 	for i, l := range m.Layers {
-		if reluLike[l.Op] {
-			accs = append(accs, &layerAcc{layer: l, conv: feedingConv(m, i)})
+		if slices.Contains(scanned, l.Output) {
+			accs = append(accs, &layerAcc{layer: l, conv: m.FeedingConv(i)})
 		}
 	}
 	if len(accs) == 0 {
@@ -418,7 +375,7 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 	size := c.Len()
 	bs := max(1, min(s.BatchSize(), len(files)))
 	ctx2, cancel := context.WithCancel(ctx)
-	feed := NewFeed(ctx2, files, c, FeedOptions{Batch: bs, Workers: o.Workers, SkipUnreadable: o.SkipUnreadable})
+	feed := NewFeed(ctx2, files, c, FeedOptions{FS: o.FS, Batch: bs, Workers: o.Workers, SkipUnreadable: o.SkipUnreadable})
 	results := make(chan *infer.Result, 2)
 	results <- nil // RunInto allocates the first two
 	results <- nil

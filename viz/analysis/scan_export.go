@@ -4,10 +4,13 @@ import (
 	"cmp"
 	"encoding/csv"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"fovea/modelio"
 	"io"
+	"io/fs"
 	"os"
+	"path"
 	"path/filepath"
 	"slices"
 	"strconv"
@@ -118,23 +121,52 @@ var probeExt = map[string]bool{
 // subfolders), recognised by extension (png, jpg, jpeg, gif, bmp, tif, tiff,
 // webp, any case), sorted by name. Hidden files are left out.
 func ProbeFiles(dir string) ([]string, error) {
-	ents, err := os.ReadDir(dir)
+	names, err := listProbes(os.DirFS(dir), ".")
+	if pe := (*fs.PathError)(nil); errors.As(err, &pe) {
+		pe.Path = filepath.Join(dir, filepath.FromSlash(pe.Path)) // os.DirFS names paths inside dir
+	}
 	if err != nil {
 		return nil, fmt.Errorf("viz: probe folder: %w", err)
+	}
+	if len(names) == 0 {
+		return nil, fmt.Errorf("viz: probe folder %s: no image files (png, jpg, gif, bmp, tiff, webp)", dir)
+	}
+	for i, n := range names {
+		names[i] = filepath.Join(dir, filepath.FromSlash(n))
+	}
+	return names, nil
+}
+
+// ProbeFilesFS is [ProbeFiles] for the folder dir inside fsys (an io/fs
+// path); the names it returns are io/fs paths for ScanOptions.FS.
+func ProbeFilesFS(fsys fs.FS, dir string) ([]string, error) {
+	names, err := listProbes(fsys, dir)
+	if err != nil {
+		return nil, fmt.Errorf("viz: probe folder: %w", err)
+	}
+	if len(names) == 0 {
+		return nil, fmt.Errorf("viz: probe folder %s: no image files (png, jpg, gif, bmp, tiff, webp)", dir)
+	}
+	return names, nil
+}
+
+// listProbes is the listing both ProbeFiles and ProbeFilesFS make: the
+// probe images directly inside dir of fsys, as io/fs paths, sorted by name.
+func listProbes(fsys fs.FS, dir string) ([]string, error) {
+	ents, err := fs.ReadDir(fsys, dir)
+	if err != nil {
+		return nil, err
 	}
 	var files []string
 	for _, e := range ents {
 		name := e.Name()
-		if strings.HasPrefix(name, ".") || !probeExt[strings.ToLower(filepath.Ext(name))] {
+		if strings.HasPrefix(name, ".") || !probeExt[strings.ToLower(path.Ext(name))] {
 			continue
 		}
-		if !e.Type().IsRegular() && e.Type()&os.ModeSymlink == 0 {
+		if !e.Type().IsRegular() && e.Type()&fs.ModeSymlink == 0 {
 			continue
 		}
-		files = append(files, filepath.Join(dir, name))
-	}
-	if len(files) == 0 {
-		return nil, fmt.Errorf("viz: probe folder %s: no image files (png, jpg, gif, bmp, tiff, webp)", dir)
+		files = append(files, path.Join(dir, name))
 	}
 	return files, nil
 }

@@ -162,4 +162,23 @@ func TestProbeFiles(t *testing.T) {
 	if _, err := ProbeFiles(filepath.Join(dir, "nope")); err == nil || !strings.Contains(err.Error(), "nope") {
 		t.Errorf("missing folder: %v", err)
 	}
+	for i, p := range got {
+		if filepath.Dir(p) != dir {
+			t.Errorf("ProbeFiles[%d] = %q, not a path inside %s", i, p, dir)
+		}
+	}
+	// The same listing inside a file system gives io/fs paths.
+	fsys := os.DirFS(filepath.Dir(dir))
+	inFS, err := ProbeFilesFS(fsys, filepath.Base(dir))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(inFS) != len(names) {
+		t.Fatalf("ProbeFilesFS: %q, ProbeFiles %q", inFS, names)
+	}
+	for i := range inFS {
+		if want := filepath.Base(dir) + "/" + names[i]; inFS[i] != want {
+			t.Errorf("ProbeFilesFS[%d] = %q, want %q", i, inFS[i], want)
+		}
+	}
 }

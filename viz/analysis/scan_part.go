@@ -144,7 +144,7 @@ func EmptyScanPart(m *modelio.Model, rare float64) *ScanPart {
 		rare = DefaultRare
 	}
 	p := &ScanPart{Rare: rare, Skipped: []string{}}
-	for _, l := range ScanLayers(m) {
+	for _, l := range m.ReluLayers() {
 		p.Layers = append(p.Layers, PartLayer{Name: l.Name, Output: l.Output, Channels: []PartChannel{}})
 	}
 	return p

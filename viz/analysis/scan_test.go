@@ -388,7 +388,7 @@ func TestScanCancel(t *testing.T) {
 func TestScanLayersOps(t *testing.T) {
 	m := scanModel(t)
 	var names []string
-	for _, l := range ScanLayers(m) {
+	for _, l := range m.ReluLayers() {
 		names = append(names, l.Name)
 	}
 	if !slices.Equal(names, []string{"relu1", "act2"}) || !slices.Equal(ScanCapture(m), []string{"r1", "a2"}) {
