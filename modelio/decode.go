@@ -104,7 +104,7 @@ func decode(data []byte, name, dir string) (m *Model, err error) {
 	if pb.IrVersion <= 0 {
 		return nil, notONNXMsg(name, data, "no IR version in the file")
 	}
-	m = &Model{Name: name, file: name, dir: dir, buf: data, pb: pb}
+	m = &Model{Name: name, file: name, dir: dir, buf: data, pb: pb, flags: &flagMemo{byNode: map[string]nodeFlags{}}}
 	if err := m.build(); err != nil {
 		return nil, err
 	}

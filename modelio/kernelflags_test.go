@@ -3,9 +3,12 @@ package modelio
 import (
 	"math"
 	"math/rand/v2"
+	"reflect"
 	"slices"
 	"testing"
 	"time"
+
+	"fovea/modelio/onnxbuild"
 )
 
 // duplicatesSlow is the obviously correct reference for [Duplicates], on its
@@ -264,4 +267,37 @@ func TestKernelFlagsNearZero(t *testing.T) {
 // testKernels builds kernels of m filters of c×kh×kw from literal weights.
 func testKernels(m, c, kh, kw int, w ...float32) *Kernels {
 	return &Kernels{M: m, C: c, KH: kh, KW: kw, Group: 1, W: w}
+}
+
+// Model.KernelFlags computes a convolution's flags once and keeps them with
+// the model: the second call returns the very map of the first, equal to
+// Kernels.Flags; a failure (not a convolution) is returned each time.
+func TestModelKernelFlagsKept(t *testing.T) {
+	b := onnxbuild.New(13, onnxbuild.Random)
+	x := b.Input("image", onnxbuild.Float, 1, 3, 8, 8)
+	c := b.Conv(x, 3, 4, 3, 1, 1)
+	b.Output(b.Relu(c))
+	m := build(t, b)
+	conv := m.Layers[m.LayerOf(c)].Name
+	first, n, err := m.KernelFlags(conv)
+	if err != nil || n != 4 {
+		t.Fatalf("KernelFlags(%s) = %v, %d filters, %v", conv, first, n, err)
+	}
+	k, err := m.Kernels(conv)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if want := k.Flags(); !reflect.DeepEqual(first, want) {
+		t.Errorf("KernelFlags %v, Kernels.Flags %v", first, want)
+	}
+	second, _, _ := m.KernelFlags(conv)
+	if first == nil || reflect.ValueOf(first).Pointer() != reflect.ValueOf(second).Pointer() {
+		t.Error("the second call computed the flags again")
+	}
+	relu := m.Layers[len(m.Layers)-1].Name
+	for range 2 {
+		if _, _, err := m.KernelFlags(relu); err == nil {
+			t.Errorf("KernelFlags(%s): no error for a Relu", relu)
+		}
+	}
 }

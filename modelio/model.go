@@ -31,6 +31,9 @@ type Model struct {
 	buf  []byte // the encoded model; initializer raw_data points into it
 	pb   *onnxpb.ModelProto
 	g    *graph
+	// flags keeps KernelFlags' results: they depend on the weights alone,
+	// which never change once the model is open.
+	flags *flagMemo
 }
 
 // Value is a graph input or output.

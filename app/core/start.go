@@ -1,15 +1,6 @@
 package core
 
-import (
-	"sync"
-
-	"fovea/modelio/infer"
-)
-
-var (
-	libMu   sync.Mutex
-	libPath string
-)
+import "fovea/modelio/infer"
 
 // Start finds the ONNX Runtime shared library and loads it, once per process.
 // ortLib is the user's --ort-lib value ("" = search $FOVEA_ORT_LIB, the user
@@ -21,18 +12,9 @@ func Start(ortLib string) error {
 	if err != nil {
 		return err
 	}
-	if err := infer.Init(p); err != nil {
-		return err
-	}
-	libMu.Lock()
-	libPath = p
-	libMu.Unlock()
-	return nil
+	return infer.Init(p)
 }
 
-// Library returns the path of the library Start loaded, or "" before that.
-func Library() string {
-	libMu.Lock()
-	defer libMu.Unlock()
-	return libPath
-}
+// Library returns the path of the library Start loaded, or "" before that
+// (infer.Loaded: the runtime package keeps the one record of it).
+func Library() string { return infer.Loaded() }

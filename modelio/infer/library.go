@@ -19,6 +19,7 @@ import (
 	"strconv"
 	"strings"
 	"sync"
+	"sync/atomic"
 
 	ort "github.com/yalue/onnxruntime_go"
 )
@@ -179,6 +180,9 @@ var (
 	initOnce sync.Once
 	initErr  error
 	initPath string
+	// loaded is the path of the library Init loaded, once it succeeded:
+	// the one record of it (Loaded), safe to read from any goroutine.
+	loaded atomic.Pointer[string]
 )
 
 // Init loads the library at path and creates the process-wide ONNX Runtime
@@ -188,6 +192,9 @@ func Init(path string) error {
 	initOnce.Do(func() {
 		initPath = path
 		initErr = load(path)
+		if initErr == nil {
+			loaded.Store(&path)
+		}
 	})
 	if initErr == nil && path != initPath {
 		return fmt.Errorf("infer: ONNX Runtime is already loaded from %s; cannot switch to %s in the same process", initPath, path)
@@ -196,7 +203,16 @@ func Init(path string) error {
 }
 
 // Initialized reports whether Init succeeded.
-func Initialized() bool { return initPath != "" && initErr == nil }
+func Initialized() bool { return loaded.Load() != nil }
+
+// Loaded returns the path of the library Init loaded, or "" before Init
+// succeeded.
+func Loaded() string {
+	if p := loaded.Load(); p != nil {
+		return *p
+	}
+	return ""
+}
 
 func load(path string) error {
 	// dlopen of a file that is not an ELF shared object fails cleanly, but

@@ -278,3 +278,15 @@ func writeTgz(t *testing.T, path, name, content string) {
 		t.Fatal(err)
 	}
 }
+
+// Loaded is the one record of the loaded library: the path Init was given.
+func TestLoadedIsInitPath(t *testing.T) {
+	needORT(t)
+	p, err := FindLibrary("")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := Loaded(); got != p || !Initialized() {
+		t.Errorf("Loaded() = %q (initialized %v), Init was given %q", got, Initialized(), p)
+	}
+}

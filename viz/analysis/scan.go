@@ -252,7 +252,7 @@ type convFlags struct {
 	flags map[int][]modelio.Flag
 }
 
-// kernelFlags returns KernelFlags of every Conv feeding a scanned layer, by
+// kernelFlags returns the kernel flags of every Conv feeding a scanned layer, by
 // layer index, checking ctx between convolutions. A Conv whose kernels
 // cannot be read is left out (its layer gets no Conv).
 func kernelFlags(ctx context.Context, m *modelio.Model, accs []*layerAcc) map[int]convFlags {
@@ -267,15 +267,9 @@ func kernelFlags(ctx context.Context, m *modelio.Model, accs []*layerAcc) map[in
 		if ctx.Err() != nil {
 			return out
 		}
-		f, ok := memoFlags(m, m.Layers[a.conv].Name, func() (convFlags, bool) {
-			k, err := m.Kernels(m.Layers[a.conv].Name)
-			if err != nil {
-				return convFlags{}, false
-			}
-			return convFlags{m: k.M, flags: k.Flags()}, true
-		})
-		if ok {
-			out[a.conv] = f
+		// Kept with the model (modelio.Model.KernelFlags): a rescan reads them back.
+		if flags, filters, err := m.KernelFlags(m.Layers[a.conv].Name); err == nil {
+			out[a.conv] = convFlags{m: filters, flags: flags}
 		}
 	}
 	return out
