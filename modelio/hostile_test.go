@@ -437,7 +437,7 @@ func exercise(m *Model) {
 			shapes[l.Output] = []int64{1, 2, 3, 4}
 		}
 	}
-	m.Observe(shapes)
+	_ = m.Observe(shapes)
 }
 
 // TestTruncationsAndBitFlips cuts a valid model at every byte and flips

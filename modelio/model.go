@@ -11,8 +11,8 @@ import (
 )
 
 // Model is an opened ONNX model: its summary, its layer table and access to
-// its weights. A Model is safe for concurrent reads; Observe must not run
-// concurrently with other methods.
+// its weights. A Model does not change once opened (Observe returns a new
+// one) and is safe for concurrent use.
 type Model struct {
 	Path, Name                string // Path as given to Open ("" for Decode); Name: file name without folder
 	IRVersion                 int64

@@ -2,6 +2,7 @@ package modelio
 
 import (
 	"fmt"
+	"maps"
 	"strings"
 
 	"google.golang.org/protobuf/proto"
@@ -95,15 +96,20 @@ func (m *Model) valueInfo(name string) *onnxpb.ValueInfoProto {
 	}
 }
 
-// Observe fills shapes that static inference left unknown from a real run:
-// shapes maps tensor names (layer outputs) to the dims the runtime
-// returned. Layers it fills get ShapeSource "observed"; their volumes,
-// memory and multiply-accumulates, and those of the layers after them, are
-// recomputed. A statically known shape is kept, with a note when the run
-// disagrees. Observe must not run concurrently with other methods.
-func (m *Model) Observe(shapes map[string][]int64) {
-	if m.g.observed == nil {
-		m.g.observed = map[string][]int64{}
+// Observe returns a copy of m whose layer table fills the shapes static
+// inference left unknown from a real run: shapes maps tensor names (layer
+// outputs) to the dims the runtime returned. Layers it fills get
+// ShapeSource "observed"; their volumes, memory and multiply-accumulates,
+// and those of the layers after them, are recomputed. A statically known
+// shape is kept, with a note when the run disagrees. m itself does not
+// change (a Model never does once opened), so code still reading it is not
+// disturbed; the copy shares m's weights.
+func (m *Model) Observe(shapes map[string][]int64) *Model {
+	c := *m
+	g := *m.g
+	g.observed = maps.Clone(m.g.observed)
+	if g.observed == nil {
+		g.observed = map[string][]int64{}
 	}
 	for name, s := range shapes {
 		ok := true
@@ -113,10 +119,12 @@ func (m *Model) Observe(shapes map[string][]int64) {
 			}
 		}
 		if ok {
-			m.g.observed[name] = append([]int64(nil), s...)
+			g.observed[name] = append([]int64(nil), s...)
 		}
 	}
-	m.analyse()
+	c.g = &g
+	c.analyse()
+	return &c
 }
 
 // Limits applied by CheckRunnable.

@@ -99,7 +99,11 @@ func TestObserve(t *testing.T) {
 			t.Fatalf("%s before Observe: %s %q", name, l.ShapeSource, l.Note)
 		}
 	}
-	m.Observe(map[string][]int64{"mystery": {1, 8, 6, 6}})
+	opened := m
+	m = m.Observe(map[string][]int64{"mystery": {1, 8, 6, 6}})
+	if l := layerOf(t, opened, "mystery"); l.ShapeSource != SourceUnknown {
+		t.Errorf("Observe changed the model it was called on: %s %s", l.ShapeSource, l.Shape)
+	}
 	my := layerOf(t, m, "mystery")
 	// The observed shape given above, read as N×C×H×W; 4 bytes per float32
 	// (ONNX TensorProto FLOAT).
@@ -115,7 +119,7 @@ func TestObserve(t *testing.T) {
 		t.Errorf("totals not recomputed: %+v", m.Total)
 	}
 	// A run disagreeing with a static shape keeps the static one, with a note.
-	m.Observe(map[string][]int64{"conv1": {1, 8, 9, 9}})
+	m = m.Observe(map[string][]int64{"conv1": {1, 8, 9, 9}})
 	if c1 := layerOf(t, m, "conv1"); c1.WHD() != "8×8×8" || !strings.Contains(c1.Note, "a run gave") {
 		t.Errorf("conv1 after a disagreeing run: %s %q", c1.WHD(), c1.Note)
 	}

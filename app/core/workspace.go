@@ -25,9 +25,9 @@ const (
 )
 
 // Workspace is one open model and what is needed to run it. Create it with
-// [OpenModel] or [OpenDemo]; Close it when done. Model is shared, read-only:
-// only [Workspace.ObserveShapes] refines its layer shapes, under the
-// workspace's lock.
+// [OpenModel] or [OpenDemo]; Close it when done. Model is shared and never
+// changes; [Workspace.ObserveShapes] replaces it with one whose layer table
+// holds the shapes a run observed.
 type Workspace struct {
 	Model *modelio.Model
 	Demo  string // "" for a user's file; "healthy" or "unhealthy" for the embedded demo
@@ -414,8 +414,8 @@ func (w *Workspace) sessionLocked(k kind) (*infer.Session, error) {
 // ObserveShapes runs the model once on a blank image when some layer's shape
 // could not be inferred statically, and fills those shapes in from the run
 // (infer.ObserveShapes). It does nothing when every shape is known or it
-// already ran. It writes w.Model's layer table: call it before handing
-// w.Model to code on other goroutines.
+// already ran. It replaces w.Model (the old one stays valid for whoever
+// holds it): call it before handing w.Model to code on other goroutines.
 func (w *Workspace) ObserveShapes(ctx context.Context) error {
 	w.mu.Lock()
 	defer w.mu.Unlock()
@@ -425,9 +425,11 @@ func (w *Workspace) ObserveShapes(ctx context.Context) error {
 	if !infer.Initialized() {
 		return fmt.Errorf("core: ONNX Runtime is not loaded (call core.Start first)")
 	}
-	if _, err := infer.ObserveShapes(ctx, w.Model, infer.Options{Dims: dims(w.Model, w.cfg)}); err != nil {
+	m, _, err := infer.ObserveShapes(ctx, w.Model, infer.Options{Dims: dims(w.Model, w.cfg)})
+	if err != nil {
 		return fmt.Errorf("core: %s: a run to observe layer shapes failed: %w", w.Model.Name, err)
 	}
+	w.Model = m
 	w.observed = true
 	return nil
 }

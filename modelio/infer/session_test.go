@@ -6,6 +6,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"reflect"
 	"runtime"
 	"slices"
 	"strconv"
@@ -597,14 +598,18 @@ func TestObserveShapes(t *testing.T) {
 	if !unknown["e"] {
 		t.Fatalf("test premise: modelio infers the Einsum's shape statically; layers: %+v", m.Layers)
 	}
-	n, err := ObserveShapes(context.Background(), m, Options{})
+	before := slices.Clone(m.Layers)
+	seen, n, err := ObserveShapes(context.Background(), m, Options{})
 	if err != nil {
 		t.Fatal(err)
+	}
+	if !reflect.DeepEqual(m.Layers, before) {
+		t.Error("ObserveShapes changed the model it was given")
 	}
 	if n != len(unknown) {
 		t.Errorf("observed %d layers, %d were unknown", n, len(unknown))
 	}
-	for _, l := range m.Layers {
+	for _, l := range seen.Layers {
 		if !unknown[l.Output] {
 			continue
 		}
@@ -612,7 +617,7 @@ func TestObserveShapes(t *testing.T) {
 			t.Errorf("layer %s: %s %s, want observed 1×4×8×8", l.Name, l.ShapeSource, l.Shape)
 		}
 	}
-	if n, err := ObserveShapes(context.Background(), m, Options{}); err != nil || n != 0 {
+	if again, n, err := ObserveShapes(context.Background(), seen, Options{}); err != nil || n != 0 || again != seen {
 		t.Errorf("second ObserveShapes: %d, %v; want 0 (nothing unknown any more)", n, err)
 	}
 }
