@@ -9,50 +9,35 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+
+	"fovea/internal/atomicfile"
 )
 
-// WriteFile writes the file at path atomically: write fills a temporary file
-// in the same folder, which replaces path only when everything was written
-// and synced. On any error path is left as it was and the temporary file is
-// removed.
+// WriteFile writes the file at path atomically (atomicfile.Write): write
+// fills a temporary file in the same folder, which replaces path only when
+// everything was written and synced. On any error path is left as it was
+// and the temporary file is removed. A folder that cannot take the file,
+// or a path that names a folder, is an input error naming it.
 func WriteFile(path string, write func(io.Writer) error) error {
-	dir := filepath.Dir(path)
 	if st, err := os.Stat(path); err == nil && st.IsDir() {
 		return inputf(path, "is a folder; give a file name")
 	}
-	f, err := os.CreateTemp(dir, "."+filepath.Base(path)+".*.tmp")
+	err := atomicfile.Write(path, 0o644, write)
+	if ae := (*atomicfile.Error)(nil); errors.As(err, &ae) && ae.Create {
+		return inputErr(path, fmt.Errorf("cannot write into %s: %w", filepath.Dir(path), ae.Err))
+	}
 	if err != nil {
-		return inputErr(path, fmt.Errorf("cannot write into %s: %w", dir, unwrapPath(err)))
-	}
-	tmp := f.Name()
-	werr := write(f)
-	serr := f.Sync()
-	cerr := f.Close()
-	if err := errors.Join(werr, serr, cerr); err != nil {
-		os.Remove(tmp)
-		return fmt.Errorf("core: writing %s: %w", path, err)
-	}
-	if err := os.Chmod(tmp, 0o644); err != nil {
-		os.Remove(tmp)
-		return fmt.Errorf("core: writing %s: %w", path, err)
-	}
-	if err := os.Rename(tmp, path); err != nil {
-		os.Remove(tmp)
-		return fmt.Errorf("core: writing %s: %w", path, unwrapPath(err))
+		return fmt.Errorf("core: %w", err)
 	}
 	return nil
 }
 
-// unwrapPath drops the *PathError wrapper whose path is a temporary name the
-// user never chose.
+// unwrapPath drops the *PathError wrapper whose path the message names
+// already.
 func unwrapPath(err error) error {
 	var pe *os.PathError
 	if errors.As(err, &pe) {
 		return pe.Err
-	}
-	var le *os.LinkError
-	if errors.As(err, &le) {
-		return le.Err
 	}
 	return err
 }

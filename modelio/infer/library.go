@@ -22,6 +22,8 @@ import (
 	"sync/atomic"
 
 	ort "github.com/yalue/onnxruntime_go"
+
+	"fovea/internal/atomicfile"
 )
 
 // The ONNX Runtime shared library is in no Go module. The npm registry's
@@ -332,19 +334,20 @@ func Fetch(ctx context.Context, log io.Writer) (string, error) {
 	if err := os.MkdirAll(filepath.Dir(dst), 0o755); err != nil {
 		return "", fmt.Errorf("infer: %w", err)
 	}
-	part, err := extractEntry(tgz, tarballEntry, filepath.Dir(dst))
-	if err != nil {
-		return "", err
-	}
-	defer os.Remove(part)
-	sum, err := fileSHA256(part)
-	if err != nil {
-		return "", fmt.Errorf("infer: %w", err)
-	}
-	if sum != libSHA256 {
+	// The library replaces dst only once it is complete and its checksum
+	// matched (the write fails otherwise and dst stays as it was).
+	var sum string
+	err = atomicfile.Write(dst, 0o755, func(w io.Writer) error {
+		var err error
+		if sum, err = extractEntry(tgz, tarballEntry, w); err == nil && sum != libSHA256 {
+			err = errChecksum
+		}
+		return err
+	})
+	if errors.Is(err, errChecksum) {
 		return "", fmt.Errorf("infer: %s from %s has SHA-256 %s, expected %s; refusing to use it", tarballEntry, npmPackage, sum, libSHA256)
 	}
-	if err := os.Rename(part, dst); err != nil {
+	if err != nil {
 		return "", fmt.Errorf("infer: %w", err)
 	}
 	if err := writeLicense(filepath.Dir(dst)); err != nil {
@@ -426,28 +429,9 @@ func copyAtomic(src, dst string, perm os.FileMode) error {
 	})
 }
 
-// writeAtomic fills a temporary file in path's folder with write, syncs it
-// and renames it over path; on any error path is untouched and the temporary
-// file removed.
+// writeAtomic is atomicfile.Write with the package's error prefix.
 func writeAtomic(path string, perm os.FileMode, write func(io.Writer) error) error {
-	f, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+".tmp-*")
-	if err != nil {
-		return fmt.Errorf("infer: %w", err)
-	}
-	tmp := f.Name()
-	werr := write(f)
-	serr := f.Sync()
-	cerr := f.Close()
-	if err := errors.Join(werr, serr, cerr); err != nil {
-		os.Remove(tmp)
-		return fmt.Errorf("infer: writing %s: %w", path, err)
-	}
-	if err := os.Chmod(tmp, perm); err != nil {
-		os.Remove(tmp)
-		return fmt.Errorf("infer: %w", err)
-	}
-	if err := os.Rename(tmp, path); err != nil {
-		os.Remove(tmp)
+	if err := atomicfile.Write(path, perm, write); err != nil {
 		return fmt.Errorf("infer: %w", err)
 	}
 	return nil
@@ -488,26 +472,22 @@ func walkEntry(tgz, entry string, read func(io.Reader) error) error {
 	}
 }
 
-// extractEntry copies one regular file out of a .tgz into a temporary file in
-// dir and returns that file's path.
-func extractEntry(tgz, entry, dir string) (string, error) {
-	var name string
+// errChecksum stops the write of a fetched library whose SHA-256 is not the
+// expected one.
+var errChecksum = errors.New("checksum mismatch")
+
+// extractEntry copies one regular file out of a .tgz to w and returns its
+// SHA-256 (hex).
+func extractEntry(tgz, entry string, w io.Writer) (string, error) {
+	sum := sha256.New()
 	err := walkEntry(tgz, entry, func(r io.Reader) error {
-		out, err := os.CreateTemp(dir, ".fetch-*")
-		if err != nil {
-			return err
-		}
-		_, cerr := io.Copy(out, io.LimitReader(r, 1<<30))
-		serr := out.Sync()
-		xerr := out.Close()
-		if err := errors.Join(cerr, serr, xerr, os.Chmod(out.Name(), 0o755)); err != nil {
-			os.Remove(out.Name())
-			return fmt.Errorf("writing %s: %w", out.Name(), err)
-		}
-		name = out.Name()
-		return nil
+		_, err := io.Copy(io.MultiWriter(w, sum), io.LimitReader(r, 1<<30))
+		return err
 	})
-	return name, err
+	if err != nil {
+		return "", err
+	}
+	return hex.EncodeToString(sum.Sum(nil)), nil
 }
 
 func fileSHA256(p string) (string, error) {

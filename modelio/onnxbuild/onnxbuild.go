@@ -26,13 +26,13 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
-	"os"
-	"path/filepath"
 	"strings"
 
 	"google.golang.org/protobuf/proto"
 
 	"fovea/modelio/onnxpb"
+
+	"fovea/internal/atomicfile"
 )
 
 // Element types (onnx.proto TensorProto.DataType).
@@ -389,30 +389,7 @@ func (b *Builder) Write(path string) error {
 	return WriteFile(path, data)
 }
 
-// WriteFile writes data to path atomically.
+// WriteFile writes data to path atomically (atomicfile.WriteBytes).
 func WriteFile(path string, data []byte) error {
-	f, err := os.CreateTemp(filepath.Dir(path), ".tmp-"+filepath.Base(path)+"-*")
-	if err != nil {
-		return err
-	}
-	tmp := f.Name()
-	if err := f.Chmod(0o644); err != nil {
-		f.Close()
-		os.Remove(tmp)
-		return err
-	}
-	if _, err := f.Write(data); err != nil {
-		f.Close()
-		os.Remove(tmp)
-		return err
-	}
-	if err := f.Close(); err != nil {
-		os.Remove(tmp)
-		return err
-	}
-	if err := os.Rename(tmp, path); err != nil {
-		os.Remove(tmp)
-		return err
-	}
-	return nil
+	return atomicfile.WriteBytes(path, data, 0o644)
 }

@@ -6,6 +6,8 @@ import (
 	"os"
 	"path/filepath"
 	"testing"
+
+	"fovea/internal/atomicfile"
 )
 
 // imagesDir holds the stored test images (see testdata/README.md, section "images").
@@ -30,13 +32,13 @@ func TestStoredImages(t *testing.T) {
 			t.Fatal(err)
 		}
 		for _, tc := range hostileCases() {
-			if err := WriteFileAtomic(filepath.Join(imagesDir, tc.name), tc.data(t), 0o644); err != nil {
+			if err := atomicfile.WriteBytes(filepath.Join(imagesDir, tc.name), tc.data(t), 0o644); err != nil {
 				t.Fatal(err)
 			}
 		}
 		for _, e := range exifFiles {
 			data := withExif(encJPEG(t, storedFor(visualQuadrants(), e.o)), uint16(e.o), e.be)
-			if err := WriteFileAtomic(filepath.Join(imagesDir, e.name), data, 0o644); err != nil {
+			if err := atomicfile.WriteBytes(filepath.Join(imagesDir, e.name), data, 0o644); err != nil {
 				t.Fatal(err)
 			}
 		}

@@ -1,7 +1,6 @@
 package prep
 
 import (
-	"bytes"
 	"crypto/sha256"
 	"encoding/hex"
 	"encoding/json"
@@ -12,6 +11,8 @@ import (
 	"os"
 	"path/filepath"
 	"time"
+
+	"fovea/internal/atomicfile"
 )
 
 // Settings are the choices a user made for one model, remembered across sessions. They
@@ -128,56 +129,8 @@ func SaveSettings(dir string, s *Settings) error {
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		return fmt.Errorf("prep: %w", err)
 	}
-	return WriteFileAtomic(path, append(data, '\n'), 0o644)
-}
-
-// testHookWrite, when set by a test, replaces the write of the temporary file so that a
-// failure half-way can be simulated.
-var testHookWrite func(f *os.File, data []byte) error
-
-// WriteFileAtomic writes data to path so that readers see either the old file or the
-// complete new one: it writes a temporary file in the same folder (a rename is only
-// atomic within one file system), syncs it, renames it over path and syncs the folder.
-// On any failure the temporary file is removed and path is untouched.
-func WriteFileAtomic(path string, data []byte, perm fs.FileMode) (err error) {
-	dir, base := filepath.Split(path)
-	if dir == "" {
-		dir = "."
-	}
-	f, err := os.CreateTemp(dir, "."+base+".tmp-*")
-	if err != nil {
+	if err := atomicfile.WriteBytes(path, append(data, '\n'), 0o644); err != nil {
 		return fmt.Errorf("prep: %w", err)
-	}
-	tmp := f.Name()
-	defer func() {
-		if err != nil {
-			f.Close()
-			os.Remove(tmp)
-		}
-	}()
-	if testHookWrite != nil {
-		err = testHookWrite(f, data)
-	} else {
-		_, err = io.Copy(f, bytes.NewReader(data))
-	}
-	if err != nil {
-		return fmt.Errorf("prep: writing %s: %w", path, err)
-	}
-	if err = f.Chmod(perm); err != nil {
-		return fmt.Errorf("prep: %w", err)
-	}
-	if err = f.Sync(); err != nil {
-		return fmt.Errorf("prep: writing %s: %w", path, err)
-	}
-	if err = f.Close(); err != nil {
-		return fmt.Errorf("prep: writing %s: %w", path, err)
-	}
-	if err = os.Rename(tmp, path); err != nil {
-		return fmt.Errorf("prep: %w", err)
-	}
-	if d, derr := os.Open(dir); derr == nil { // make the rename itself durable; best effort
-		d.Sync()
-		d.Close()
 	}
 	return nil
 }

@@ -4,7 +4,6 @@ import (
 	"bytes"
 	"crypto/sha256"
 	"encoding/hex"
-	"errors"
 	"os"
 	"path/filepath"
 	"runtime"
@@ -107,7 +106,9 @@ func assertOnly(t *testing.T, dir string, names ...string) {
 	}
 }
 
-// A write that fails half-way leaves the old file intact and no temporary file.
+// A save that fails leaves the folder as it was: no temporary file. Here the
+// rename fails (a folder stands where the settings file goes); a write that
+// fails half-way is atomicfile's TestFailedWriteKeepsOldFile.
 func TestSettingsAtomicOnFailure(t *testing.T) {
 	dir := t.TempDir()
 	s := Settings{Hash: testHash, Prep: Default()}
@@ -117,30 +118,20 @@ func TestSettingsAtomicOnFailure(t *testing.T) {
 	path := filepath.Join(dir, testHash+".json")
 	old, _ := os.ReadFile(path)
 
-	boom := errors.New("disk full")
-	testHookWrite = func(f *os.File, data []byte) error {
-		f.Write(data[:len(data)/2]) // half the new file reaches the disk
-		return boom
-	}
-	defer func() { testHookWrite = nil }()
-	s.Prep.Width = 99
-	err := SaveSettings(dir, &s)
-	if !errors.Is(err, boom) || !strings.Contains(err.Error(), path) {
-		t.Errorf("error %v: want the write error naming %s", err, path)
-	}
-	now, _ := os.ReadFile(path)
-	if !bytes.Equal(now, old) {
-		t.Errorf("old settings changed after a failed write:\n%s", now)
-	}
-	assertOnly(t, dir, testHash+".json")
-
-	// The same for a file that did not exist before: no file at all afterwards.
 	other := strings.Repeat("0", 64)
-	s.Hash = other
-	if err := SaveSettings(dir, &s); err == nil {
-		t.Error("failed write reported success")
+	blocked := filepath.Join(dir, other+".json")
+	if err := os.MkdirAll(filepath.Join(blocked, "inside"), 0o755); err != nil {
+		t.Fatal(err)
 	}
-	assertOnly(t, dir, testHash+".json")
+	s.Hash = other
+	err := SaveSettings(dir, &s)
+	if err == nil || !strings.Contains(err.Error(), blocked) {
+		t.Errorf("error %v: want the failed write naming %s", err, blocked)
+	}
+	if now, _ := os.ReadFile(path); !bytes.Equal(now, old) {
+		t.Errorf("other settings changed after a failed write:\n%s", now)
+	}
+	assertOnly(t, dir, other+".json", testHash+".json")
 }
 
 // Keys that are not SHA-256 hex are refused before any file is touched (no path escapes).
@@ -195,27 +186,5 @@ func TestSettingsDir(t *testing.T) {
 	dir, err := SettingsDir()
 	if err != nil || dir != "/tmp/xdg-test/fovea/models" {
 		t.Errorf("SettingsDir = %q, %v", dir, err)
-	}
-}
-
-// WriteFileAtomic on its own: content, permissions, replacement.
-func TestWriteFileAtomic(t *testing.T) {
-	dir := t.TempDir()
-	p := filepath.Join(dir, "out.txt")
-	for _, content := range []string{"first", "second, longer"} {
-		if err := WriteFileAtomic(p, []byte(content), 0o600); err != nil {
-			t.Fatal(err)
-		}
-		got, _ := os.ReadFile(p)
-		if string(got) != content {
-			t.Errorf("content %q, want %q", got, content)
-		}
-	}
-	if st, _ := os.Stat(p); st.Mode().Perm() != 0o600 {
-		t.Errorf("mode %v", st.Mode())
-	}
-	assertOnly(t, dir, "out.txt")
-	if err := WriteFileAtomic(filepath.Join(dir, "no-such-dir", "x"), []byte("x"), 0o644); err == nil {
-		t.Error("write into a missing folder succeeded")
 	}
 }

@@ -35,13 +35,13 @@ import (
 	"io"
 	"math"
 	"math/rand/v2"
-	"os"
-	"path/filepath"
 
 	"google.golang.org/protobuf/encoding/protowire"
 	"google.golang.org/protobuf/proto"
 
 	"fovea/modelio/onnxpb"
+
+	"fovea/internal/atomicfile"
 )
 
 // Net is a model being described: its graph without weight values, and for
@@ -401,27 +401,14 @@ func (n *Net) WriteTo(w io.Writer) (int64, error) {
 	return written, bw.Flush()
 }
 
-// WriteFile writes the model to path atomically: a temporary file in the
-// same folder, renamed over path once complete.
+// WriteFile writes the model to path atomically (atomicfile.Write).
 func (n *Net) WriteFile(path string) error {
-	f, err := os.CreateTemp(filepath.Dir(path), ".tmp-"+filepath.Base(path)+"-*")
+	err := atomicfile.Write(path, 0o644, func(w io.Writer) error {
+		_, err := n.WriteTo(w)
+		return err
+	})
 	if err != nil {
 		return fmt.Errorf("synth: %w", err)
-	}
-	tmp := f.Name()
-	_, err = n.WriteTo(f)
-	if cerr := f.Close(); err == nil {
-		err = cerr
-	}
-	if err == nil {
-		err = os.Chmod(tmp, 0o644)
-	}
-	if err == nil {
-		err = os.Rename(tmp, path)
-	}
-	if err != nil {
-		os.Remove(tmp)
-		return fmt.Errorf("synth: writing %s: %w", filepath.Base(path), err)
 	}
 	return nil
 }
