@@ -8,6 +8,7 @@ import (
 	"strings"
 	"unicode/utf8"
 
+	"fovea/app/core"
 	"fovea/modelio"
 )
 
@@ -140,15 +141,15 @@ func writeLayerTable(w io.Writer, m *modelio.Model) {
 	t.add("name", "op", "volume (W×H×D)", "params", "MACs", "memory", "receptive field", "jump", "shape source")
 	notes := 0
 	for _, l := range m.Layers {
-		src := l.ShapeSource
+		r := core.NewLayerRow(l, core.Exact)
 		if l.Note != "" {
 			notes++
-			src += " [" + strconv.Itoa(notes) + "]"
+			r.Source += " [" + strconv.Itoa(notes) + "]"
 		}
-		t.add(l.Name, l.Op, l.WHD(), count(l.Params), count(l.MACs), bytesText(l.Bytes), pixels(l.RF), pixels(l.Jump), src)
+		t.add(r.Name, r.Op, r.Volume, r.Params, r.MACs, r.Memory, r.RF, r.Jump, r.Source)
 	}
 	t.rule()
-	t.add("total", strconv.Itoa(len(m.Layers))+" layers", "", count(m.Total.Params), count(m.Total.MACs), bytesText(m.Total.Bytes), "", "", "")
+	t.add("total", strconv.Itoa(len(m.Layers))+" layers", "", core.Exact.Count(m.Total.Params), core.Exact.Count(m.Total.MACs), core.Exact.Bytes(m.Total.Bytes), "", "", "")
 	t.write(w)
 	if notes > 0 {
 		fmt.Fprintln(w)
@@ -168,44 +169,6 @@ func writeLayerTable(w io.Writer, m *modelio.Model) {
 	}
 	fmt.Fprintln(w, "\nMACs: multiply-accumulates for one image. memory: the output at float32 for one image.")
 	fmt.Fprintln(w, "receptive field and jump in input pixels; - where not defined.")
-}
-
-// count writes an integer with thousands separated by commas.
-func count(v int64) string {
-	s := strconv.FormatInt(v, 10)
-	neg := strings.HasPrefix(s, "-")
-	s = strings.TrimPrefix(s, "-")
-	var b strings.Builder
-	for i, r := range s {
-		if i > 0 && (len(s)-i)%3 == 0 {
-			b.WriteByte(',')
-		}
-		b.WriteRune(r)
-	}
-	if neg {
-		return "-" + b.String()
-	}
-	return b.String()
-}
-
-// bytesText writes a size in bytes with a binary unit.
-func bytesText(v int64) string {
-	switch {
-	case v < 1024:
-		return strconv.FormatInt(v, 10) + " B"
-	case v < 1<<20:
-		return fmt.Sprintf("%.1f KiB", float64(v)/(1<<10))
-	case v < 1<<30:
-		return fmt.Sprintf("%.1f MiB", float64(v)/(1<<20))
-	}
-	return fmt.Sprintf("%.2f GiB", float64(v)/(1<<30))
-}
-
-func pixels(v int) string {
-	if v <= 0 {
-		return "-"
-	}
-	return strconv.Itoa(v)
 }
 
 // table lays out rows of text in columns, numbers right-aligned.

@@ -305,12 +305,12 @@ func TestCLILayers(t *testing.T) {
 		found := false
 		for _, line := range lines {
 			f := strings.Fields(line)
-			if len(f) > 3 && f[0] == l.Name && f[1] == l.Op && f[2] == l.WHD() && f[3] == count(l.Params) {
+			if len(f) > 3 && f[0] == l.Name && f[1] == l.Op && f[2] == l.WHD() && f[3] == core.Exact.Count(l.Params) {
 				found = true
 			}
 		}
 		if !found {
-			t.Errorf("no table row for %s %s %s %s:\n%s", l.Name, l.Op, l.WHD(), count(l.Params), text)
+			t.Errorf("no table row for %s %s %s %s:\n%s", l.Name, l.Op, l.WHD(), core.Exact.Count(l.Params), text)
 		}
 	}
 	totalRow := ""
@@ -319,8 +319,8 @@ func TestCLILayers(t *testing.T) {
 			totalRow = line
 		}
 	}
-	if !strings.Contains(totalRow, count(doc.Total.Params)) || !strings.Contains(totalRow, count(doc.Total.MACs)) {
-		t.Errorf("totals row %q lacks params %s and MACs %s", totalRow, count(doc.Total.Params), count(doc.Total.MACs))
+	if !strings.Contains(totalRow, core.Exact.Count(doc.Total.Params)) || !strings.Contains(totalRow, core.Exact.Count(doc.Total.MACs)) {
+		t.Errorf("totals row %q lacks params %s and MACs %s", totalRow, core.Exact.Count(doc.Total.Params), core.Exact.Count(doc.Total.MACs))
 	}
 	// Alignment: every row of the table has its "op" column at the same place.
 	header := -1

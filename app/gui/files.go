@@ -19,6 +19,7 @@ import (
 
 	"fovea/app/core"
 	"fovea/assets"
+	"fovea/modelio/prep"
 )
 
 // Kinds of file the window opens, decided by openKind.
@@ -28,11 +29,8 @@ const (
 	kindFolder = "folder"
 )
 
-// imageExts are the extensions of the image formats the decoder reads.
-var imageExts = []string{".png", ".jpg", ".jpeg", ".gif", ".bmp", ".tif", ".tiff", ".webp"}
-
 func isImageName(path string) bool {
-	return slices.Contains(imageExts, strings.ToLower(filepath.Ext(path)))
+	return slices.Contains(prep.Extensions, strings.ToLower(filepath.Ext(path)))
 }
 
 // imageMagic are the first bytes of the image formats the decoder reads
@@ -190,7 +188,7 @@ func (u *ui) chooseModel() {
 }
 
 func (u *ui) chooseImage() {
-	u.openDialog("Open an image", imageExts, u.openImage)
+	u.openDialog("Open an image", prep.Extensions, u.openImage)
 }
 
 func (u *ui) chooseProbeDir() {
@@ -317,7 +315,7 @@ func (u *ui) setWorkspace(ws *core.Workspace) {
 	u.vOcc.modelChanged()
 	u.vHealth.refresh()
 	u.vScore.modelChanged()
-	u.status.SetText(fmt.Sprintf("Opened %s: %d layers, %s parameters", ws.Name(), len(ws.Model.Layers), count(ws.Model.Total.Params)))
+	u.status.SetText(fmt.Sprintf("Opened %s: %d layers, %s parameters", ws.Name(), len(ws.Model.Layers), core.Compact.Count(ws.Model.Total.Params)))
 	if u.img != nil {
 		u.analyze()
 	}

@@ -2,12 +2,12 @@ package gui
 
 import (
 	"fmt"
-	"strconv"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/container"
 	"fyne.io/fyne/v2/widget"
 
+	"fovea/app/core"
 	"fovea/modelio"
 )
 
@@ -96,31 +96,22 @@ func (p *layerPanel) cell(row, col int) string {
 	if row < 0 || row >= len(p.rows) {
 		return ""
 	}
-	l := p.rows[row]
+	r := core.NewLayerRow(p.rows[row], core.Compact)
 	switch col {
 	case 0:
-		return l.Name
+		return r.Name
 	case 1:
-		return l.Op
+		return r.Op
 	case 2:
-		return l.WHD()
+		return r.Volume
 	case 3:
-		if l.Params == 0 {
-			return "–"
-		}
-		return count(l.Params)
+		return r.Params
 	case 4:
-		if l.MACs == 0 {
-			return "–"
-		}
-		return count(l.MACs)
+		return r.MACs
 	case 5:
-		return memSize(l.Bytes)
+		return r.Memory
 	case 6:
-		if l.RF <= 0 {
-			return "–"
-		}
-		return strconv.Itoa(l.RF)
+		return r.RF
 	}
 	return ""
 }
@@ -134,7 +125,7 @@ func (p *layerPanel) refresh() {
 		p.rows = ws.Model.Layers
 		t := ws.Model.Total
 		p.totals.SetText(fmt.Sprintf("%d layers · %s parameters · %s MACs per image · %s of outputs per image · RF in pixels of the input",
-			len(p.rows), count(t.Params), count(t.MACs), memSize(t.Bytes)))
+			len(p.rows), core.Compact.Count(t.Params), core.Compact.Count(t.MACs), core.Compact.Bytes(t.Bytes)))
 	}
 	p.quiet = true
 	p.table.UnselectAll()

@@ -21,6 +21,7 @@ import (
 	"fyne.io/fyne/v2/widget"
 
 	"fovea/app/core"
+	"fovea/app/core/envlocale"
 	"fovea/viz"
 	"fovea/viz/analysis"
 )
@@ -114,7 +115,7 @@ func run(o Options) (status int) {
 			status = 1
 		}
 	}()
-	quietCLocale()
+	envlocale.Fix() // again, for a caller that did not import it first (main does)
 	a := app.NewWithID(appID)
 	a.SetIcon(appIcon())
 	w := a.NewWindow("Fovea")
@@ -127,23 +128,6 @@ func run(o Options) (status int) {
 	u.start()
 	w.ShowAndRun()
 	return 0
-}
-
-// quietCLocale sets LANGUAGE=en when the locale names no language ("C",
-// "C.UTF-8", "POSIX"): Fyne reads LANGUAGE first and otherwise logs an error
-// for "C.UTF-8", the locale of scripts and containers.
-func quietCLocale() {
-	if os.Getenv("LANGUAGE") != "" {
-		return
-	}
-	for _, k := range []string{"LC_ALL", "LC_MESSAGES", "LANG"} {
-		if v := os.Getenv(k); v != "" {
-			if base, _, _ := strings.Cut(v, "."); base == "C" || base == "POSIX" {
-				os.Setenv("LANGUAGE", "en")
-			}
-			return
-		}
-	}
 }
 
 // validView reports whether name is one of Views.

@@ -10,34 +10,9 @@ import (
 	"fyne.io/fyne/v2"
 )
 
-// Numbers in tables: SI prefixes for counts (k = 10³, M = 10⁶, G = 10⁹) and
-// IEC binary prefixes for memory (KiB = 2¹⁰ B, MiB = 2²⁰ B; IEC 80000-13),
-// three significant digits. Expected strings worked out by hand.
+// Percentages and measured values in tables. Expected strings worked out by
+// hand. (Counts and sizes: core's TestNumbers.)
 func TestNumberFormats(t *testing.T) {
-	counts := []struct {
-		n    int64
-		want string
-	}{
-		{-1, "?"}, {0, "0"}, {999, "999"}, {1000, "1.00 k"}, {15335, "15.3 k"},
-		{138_357_544, "138 M"}, {11_689_512, "11.7 M"}, {1_814_000_000, "1.81 G"},
-	}
-	for _, c := range counts {
-		if got := count(c.n); got != c.want {
-			t.Errorf("count(%d) = %q, want %q", c.n, got, c.want)
-		}
-	}
-	sizes := []struct {
-		n    int64
-		want string
-	}{
-		{28, "28 B"}, {1023, "1023 B"}, {1024, "1.00 KiB"}, {262144, "256 KiB"}, {950272, "928 KiB"},
-		{3 << 20, "3.00 MiB"}, {5 << 30, "5.00 GiB"},
-	}
-	for _, c := range sizes {
-		if got := memSize(c.n); got != c.want {
-			t.Errorf("memSize(%d) = %q, want %q", c.n, got, c.want)
-		}
-	}
 	for _, c := range []struct {
 		p    float64
 		want string

@@ -233,9 +233,9 @@ func (v *modelView) refresh() {
 		}
 	}
 	add("Layers", fmt.Sprintf("%d, of which %d convolutions", len(m.Layers), convs))
-	add("Parameters", fmt.Sprintf("%s (%d)", count(m.Total.Params), m.Total.Params))
-	add("MACs per image", count(m.Total.MACs))
-	add("Output memory", memSize(m.Total.Bytes)+" per image (float32)")
+	add("Parameters", fmt.Sprintf("%s (%d)", core.Compact.Count(m.Total.Params), m.Total.Params))
+	add("MACs per image", core.Compact.Count(m.Total.MACs))
+	add("Output memory", core.Compact.Bytes(m.Total.Bytes)+" per image (float32)")
 	v.summary.Refresh()
 	notes := slices.Clone(m.Notes)
 	notes = append(notes, ws.GuessNotes()...)

@@ -28,6 +28,11 @@ import (
 // before finding that the file is truncated: that cost is bounded by this number.
 const MaxPixels = 1 << 26
 
+// Extensions are the file name extensions (lower case, with the dot) of the
+// formats [Load] decodes: the one list file dialogs and folder listings use.
+// The format itself is recognised from the content, not from the name.
+var Extensions = []string{".png", ".jpg", ".jpeg", ".gif", ".bmp", ".tif", ".tiff", ".webp"}
+
 // Error classes, for errors.Is on the errors of [Load], [Decode] and [DecodeLimit].
 var (
 	ErrEmpty    = errors.New("empty file")

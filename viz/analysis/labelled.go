@@ -147,7 +147,7 @@ func (r ClassResolver) Resolve(name string) (int, error) {
 // isImageName reports whether a file name has one of the image extensions
 // ProbeFiles takes and is not hidden.
 func isImageName(name string) bool {
-	return !strings.HasPrefix(name, ".") && probeExt[strings.ToLower(path.Ext(name))]
+	return !strings.HasPrefix(name, ".") && slices.Contains(prep.Extensions, strings.ToLower(path.Ext(name)))
 }
 
 // ReadFolder lists a labelled folder: each sub-folder of root in fsys is a

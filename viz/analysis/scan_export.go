@@ -6,7 +6,6 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
-	"fovea/modelio"
 	"io"
 	"io/fs"
 	"os"
@@ -15,6 +14,8 @@ import (
 	"slices"
 	"strconv"
 	"strings"
+
+	"fovea/modelio"
 )
 
 // ScanRow is one channel of a scan with the layer it belongs to: the flat
@@ -111,12 +112,6 @@ func (r *ScanReport) WriteJSON(w io.Writer) error {
 	return nil
 }
 
-// probeExt are the file name extensions ProbeFiles takes for images.
-var probeExt = map[string]bool{
-	".png": true, ".jpg": true, ".jpeg": true, ".gif": true, ".bmp": true,
-	".tif": true, ".tiff": true, ".webp": true,
-}
-
 // ProbeFiles lists the image files directly inside dir (not in its
 // subfolders), recognised by extension (png, jpg, jpeg, gif, bmp, tif, tiff,
 // webp, any case), sorted by name. Hidden files are left out.
@@ -160,7 +155,7 @@ func listProbes(fsys fs.FS, dir string) ([]string, error) {
 	var files []string
 	for _, e := range ents {
 		name := e.Name()
-		if strings.HasPrefix(name, ".") || !probeExt[strings.ToLower(path.Ext(name))] {
+		if !isImageName(name) {
 			continue
 		}
 		if !e.Type().IsRegular() && e.Type()&fs.ModeSymlink == 0 {
