@@ -19,7 +19,6 @@ import (
 	"crypto/sha256"
 	"encoding/csv"
 	"encoding/json"
-	"flag"
 	"fmt"
 	"image"
 	"image/png"
@@ -40,12 +39,9 @@ import (
 	"fovea/modelio/prep"
 	"fovea/viz"
 	"fovea/viz/analysis"
+
+	"fovea/modelio/testkit"
 )
-
-var update = flag.Bool("update", false, "rewrite the golden PNGs in testdata/golden/cli instead of comparing")
-
-// goldenDir holds this package's goldens (see testdata/README.md).
-const goldenDir = "../testdata/golden/cli"
 
 // runCLI runs one command line in-process and returns its stdout, stderr and
 // exit status. Progress is off, as when stderr is not a terminal.
@@ -1253,38 +1249,17 @@ func samePixels(t *testing.T, what string, got, want image.Image, tol int) bool 
 	return true
 }
 
-// goldenTol is the tolerance of golden comparisons: 2 levels of 255. The
-// pictures come from ONNX Runtime's float32 arithmetic, whose summation order
-// may differ on another CPU (other SIMD kernels); a colour two levels off is
-// invisible, a wrong picture is off by far more.
-const goldenTol = 2
+// goldens are this package's golden pictures (see testdata/README.md),
+// compared with a tolerance of 2 levels of 255: the pictures come from ONNX
+// Runtime's float32 arithmetic, whose summation order may differ on another
+// CPU (other SIMD kernels); a colour two levels off is invisible, a wrong
+// picture is off by far more. Rewrite them with go test ./app -run CLI
+// -update (testkit.Update).
+var goldens = testkit.Goldens{Dir: "../testdata/golden/cli", Failed: "../testdata/failed/cli", Tol: 2,
+	Rewrite: "go test ./app -run CLI -update"}
 
-// golden compares a picture with testdata/golden/cli/name, or rewrites the
-// golden with -update. On a mismatch the picture is written to
-// testdata/failed/cli/name for inspection.
+// golden compares a picture with testdata/golden/cli/name (goldens.Check).
 func golden(t *testing.T, name string, got *image.NRGBA) {
 	t.Helper()
-	path := filepath.Join(goldenDir, name)
-	if *update {
-		os.MkdirAll(goldenDir, 0o755)
-		if err := core.SavePNG(path, got); err != nil {
-			t.Fatal(err)
-		}
-		return
-	}
-	f, err := os.Open(path)
-	if err != nil {
-		t.Fatalf("golden %s: %v (make it with: go test ./app -run CLI -update)", path, err)
-	}
-	defer f.Close()
-	want, err := png.Decode(f)
-	if err != nil {
-		t.Fatalf("golden %s: %v", path, err)
-	}
-	if !samePixels(t, "golden "+name, got, want, goldenTol) {
-		failed := filepath.Join("..", "testdata", "failed", "cli", name)
-		os.MkdirAll(filepath.Dir(failed), 0o755)
-		core.SavePNG(failed, got)
-		t.Logf("the picture made now is in %s", failed)
-	}
+	goldens.Check(t, name, got)
 }

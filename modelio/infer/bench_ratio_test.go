@@ -12,49 +12,13 @@ import (
 	"slices"
 	"strconv"
 	"strings"
-	"sync"
 	"testing"
 	"time"
 
 	"fovea/modelio"
 	"fovea/modelio/infer"
-	"fovea/modelio/internal/synth"
+	"fovea/modelio/testkit"
 )
-
-var (
-	ratioORTOnce sync.Once
-	ratioORTErr  error
-)
-
-// ratioORT loads ONNX Runtime; a missing library fails the benchmark.
-func ratioORT(b *testing.B) {
-	ratioORTOnce.Do(func() {
-		p, err := infer.FindLibrary("")
-		if err == nil {
-			err = infer.Init(p)
-		}
-		ratioORTErr = err
-	})
-	if ratioORTErr != nil {
-		b.Fatalf("ONNX Runtime is needed and is not usable: %v", ratioORTErr)
-	}
-}
-
-// ratioModel returns the path of a synthetic model: from the folder
-// $FOVEA_BENCH_MODELS when make bench has written it there, else written
-// now into a temporary folder.
-func ratioModel(b *testing.B, file string, build func() *synth.Net) string {
-	if d := os.Getenv("FOVEA_BENCH_MODELS"); d != "" {
-		if p := filepath.Join(d, file); fileExists(p) {
-			return p
-		}
-	}
-	p := filepath.Join(b.TempDir(), file)
-	if err := build().WriteFile(p); err != nil {
-		b.Fatal(err)
-	}
-	return p
-}
 
 func fileExists(p string) bool {
 	st, err := os.Stat(p)
@@ -70,8 +34,8 @@ func fileExists(p string) bool {
 // alternated, and short pairs repeated within an iteration; the median of
 // the pairs' ratios is reported, with the lowest and highest.
 func BenchmarkCaptureRatioResNet18(b *testing.B) {
-	ratioORT(b)
-	m, err := modelio.Open(ratioModel(b, "resnet18.onnx", func() *synth.Net { return synth.ResNet18(1000) }))
+	testkit.NeedRuntime(b)
+	m, err := modelio.Open(filepath.Join(testkit.BenchModels(b, "resnet18.onnx"), "resnet18.onnx"))
 	if err != nil {
 		b.Fatal(err)
 	}

@@ -1,19 +1,20 @@
 package prep
 
 import (
-	"flag"
 	"fmt"
 	"os"
 	"path/filepath"
 	"testing"
 
 	"fovea/internal/atomicfile"
+	"fovea/modelio/testkit"
 )
 
 // imagesDir holds the stored test images (see testdata/README.md, section "images").
 var imagesDir = filepath.Join("..", "..", "testdata", "images")
 
-var update = flag.Bool("update", false, "rewrite testdata/images from the generators")
+// update (testkit.Update, -update) rewrites testdata/images from the generators.
+var update = testkit.Update
 
 // exifFiles are stored JPEGs with EXIF orientations 3, 6 and 8 (little-endian "II" for 6,
 // big-endian "MM" for 3 and 8) of the 32×16 quadrant picture.

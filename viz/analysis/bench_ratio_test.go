@@ -13,7 +13,7 @@ package analysis
 // network, both written by modelio/internal/synth. This package cannot
 // import that internal package, so the files come from the folder named by
 // $FOVEA_BENCH_MODELS (make bench writes them there once for all packages)
-// or, without it, from `go run fovea/modelio/internal/synth/synthbench`.
+// or, without it, written by testkit.BenchModels in this process.
 
 import (
 	"context"
@@ -24,19 +24,17 @@ import (
 	"image/png"
 	"math"
 	"os"
-	"os/exec"
 	"path/filepath"
-	"runtime"
 	"slices"
 	"strconv"
 	"strings"
-	"sync"
 	"testing"
 	"time"
 
 	"fovea/modelio"
 	"fovea/modelio/infer"
 	"fovea/modelio/prep"
+	"fovea/modelio/testkit"
 	"fovea/viz"
 )
 
@@ -57,43 +55,6 @@ const (
 // benchDemoFile is the demo classifier, relative to this package.
 const benchDemoFile = "../../assets/demo/parts.onnx"
 
-var (
-	benchORTOnce sync.Once
-	benchORTErr  error
-)
-
-// benchORT loads ONNX Runtime; a missing library fails the benchmark.
-func benchORT(b *testing.B) {
-	benchORTOnce.Do(func() {
-		p, err := infer.FindLibrary("")
-		if err == nil {
-			err = infer.Init(p)
-		}
-		benchORTErr = err
-	})
-	if benchORTErr != nil {
-		b.Fatalf("ONNX Runtime is needed and is not usable: %v", benchORTErr)
-	}
-}
-
-// benchModelDir returns a folder holding parts.onnx and resnet18.onnx
-// written by modelio/internal/synth.
-func benchModelDir(b *testing.B) string {
-	if d := os.Getenv("FOVEA_BENCH_MODELS"); d != "" {
-		return d
-	}
-	dir := b.TempDir()
-	goBin, err := exec.LookPath("go")
-	if err != nil {
-		goBin = filepath.Join(runtime.GOROOT(), "bin", "go")
-	}
-	cmd := exec.Command(goBin, "run", "fovea/modelio/internal/synth/synthbench", "models", dir, "parts", "resnet18")
-	if out, err := cmd.CombinedOutput(); err != nil {
-		b.Fatalf("writing the synthetic models: %v\n%s", err, out)
-	}
-	return dir
-}
-
 // benchCase is one model of the ratio benchmarks.
 type benchCase struct {
 	name          string // sub-benchmark: demo or resnet18
@@ -103,7 +64,7 @@ type benchCase struct {
 }
 
 func benchCases(b *testing.B) []benchCase {
-	dir := benchModelDir(b)
+	dir := testkit.BenchModels(b, "parts.onnx", "resnet18.onnx")
 	demo := benchDemoFile
 	if _, err := os.Stat(demo); err != nil {
 		b.Logf("%s not found; the demo rows use a stand-in of its architecture with random weights", demo)
@@ -249,7 +210,7 @@ func (p pairs) report(b *testing.B, unit string, invert bool, images int) {
 // batched inference on as many images as occlusion runs (positions + the
 // unoccluded image), same session: goal at most 1.10.
 func BenchmarkOcclusionRatio(b *testing.B) {
-	benchORT(b)
+	testkit.NeedRuntime(b)
 	for _, bc := range benchCases(b) {
 		b.Run(bc.name, func(b *testing.B) { occlusionRatio(b, bc) })
 	}
@@ -296,7 +257,7 @@ func occlusionRatio(b *testing.B, bc benchCase) {
 // same maps captured, by a session with the default options: goal at least
 // 0.8.
 func BenchmarkScanRatio(b *testing.B) {
-	benchORT(b)
+	testkit.NeedRuntime(b)
 	for _, bc := range benchCases(b) {
 		b.Run(bc.name, func(b *testing.B) { scanRatio(b, bc) })
 	}

@@ -7,7 +7,6 @@ package analysis
 import (
 	"os"
 	"path/filepath"
-	"sync"
 	"testing"
 
 	"google.golang.org/protobuf/proto"
@@ -15,24 +14,8 @@ import (
 	"fovea/modelio"
 	"fovea/modelio/infer"
 	"fovea/modelio/onnxpb"
+	"fovea/modelio/testkit"
 )
-
-// initRuntime loads ONNX Runtime once for the package's tests; the tests
-// need the real runtime and fail (not skip) when it is missing.
-var runtimeOnce = sync.OnceValue(func() error {
-	lib, err := infer.FindLibrary("")
-	if err != nil {
-		return err
-	}
-	return infer.Init(lib)
-})
-
-func initRuntime(t testing.TB) {
-	t.Helper()
-	if err := runtimeOnce(); err != nil {
-		t.Fatalf("ONNX Runtime is needed for this test (make ort): %v", err)
-	}
-}
 
 // graphBuilder collects nodes and initializers of one graph.
 type graphBuilder struct {
@@ -110,7 +93,7 @@ func (b *graphBuilder) model(t testing.TB) *modelio.Model {
 
 func newSession(t testing.TB, m *modelio.Model, opt infer.Options) *infer.Session {
 	t.Helper()
-	initRuntime(t)
+	testkit.NeedRuntime(t)
 	s, err := infer.NewSession(m, opt)
 	if err != nil {
 		t.Fatalf("session for the test model: %v", err)
