@@ -1,8 +1,6 @@
 package infer
 
 import (
-	"encoding/binary"
-	"math"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
@@ -12,6 +10,7 @@ import (
 	"google.golang.org/protobuf/proto"
 
 	"fovea/modelio"
+	"fovea/modelio/onnxbuild"
 	"fovea/modelio/onnxpb"
 )
 
@@ -38,48 +37,34 @@ func needORT(t testing.TB) {
 	}
 }
 
-// ---- building small ONNX models with the protobuf types ----
+// ---- building small ONNX models: short names for modelio/onnxbuild ----
 
-func f32(name string, dims []int64, data []float32) *onnxpb.TensorProto {
-	raw := make([]byte, 4*len(data))
-	for i, v := range data {
-		binary.LittleEndian.PutUint32(raw[4*i:], math.Float32bits(v))
-	}
-	return &onnxpb.TensorProto{Name: name, Dims: dims, DataType: int32(onnxpb.TensorProto_FLOAT), RawData: raw}
-}
+var (
+	f32     = onnxbuild.FloatTensor
+	ints    = onnxbuild.Ints
+	intAttr = onnxbuild.Int
+)
 
+// i64 is a one-dimensional int64 tensor.
 func i64(name string, data ...int64) *onnxpb.TensorProto {
-	return &onnxpb.TensorProto{Name: name, Dims: []int64{int64(len(data))}, DataType: int32(onnxpb.TensorProto_INT64), Int64Data: data}
+	return onnxbuild.Int64Tensor(name, []int64{int64(len(data))}, data)
 }
 
 // vi declares a tensor; dims are int (fixed), string (symbolic) or nil
 // (unknown).
 func vi(name string, elem onnxpb.TensorProto_DataType, dims ...any) *onnxpb.ValueInfoProto {
-	sp := &onnxpb.TensorShapeProto{}
-	for _, d := range dims {
-		dim := &onnxpb.TensorShapeProto_Dimension{}
-		switch v := d.(type) {
-		case int:
-			dim.Value = &onnxpb.TensorShapeProto_Dimension_DimValue{DimValue: int64(v)}
-		case string:
-			dim.Value = &onnxpb.TensorShapeProto_Dimension_DimParam{DimParam: v}
+	for i, d := range dims {
+		if d == nil {
+			dims[i] = -1 // onnxbuild: a negative size leaves the dimension without a value
 		}
-		sp.Dim = append(sp.Dim, dim)
 	}
-	return &onnxpb.ValueInfoProto{Name: name, Type: &onnxpb.TypeProto{Value: &onnxpb.TypeProto_TensorType{
-		TensorType: &onnxpb.TypeProto_Tensor{ElemType: int32(elem), Shape: sp}}}}
+	return onnxbuild.ValueInfo(name, int32(elem), dims...)
 }
 
+// node is a node with a name of its own (onnxbuild.Builder.Node names a
+// node after its first output).
 func node(op, name string, in, out []string, attrs ...*onnxpb.AttributeProto) *onnxpb.NodeProto {
 	return &onnxpb.NodeProto{OpType: op, Name: name, Input: in, Output: out, Attribute: attrs}
-}
-
-func ints(name string, v ...int64) *onnxpb.AttributeProto {
-	return &onnxpb.AttributeProto{Name: name, Type: onnxpb.AttributeProto_INTS, Ints: v}
-}
-
-func intAttr(name string, v int64) *onnxpb.AttributeProto {
-	return &onnxpb.AttributeProto{Name: name, Type: onnxpb.AttributeProto_INT, I: v}
 }
 
 func modelBytes(t testing.TB, g *onnxpb.GraphProto, opset int64, meta map[string]string) []byte {

@@ -6,9 +6,11 @@
 // Models for tests are built with the public builder, package
 // modelio/onnxbuild.
 //
-// The package imports modelio/infer, so the internal tests of modelio and
-// modelio/infer cannot import it (Go forbids the import cycle); those two
-// keep their own small helpers and say so.
+// The package imports modelio/infer and modelio/internal/synth, so the
+// internal tests of modelio, modelio/infer and modelio/internal/synth
+// cannot import it (Go forbids the import cycle); those keep their own
+// small runtime loader (failing the same way) and modelio its own -update
+// flag for its stored models.
 package testkit
 
 import (
