@@ -61,26 +61,26 @@ type inputDoc struct {
 }
 
 type imageDoc struct {
-	Name     string `json:"name"`
-	Layout   string `json:"layout"`
-	Channels int    `json:"channels"`
-	Height   int    `json:"height"`
-	Width    int    `json:"width"`
+	Name     string         `json:"name"`
+	Layout   modelio.Layout `json:"layout"`
+	Channels int            `json:"channels"`
+	Height   int            `json:"height"`
+	Width    int            `json:"width"`
 }
 
 type layerDoc struct {
-	Name        string  `json:"name"`
-	Op          string  `json:"op"`
-	Output      string  `json:"output"`
-	Shape       []int64 `json:"shape"`
-	Volume      string  `json:"volume"`
-	Params      int64   `json:"params"`
-	MACs        int64   `json:"macs"`
-	Bytes       int64   `json:"bytes"`
-	RF          int     `json:"receptive_field"`
-	Jump        int     `json:"jump"`
-	ShapeSource string  `json:"shape_source"`
-	Note        string  `json:"note,omitempty"`
+	Name        string              `json:"name"`
+	Op          string              `json:"op"`
+	Output      string              `json:"output"`
+	Shape       []int64             `json:"shape"`
+	Volume      string              `json:"volume"`
+	Params      int64               `json:"params"`
+	MACs        int64               `json:"macs"`
+	Bytes       int64               `json:"bytes"`
+	RF          int                 `json:"receptive_field"`
+	Jump        int                 `json:"jump"`
+	ShapeSource modelio.ShapeSource `json:"shape_source"`
+	Note        string              `json:"note,omitempty"`
 }
 
 type totalsDoc struct {

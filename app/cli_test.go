@@ -251,7 +251,7 @@ func TestCLILayers(t *testing.T) {
 	for i, l := range doc.Layers {
 		w := m.Layers[i]
 		if l.Name != w.Name || l.Op != w.Op || !slices.Equal(l.Shape, w.Shape.Ints()) || l.Params != w.Params ||
-			l.MACs != w.MACs || l.Bytes != w.Bytes || l.RF != w.RF || l.Jump != w.Jump || l.ShapeSource != w.ShapeSource {
+			l.MACs != w.MACs || l.Bytes != w.Bytes || l.RF != w.RF || l.Jump != w.Jump || l.ShapeSource != string(w.ShapeSource) {
 			t.Errorf("layer %d: CLI %+v, modelio %+v", i, l, w)
 		}
 		if l.ShapeSource != "static" && l.ShapeSource != "observed" {

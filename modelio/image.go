@@ -87,20 +87,20 @@ func (m *Model) findImage() {
 		s := v.Shape
 		switch {
 		case slices.Equal(perm, []int64{0, 3, 1, 2}):
-			img.Layout, img.Why = "nhwc", "a Transpose [0 3 1 2] turns it channels-first"
+			img.Layout, img.Why = LayoutNHWC, "a Transpose [0 3 1 2] turns it channels-first"
 		case perm != nil && len(perm) > 0:
-			img.Layout, img.Why = "nchw", fmt.Sprintf("a Transpose %v follows it; read as channels-first", perm)
+			img.Layout, img.Why = LayoutNCHW, fmt.Sprintf("a Transpose %v follows it; read as channels-first", perm)
 		case conv >= 0 && perm == nil:
-			img.Layout, img.Why = "nchw", "a convolution reads it directly (ONNX convolutions are channels-first)"
+			img.Layout, img.Why = LayoutNCHW, "a convolution reads it directly (ONNX convolutions are channels-first)"
 		case isColour(s[1]) && !isColour(s[3]):
-			img.Layout, img.Why = "nchw", "dimension 1 has a colour-channel size"
+			img.Layout, img.Why = LayoutNCHW, "dimension 1 has a colour-channel size"
 		case isColour(s[3]) && !isColour(s[1]):
-			img.Layout, img.Why = "nhwc", "dimension 3 has a colour-channel size"
+			img.Layout, img.Why = LayoutNHWC, "dimension 3 has a colour-channel size"
 		default:
-			img.Layout, img.Why = "nchw", "no evidence either way; ONNX convolutions are channels-first"
+			img.Layout, img.Why = LayoutNCHW, "no evidence either way; ONNX convolutions are channels-first"
 		}
 		c, h, w := s[1], s[2], s[3]
-		if img.Layout == "nhwc" {
+		if img.Layout == LayoutNHWC {
 			h, w, c = s[1], s[2], s[3]
 		}
 		toInt := func(d Dim) int {

@@ -98,7 +98,7 @@ func TestImageLayoutAndFirstKernels(t *testing.T) {
 func TestImageLayoutFromDims(t *testing.T) {
 	for _, tc := range []struct {
 		dims   []any
-		layout string
+		layout Layout
 		c      int
 	}{
 		{[]any{1, 3, 32, 32}, "nchw", 3},   // channel-sized dim 1

@@ -51,7 +51,7 @@ func (m *Model) analyse() {
 		ti.rf = rfInfo{why: "not computed from the image input"}
 		if m.Image != nil && name == m.Image.Name {
 			h, w := 2, 3
-			if m.Image.Layout == "nhwc" {
+			if m.Image.Layout == LayoutNHWC {
 				h, w = 1, 2
 			}
 			ti.rf = rfInfo{ok: true, r: [2]int64{1, 1}, j: [2]int64{1, 1}, uok: true, ax: axes{true, h, w}}

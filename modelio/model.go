@@ -109,7 +109,7 @@ func ShapeOf(sizes ...int64) Shape {
 // ImageInput describes the input that looks like an image.
 type ImageInput struct {
 	Name     string
-	Layout   string // "nchw" | "nhwc"
+	Layout   Layout // LayoutNCHW or LayoutNHWC
 	Channels int    // 0 = symbolic
 	Height   int    // 0 = symbolic
 	Width    int    // 0 = symbolic
@@ -134,10 +134,10 @@ type Layer struct {
 	// were tracked to it), rank 3 [N, C, L] as L×1×C, rank 2 [N, F] as
 	// 1×1×F; -1 when unknown.
 	Width, Height, Depth int64
-	Params, MACs, Bytes  int64  // Bytes: output at float32 for batch 1
-	RF, Jump             int    // receptive field (pixels) and cumulative stride w.r.t. the image; 0 = n/a
-	ShapeSource          string // "static" | "observed" | "unknown"
-	Note                 string // why a shape is unknown, etc.
+	Params, MACs, Bytes  int64       // Bytes: output at float32 for batch 1
+	RF, Jump             int         // receptive field (pixels) and cumulative stride w.r.t. the image; 0 = n/a
+	ShapeSource          ShapeSource // SourceStatic, SourceObserved or SourceUnknown
+	Note                 string      // why a shape is unknown, etc.
 	// RFY, RFX and JumpY, JumpX are RF and Jump per image axis (height,
 	// width); RF and Jump are the larger of the two. 0 = n/a.
 	RFY, RFX, JumpY, JumpX int
@@ -170,11 +170,25 @@ func (l Layer) WHD() string {
 // Totals sums the layer table.
 type Totals struct{ Params, MACs, Bytes int64 }
 
-// Shape-source values of Layer.ShapeSource.
+// ShapeSource says where a layer's output shape came from. Its string is
+// the spelling in JSON and in the command line's layer table.
+type ShapeSource string
+
+// The shape sources.
 const (
-	SourceStatic   = "static"
-	SourceObserved = "observed"
-	SourceUnknown  = "unknown"
+	SourceStatic   ShapeSource = "static"   // inferred from the file without running it
+	SourceObserved ShapeSource = "observed" // measured on a run (Model.Observe)
+	SourceUnknown  ShapeSource = "unknown"  // neither: the note says why
+)
+
+// Layout is the axis order of an image tensor. Its string is the spelling
+// in JSON, settings files and on the command line.
+type Layout string
+
+// The image layouts.
+const (
+	LayoutNCHW Layout = "nchw" // [n][c][h][w]: channels first, ONNX's order for convolutions
+	LayoutNHWC Layout = "nhwc" // [n][h][w][c]: channels last
 )
 
 // build fills the summary and the layer table from m.pb.

@@ -36,9 +36,9 @@ type tinfo struct {
 	floats   []float64 // small constant float value, nil when not known
 	act      bool      // computed from a model input: an activation
 	rf       rfInfo
-	src      string // SourceStatic, SourceObserved, or "" (unknown)
-	declared bool   // shape taken from the file's value_info, not inferred
-	fromRun  bool   // shape observed in a run or inferred from one that was
+	src      ShapeSource // SourceStatic, SourceObserved, or "" (unknown)
+	declared bool        // shape taken from the file's value_info, not inferred
+	fromRun  bool        // shape observed in a run or inferred from one that was
 	note     string
 }
 

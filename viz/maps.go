@@ -98,15 +98,15 @@ func (v *mapView) at(b, ch, y, x int) float64 {
 // viewTensor checks t against the layout. Rank 4 is [n][c][h][w] or
 // [n][h][w][c]; rank 3 is the same without the batch; rank 2 ([n][features],
 // after global pooling or Gemm) is taken as n maps of 1×1 per feature.
-func viewTensor(t modelio.Tensor, layout string) (*mapView, error) {
+func viewTensor(t modelio.Tensor, layout modelio.Layout) (*mapView, error) {
 	name := t.Name
 	if name == "" {
 		name = "activation"
 	}
 	v := &mapView{name: name, data: t.Data}
-	switch strings.ToLower(layout) {
-	case "nchw":
-	case "nhwc":
+	switch modelio.Layout(strings.ToLower(string(layout))) {
+	case modelio.LayoutNCHW:
+	case modelio.LayoutNHWC:
 		v.nhwc = true
 	default:
 		return nil, fmt.Errorf("viz: tensor %q: layout %q is neither \"nchw\" nor \"nhwc\"", name, layout)
@@ -186,7 +186,7 @@ func (v *mapView) stats(b, ch int) (ChannelStats, error) {
 // channels ([MapRange] of the returned statistics) or, with PerTile, over
 // each channel's own range. Each activation cell is a Zoom×Zoom square; the
 // picture is never smoothed, so what is seen is what the layer computed.
-func MapGrid(t modelio.Tensor, layout string, o GridOptions) (*image.NRGBA, []ChannelStats, error) {
+func MapGrid(t modelio.Tensor, layout modelio.Layout, o GridOptions) (*image.NRGBA, []ChannelStats, error) {
 	v, err := viewTensor(t, layout)
 	if err != nil {
 		return nil, nil, err
@@ -459,7 +459,7 @@ func strength(n float64) float64 {
 // base must be the image as the model saw it (prep.Fit's result, at the
 // model's input size): cells are placed in its pixel coordinates. Upscale
 // the result, not the input, for display. The tensor's first image is used.
-func MapOverlay(base image.Image, t modelio.Tensor, layout string, channel int, l modelio.Layer, opacity float64) (*image.NRGBA, error) {
+func MapOverlay(base image.Image, t modelio.Tensor, layout modelio.Layout, channel int, l modelio.Layer, opacity float64) (*image.NRGBA, error) {
 	v, err := viewTensor(t, layout)
 	if err != nil {
 		return nil, err

@@ -135,7 +135,7 @@ func TestMapGridErrors(t *testing.T) {
 	for _, c := range []struct {
 		name   string
 		t      modelio.Tensor
-		layout string
+		layout modelio.Layout
 		o      GridOptions
 		want   string
 	}{

@@ -104,7 +104,7 @@ type Activations struct {
 // MapLayout is the layout of activation maps: ONNX's Conv, pooling and
 // normalisation operators produce NCHW whatever layout the image input has
 // (ONNX Operators.md, Conv: "(N x C x H x W)"), so maps are always "nchw".
-const MapLayout = "nchw"
+const MapLayout = modelio.LayoutNCHW
 
 // Activations runs the model once on img, capturing every activation layer
 // (modelio.Model.ActivationLayers).

@@ -184,7 +184,7 @@ func dims(m *modelio.Model, c prep.Config) []int64 {
 	if m.Image != nil && m.Image.Layout != "" {
 		layout = m.Image.Layout
 	}
-	if layout == prep.LayoutNHWC {
+	if layout == modelio.LayoutNHWC {
 		return []int64{int64(c.Height), int64(c.Width), int64(c.Channels)}
 	}
 	return []int64{int64(c.Channels), int64(c.Height), int64(c.Width)}

@@ -181,7 +181,7 @@ func (v *healthView) sortBy(col int) {
 }
 
 // sortKeys map the columns analysis.SortRows knows; the others sort here.
-var sortKeys = map[int]string{0: analysis.SortName, 1: analysis.SortOrder, 2: analysis.SortFires, 3: analysis.SortMax, 4: analysis.SortMean}
+var sortKeys = map[int]analysis.SortKey{0: analysis.SortName, 1: analysis.SortOrder, 2: analysis.SortFires, 3: analysis.SortMax, 4: analysis.SortMean}
 
 // fill rebuilds the shown rows from the scan: filter, then sort.
 func (v *healthView) fill() {

@@ -52,7 +52,7 @@ var (
 	channelChoices = []string{"3 (colour)", "1 (grey)"}
 	orderChoices   = []string{"RGB", "BGR"}
 	rangeChoices   = []string{prep.RangeUnit, prep.RangeByte, prep.RangeSigned}
-	layoutChoices  = []string{"nchw", "nhwc"}
+	layoutChoices  = []string{string(modelio.LayoutNCHW), string(modelio.LayoutNHWC)}
 	// crop:256 is the common evaluation pipeline for 224-pixel inputs (shorter
 	// side to 256, centre cut); any crop:S can be typed.
 	resizeChoices = []string{prep.ResizeStretch, prep.ResizeCrop, "crop:256"}
@@ -204,7 +204,7 @@ func (v *modelView) refresh() {
 		}
 		s := fmt.Sprintf("%s: %s %s", in.Name, in.ElemType, in.Shape)
 		if m.Image != nil && m.Image.Name == in.Name {
-			s += " (" + strings.ToUpper(m.Image.Layout) + " image)"
+			s += " (" + strings.ToUpper(string(m.Image.Layout)) + " image)"
 		}
 		add("Input", s)
 	}
@@ -256,7 +256,7 @@ func (v *modelView) refresh() {
 	v.vrange.SetSelected(c.Range)
 	v.mean.SetText(triple(c.Mean))
 	v.std.SetText(triple(c.Std))
-	v.layout.SetSelected(c.Layout)
+	v.layout.SetSelected(string(c.Layout))
 	v.resize.SetText(c.Resize)
 	v.bg.SetText(fmt.Sprintf("#%02x%02x%02x", c.Background.R, c.Background.G, c.Background.B))
 

@@ -7,20 +7,22 @@ import (
 	"math"
 	"strconv"
 	"strings"
+
+	"fovea/modelio"
 )
 
 // Config says how an image becomes a model input. The zero value is not usable (its
 // size and Std are 0): start from [Guess], [Default] or a literal, and check it with
 // [Config.Validate] before use.
 type Config struct {
-	Width, Height int         // input size in pixels
-	Channels      int         // 3 (colour) or 1 (luminance, ITU-R BT.601)
-	Resize        string      // "stretch": whole picture to Width×Height; "crop": shorter side to size, centre cut; "crop:S": shorter side to S, centre cut
-	Range         string      // value range before mean/std: "0-1", "0-255" or "-1-1"
-	Mean, Std     [3]float32  // per tensor channel (so in B,G,R order when BGR), applied as (v - Mean)/Std
-	BGR           bool        // channel order blue, green, red instead of red, green, blue
-	Layout        string      // "nchw" or "nhwc"
-	Background    color.NRGBA // colour behind transparent pixels; its alpha is ignored
+	Width, Height int            // input size in pixels
+	Channels      int            // 3 (colour) or 1 (luminance, ITU-R BT.601)
+	Resize        string         // "stretch": whole picture to Width×Height; "crop": shorter side to size, centre cut; "crop:S": shorter side to S, centre cut
+	Range         string         // value range before mean/std: "0-1", "0-255" or "-1-1"
+	Mean, Std     [3]float32     // per tensor channel (so in B,G,R order when BGR), applied as (v - Mean)/Std
+	BGR           bool           // channel order blue, green, red instead of red, green, blue
+	Layout        modelio.Layout // modelio.LayoutNCHW or modelio.LayoutNHWC
+	Background    color.NRGBA    // colour behind transparent pixels; its alpha is ignored
 }
 
 // Names accepted for the string fields of Config.
@@ -34,8 +36,6 @@ const (
 	RangeUnit        = "0-1"
 	RangeByte        = "0-255"
 	RangeSigned      = "-1-1"
-	LayoutNCHW       = "nchw"
-	LayoutNHWC       = "nhwc"
 )
 
 // MaxSide is the largest Width or Height a Config may ask for. Real classifiers take a
@@ -53,7 +53,7 @@ func Default() Config {
 		Width: DefaultSize, Height: DefaultSize, Channels: 3,
 		Resize: ResizeStretch, Range: RangeUnit,
 		Std:        [3]float32{1, 1, 1},
-		Layout:     LayoutNCHW,
+		Layout:     modelio.LayoutNCHW,
 		Background: color.NRGBA{255, 255, 255, 255},
 	}
 }
@@ -79,8 +79,8 @@ func (c Config) Validate() error {
 	if c.Range != RangeUnit && c.Range != RangeByte && c.Range != RangeSigned {
 		bad("range %q: use %q, %q or %q", c.Range, RangeUnit, RangeByte, RangeSigned)
 	}
-	if c.Layout != LayoutNCHW && c.Layout != LayoutNHWC {
-		bad("layout %q: use %q or %q", c.Layout, LayoutNCHW, LayoutNHWC)
+	if c.Layout != modelio.LayoutNCHW && c.Layout != modelio.LayoutNHWC {
+		bad("layout %q: use %q or %q", c.Layout, modelio.LayoutNCHW, modelio.LayoutNHWC)
 	}
 	for i := range c.Channels {
 		if i >= 3 {
@@ -124,7 +124,7 @@ func (c Config) String() string {
 	if c.Std != [3]float32{1, 1, 1} {
 		fmt.Fprintf(&b, ", std %s", triple(c.Std, n))
 	}
-	fmt.Fprintf(&b, ", %s", strings.ToUpper(c.Layout))
+	fmt.Fprintf(&b, ", %s", strings.ToUpper(string(c.Layout)))
 	if bg := c.Background; bg.R != 255 || bg.G != 255 || bg.B != 255 {
 		fmt.Fprintf(&b, ", background #%02x%02x%02x", bg.R, bg.G, bg.B)
 	}
@@ -145,7 +145,7 @@ func triple(v [3]float32, n int) string {
 
 // Shape is the tensor shape of n images under c, in c.Layout: [n C H W] or [n H W C].
 func (c Config) Shape(n int) []int64 {
-	if c.Layout == LayoutNHWC {
+	if c.Layout == modelio.LayoutNHWC {
 		return []int64{int64(n), int64(c.Height), int64(c.Width), int64(c.Channels)}
 	}
 	return []int64{int64(n), int64(c.Channels), int64(c.Height), int64(c.Width)}

@@ -6,6 +6,8 @@ import (
 	"math"
 	"strings"
 	"testing"
+
+	"fovea/modelio"
 )
 
 func TestDefaultIsValid(t *testing.T) {
@@ -153,7 +155,7 @@ func TestParseHelpers(t *testing.T) {
 	if _, err := ParseRange("0-100"); err == nil || !strings.Contains(err.Error(), `range "0-100"`) {
 		t.Errorf("ParseRange(0-100): %v", err)
 	}
-	if l, err := ParseLayout("NHWC"); err != nil || l != LayoutNHWC {
+	if l, err := ParseLayout("NHWC"); err != nil || l != modelio.LayoutNHWC {
 		t.Errorf("ParseLayout(NHWC) = %q, %v", l, err)
 	}
 	if _, err := ParseLayout("hwc"); err == nil {
@@ -272,14 +274,14 @@ func TestGuessFrom(t *testing.T) {
 		t.Errorf("half symbolic: %v %q", c, notes)
 	}
 	c, _ = GuessFrom(&Input{}, map[string]string{MetadataKey: `{"size":"100x50","channels":"gray","layout":"nhwc"}`})
-	if c.Width != 100 || c.Height != 50 || c.Channels != 1 || c.Layout != LayoutNHWC {
+	if c.Width != 100 || c.Height != 50 || c.Channels != 1 || c.Layout != modelio.LayoutNHWC {
 		t.Errorf("metadata fills symbolic: %v", c)
 	}
 
 	// Disagreement and rubbish: the model wins, each problem is a note, nothing fails.
 	c, notes = GuessFrom(&Input{Layout: "nchw", Channels: 3, Height: 32, Width: 32},
 		map[string]string{MetadataKey: `{"layout":"nhwc","range":"0-100","mean":"a","colour":"x","preset":"bgr-mean","std":[1,2]}`})
-	if c.Layout != LayoutNCHW || c.Range != RangeByte || !c.BGR || c.Mean != [3]float32{103.939, 116.779, 123.68} {
+	if c.Layout != modelio.LayoutNCHW || c.Range != RangeByte || !c.BGR || c.Mean != [3]float32{103.939, 116.779, 123.68} {
 		t.Errorf("rubbish metadata: %v", c)
 	}
 	for _, w := range []string{"using nchw", `range "0-100"`, `key "colour" not understood`, "mean", "std"} {

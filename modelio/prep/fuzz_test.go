@@ -9,6 +9,8 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"fovea/modelio"
 )
 
 // fuzzMaxPixels keeps each fuzz input cheap; the limit logic itself is the same as with
@@ -44,7 +46,7 @@ func FuzzLoad(f *testing.F) {
 	configs := []Config{Default(), Default()}
 	configs[0].Width, configs[0].Height, configs[0].Resize = 7, 5, ResizeCrop
 	configs[1] = mustPreset("bgr-mean", configs[1])
-	configs[1].Width, configs[1].Height, configs[1].Channels, configs[1].Layout = 4, 9, 1, LayoutNHWC
+	configs[1].Width, configs[1].Height, configs[1].Channels, configs[1].Layout = 4, 9, 1, modelio.LayoutNHWC
 
 	f.Fuzz(func(t *testing.T, data []byte) {
 		img, err := DecodeLimit(bytes.NewReader(data), int64(len(data)), "fuzz.bin", fuzzMaxPixels)

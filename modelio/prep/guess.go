@@ -6,12 +6,14 @@ import (
 	"fmt"
 	"sort"
 	"strings"
+
+	"fovea/modelio"
 )
 
 // Input is what [GuessFrom] needs to know of a model's image input: the same fields as
 // modelio.ImageInput. A size of 0 means symbolic (unknown until run time).
 type Input struct {
-	Layout                  string // "nchw" | "nhwc" | "" (unknown)
+	Layout                  modelio.Layout // modelio.LayoutNCHW, modelio.LayoutNHWC or "" (unknown)
 	Channels, Height, Width int
 }
 
@@ -49,8 +51,8 @@ func GuessFrom(in *Input, meta map[string]string) (Config, []string) {
 		return c, notes
 	}
 
-	switch l := strings.ToLower(in.Layout); l {
-	case LayoutNCHW, LayoutNHWC:
+	switch l := modelio.Layout(strings.ToLower(string(in.Layout))); l {
+	case modelio.LayoutNCHW, modelio.LayoutNHWC:
 		if fromMeta["layout"] && c.Layout != l {
 			note("metadata says layout %s, the model's input shape says %s: using %s", c.Layout, l, l)
 		}

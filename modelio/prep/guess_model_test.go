@@ -49,7 +49,7 @@ func TestGuessModel(t *testing.T) {
 		t.Errorf("symbolic without metadata: %v %q", c, notes)
 	}
 	m = build(true, 20, 20, "")
-	if c := Guess(m); c.Layout != LayoutNHWC || c.Width != 20 || c.Height != 20 {
+	if c := Guess(m); c.Layout != modelio.LayoutNHWC || c.Width != 20 || c.Height != 20 {
 		t.Errorf("NHWC input (modelio says %q): %v", m.Image.Layout, c)
 	}
 }

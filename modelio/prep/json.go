@@ -3,21 +3,23 @@ package prep
 import (
 	"encoding/json"
 	"fmt"
+
+	"fovea/modelio"
 )
 
 // configJSON is the file form of a Config: readable names, the channel order as a word
 // and the background as #rrggbb.
 type configJSON struct {
-	Width      int       `json:"width"`
-	Height     int       `json:"height"`
-	Channels   int       `json:"channels"`
-	Order      string    `json:"order"`
-	Resize     string    `json:"resize"`
-	Range      string    `json:"range"`
-	Mean       []float32 `json:"mean"`
-	Std        []float32 `json:"std"`
-	Layout     string    `json:"layout"`
-	Background string    `json:"background"`
+	Width      int            `json:"width"`
+	Height     int            `json:"height"`
+	Channels   int            `json:"channels"`
+	Order      string         `json:"order"`
+	Resize     string         `json:"resize"`
+	Range      string         `json:"range"`
+	Mean       []float32      `json:"mean"`
+	Std        []float32      `json:"std"`
+	Layout     modelio.Layout `json:"layout"`
+	Background string         `json:"background"`
 }
 
 // MarshalJSON writes c as

@@ -6,6 +6,8 @@ import (
 	"math"
 	"strconv"
 	"strings"
+
+	"fovea/modelio"
 )
 
 // ParseSize reads "WIDTHxHEIGHT" ("224x224", also with "X" or "×") or a single number
@@ -66,12 +68,12 @@ func ParseRange(s string) (string, error) {
 }
 
 // ParseLayout reads "nchw" or "nhwc" in any case.
-func ParseLayout(s string) (string, error) {
-	switch l := strings.ToLower(strings.TrimSpace(s)); l {
-	case LayoutNCHW, LayoutNHWC:
+func ParseLayout(s string) (modelio.Layout, error) {
+	switch l := modelio.Layout(strings.ToLower(strings.TrimSpace(s))); l {
+	case modelio.LayoutNCHW, modelio.LayoutNHWC:
 		return l, nil
 	}
-	return "", fmt.Errorf("prep: layout %q: use %s (channels first) or %s (channels last)", s, LayoutNCHW, LayoutNHWC)
+	return "", fmt.Errorf("prep: layout %q: use %s (channels first) or %s (channels last)", s, modelio.LayoutNCHW, modelio.LayoutNHWC)
 }
 
 // ParseResize reads "stretch", "crop" or "crop:S" (S a whole number of pixels,
@@ -187,7 +189,7 @@ func (c *Config) Set(key, value string) error {
 		}
 		c.Std = v
 	case "layout":
-		var l string
+		var l modelio.Layout
 		if l, err = ParseLayout(value); err == nil {
 			c.Layout = l
 		}

@@ -3,6 +3,8 @@ package prep
 import (
 	"fmt"
 	"image"
+
+	"fovea/modelio"
 )
 
 // Luminance weights of ITU-R BT.601 (Y = 0.299 R + 0.587 G + 0.114 B), used for
@@ -76,7 +78,7 @@ func (c Config) Tensor(planes, dst []float32) {
 				p = src[i]
 			}
 			v := (k*p + off - mean) / std
-			if c.Layout == LayoutNHWC {
+			if c.Layout == modelio.LayoutNHWC {
 				dst[i*c.Channels+ch] = v
 			} else {
 				dst[ch*hw+i] = v
@@ -137,7 +139,7 @@ func (c Config) TensorFromImage(img *image.NRGBA, dst []float32) {
 	// table[ch*256+v]: channel ch of a pixel whose three samples are all v. Channel ch
 	// reads sample ch, or 2−ch when BGR.
 	tc := c
-	tc.Width, tc.Height, tc.Layout = 256, 1, LayoutNCHW
+	tc.Width, tc.Height, tc.Layout = 256, 1, modelio.LayoutNCHW
 	planes := make([]float32, 3*256)
 	for v := range 256 {
 		p := float32(v) / 255
@@ -153,7 +155,7 @@ func (c Config) TensorFromImage(img *image.NRGBA, dst []float32) {
 	s0, s1, s2 := src[0], src[1], src[2]
 	for y := range h {
 		row := img.Pix[y*img.Stride : y*img.Stride+4*w]
-		if c.Layout == LayoutNHWC {
+		if c.Layout == modelio.LayoutNHWC {
 			out := dst[y*w*3 : (y+1)*w*3]
 			for x := range w {
 				px := row[4*x : 4*x+4 : 4*x+4]

@@ -6,6 +6,8 @@ import (
 	"math/rand/v2"
 	"strings"
 	"testing"
+
+	"fovea/modelio"
 )
 
 // randomNRGBA is an opaque w×h picture of random samples with origin (3, −2) and a
@@ -25,7 +27,7 @@ func randomNRGBA(rng *rand.Rand, w, h int) *image.NRGBA {
 func TestTensorFromImageMatchesPlanesTensor(t *testing.T) {
 	rng := rand.New(rand.NewPCG(5, 6))
 	for _, p := range Presets() {
-		for _, layout := range []string{LayoutNCHW, LayoutNHWC} {
+		for _, layout := range []modelio.Layout{modelio.LayoutNCHW, modelio.LayoutNHWC} {
 			for _, ch := range []int{3, 1} {
 				for _, bgr := range []bool{false, true} {
 					for _, size := range [][2]int{{1, 1}, {7, 5}, {16, 33}} {

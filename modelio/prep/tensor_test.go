@@ -6,6 +6,8 @@ import (
 	"math"
 	"strings"
 	"testing"
+
+	"fovea/modelio"
 )
 
 // tol is the tolerance of float32 tensor values against hand-computed decimals: the
@@ -129,7 +131,7 @@ func TestLayoutIndexMapping(t *testing.T) {
 	planes := Planes(img)
 	nchw, nhwc := make([]float32, c.Len()), make([]float32, c.Len())
 	c.Tensor(planes, nchw)
-	c.Layout = LayoutNHWC
+	c.Layout = modelio.LayoutNHWC
 	c.Tensor(planes, nhwc)
 	// Hand-written expectations for both layouts.
 	wantNCHW := []float32{0, 10, 20, 1, 11, 21, 100, 110, 120, 101, 111, 121, 200, 210, 220, 201, 211, 221}
@@ -142,7 +144,7 @@ func TestLayoutIndexMapping(t *testing.T) {
 	if s := c.Shape(5); s[0] != 5 || s[1] != h || s[2] != w || s[3] != 3 {
 		t.Errorf("NHWC shape %v", s)
 	}
-	c.Layout = LayoutNCHW
+	c.Layout = modelio.LayoutNCHW
 	if s := c.Shape(5); s[0] != 5 || s[1] != 3 || s[2] != h || s[3] != w {
 		t.Errorf("NCHW shape %v", s)
 	}

@@ -8,6 +8,8 @@ import (
 	"strconv"
 	"testing"
 
+	"fovea/modelio/testkit"
+
 	"golang.org/x/sys/unix"
 )
 
@@ -20,7 +22,7 @@ import (
 // and JPEG probes. Goal: scan throughput at least 0.8 of plain inference at
 // every core count.
 func BenchmarkScanCores(b *testing.B) {
-	benchORT(b)
+	testkit.NeedRuntime(b)
 	var all unix.CPUSet
 	if err := unix.SchedGetaffinity(0, &all); err != nil {
 		b.Fatalf("reading the CPU affinity: %v", err)

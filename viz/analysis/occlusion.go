@@ -8,6 +8,7 @@ import (
 
 	"github.com/disintegration/imaging"
 
+	"fovea/modelio"
 	"fovea/modelio/infer"
 	"fovea/modelio/prep"
 	"fovea/viz"
@@ -206,7 +207,7 @@ func Occlude(ctx context.Context, s *infer.Session, c prep.Config, img *image.NR
 	for i := range prev {
 		prev[i] = [2]int{-1, -1}
 	}
-	lc := layoutCopier{nhwc: c.Layout == prep.LayoutNHWC, c: c.Channels, h: h, w: w, patch: set.Patch}
+	lc := layoutCopier{nhwc: c.Layout == modelio.LayoutNHWC, c: c.Channels, h: h, w: w, patch: set.Patch}
 	for start := 0; start < npos; start += bs {
 		if err := ctx.Err(); err != nil {
 			return nil, err

@@ -11,6 +11,7 @@ import (
 	"fovea/modelio/infer"
 	"fovea/modelio/onnxbuild"
 	"fovea/modelio/prep"
+	"fovea/modelio/testkit"
 	"fovea/viz"
 )
 
@@ -66,7 +67,7 @@ func occludeAll(t *testing.T, m *modelio.Model, score viz.Score) ([]*viz.Occlusi
 // exponential overflows); tolerance 1e-12, float64 rounding of sums of five
 // terms of size ≤ 10.
 func TestOcclusionLogitsBehindSoftmax(t *testing.T) {
-	initRuntime(t)
+	testkit.NeedRuntime(t)
 	plain := headNet(t, nil)
 	ref, err := occludeAll(t, plain, viz.ScoreLogit)
 	if err != nil {
@@ -142,7 +143,7 @@ func TestOcclusionLogitsBehindSoftmax(t *testing.T) {
 // values (p = base − drop; tolerance 1e-9: p is recovered from a float64
 // difference, and these probabilities are above 1e-3).
 func TestOcclusionNoLogits(t *testing.T) {
-	initRuntime(t)
+	testkit.NeedRuntime(t)
 	m := headNet(t, func(b *onnxbuild.Builder, z string) string {
 		return b.Op("Mul", []string{softmaxHead("Softmax")(b, z), b.Init("one", []int64{1}, []float32{1})})
 	})
@@ -178,7 +179,7 @@ func TestOcclusionNoLogits(t *testing.T) {
 // suggests the logit score, whose heatmap is not flagged and shows drops
 // at least 100 times larger (the softmax's slope p(1−p) < 1e-3 there).
 func TestOcclusionSaturation(t *testing.T) {
-	initRuntime(t)
+	testkit.NeedRuntime(t)
 	m := headNet(t, func(b *onnxbuild.Builder, z string) string {
 		z = b.Add(z, b.Init("bias", []int64{5}, []float32{12, 0, 0, 0, 0}))
 		return softmaxHead("Softmax")(b, z)

@@ -101,7 +101,7 @@ func occModel(t *testing.T, layout string) *modelio.Model {
 
 func occConfig(layout string) prep.Config {
 	return prep.Config{Width: occW, Height: occH, Channels: 3, Resize: "stretch", Range: "0-1",
-		Mean: [3]float32{0.1, 0.2, 0.3}, Std: [3]float32{0.5, 0.25, 2}, Layout: layout}
+		Mean: [3]float32{0.1, 0.2, 0.3}, Std: [3]float32{0.5, 0.25, 2}, Layout: modelio.Layout(layout)}
 }
 
 // testImage is a deterministic w×h picture with varied colours (a linear

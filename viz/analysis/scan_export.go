@@ -40,20 +40,24 @@ func (r *ScanReport) Rows() []ScanRow {
 	return rows
 }
 
-// Sort keys for SortRows.
+// SortKey is a column SortRows sorts by. Its string is the spelling on the
+// command line (fovea scan --sort).
+type SortKey string
+
+// The sort keys.
 const (
-	SortFires = "fires" // fraction of images fired on
-	SortMax   = "max"   // largest value
-	SortMean  = "mean"  // mean value
-	SortName  = "name"  // layer name, then channel index
-	SortOrder = "order" // report order: layers in execution order, then channel index
+	SortFires SortKey = "fires" // fraction of images fired on
+	SortMax   SortKey = "max"   // largest value
+	SortMean  SortKey = "mean"  // mean value
+	SortName  SortKey = "name"  // layer name, then channel index
+	SortOrder SortKey = "order" // report order: layers in execution order, then channel index
 )
 
 // SortRows sorts rows by key (SortFires, SortMax, SortMean, SortName or
 // SortOrder), ascending or, with desc, descending. Ties keep report order,
 // so sorting by fires ascending lists the dead channels first, layer by
 // layer.
-func SortRows(rows []ScanRow, key string, desc bool) error {
+func SortRows(rows []ScanRow, key SortKey, desc bool) error {
 	var f func(a, b ScanRow) int
 	switch key {
 	case SortFires:

@@ -106,7 +106,7 @@ func TestScanSortRows(t *testing.T) {
 		return k
 	}
 	for _, c := range []struct {
-		key  string
+		key  SortKey
 		desc bool
 		want []string
 	}{

@@ -11,6 +11,7 @@ import (
 	"fovea/modelio"
 	"fovea/modelio/infer"
 	"fovea/modelio/prep"
+	"fovea/modelio/testkit"
 )
 
 // sameReport says where two scan reports differ, comparing every number
@@ -43,7 +44,7 @@ func sameReport(a, b *ScanReport) string {
 // must not depend on scheduling; the reference is the one-worker scan, the
 // sequential pipeline.)
 func TestScanWorkersIdentical(t *testing.T) {
-	initRuntime(t)
+	testkit.NeedRuntime(t)
 	dir := demoDir()
 	all, err := ProbeFiles(filepath.Join(dir, "probe"))
 	if err != nil {
