@@ -513,7 +513,7 @@ func ScanSession(m *modelio.Model, dims []int64) infer.Options {
 	case im == nil:
 	case im.Width > 0 && im.Height > 0:
 		pixels = int64(im.Width) * int64(im.Height)
-	case len(dims) == 3 && im.Layout == "nhwc":
+	case len(dims) == 3 && im.Layout == modelio.LayoutNHWC:
 		pixels = dims[0] * dims[1]
 	case len(dims) == 3:
 		pixels = dims[1] * dims[2]
