@@ -20,13 +20,13 @@ import (
 // command is one subcommand of the command-line mode.
 type command struct {
 	name, args, summary, about string
-	// setup declares the command's own flags on fs and returns the job,
+	// setup declares the command's own flags on fs and returns the work,
 	// which runs after the flags are parsed and the model is open.
-	setup func(fs *flag.FlagSet, cf *common) func(j *job) int
+	setup func(fs *flag.FlagSet, cf *common) func(j *invocation) int
 	// noModel: the command does not open a model (none so far).
 	noModel bool
 	// many: the command takes image files and folders as arguments besides
-	// its flags (job.args).
+	// its flags (invocation.args).
 	many bool
 }
 
@@ -87,8 +87,9 @@ func (cf *common) declare(fs *flag.FlagSet) {
 // model first, then its preprocessing, then the machinery.
 var sharedOrder = []string{"model", "demo", "labels", "output", "size", "resize", "range", "mean", "std", "bgr", "layout", "ort-lib", "verbose"}
 
-// job is what a command's work gets: the open model and the output streams.
-type job struct {
+// invocation is one run of a command: what its work gets, the open model and
+// the output streams.
+type invocation struct {
 	*cli
 	cmd string
 	ctx context.Context
@@ -102,7 +103,7 @@ type job struct {
 }
 
 // run parses the command's flags, loads ONNX Runtime, opens the model,
-// applies the preprocessing and label flags and runs the job.
+// applies the preprocessing and label flags and runs the work.
 func (cmd *command) run(c *cli, args []string) int {
 	fs := flag.NewFlagSet("fovea "+cmd.name, flag.ContinueOnError)
 	fs.SetOutput(io.Discard)
@@ -139,7 +140,7 @@ func (cmd *command) run(c *cli, args []string) int {
 
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
-	j := &job{cli: c, cmd: cmd.name, ctx: ctx, fs: fs, set: set, args: positional}
+	j := &invocation{cli: c, cmd: cmd.name, ctx: ctx, fs: fs, set: set, args: positional}
 	if err := core.Start(cf.ortLib); err != nil {
 		return j.fail(err)
 	}
@@ -175,7 +176,7 @@ func (cmd *command) run(c *cli, args []string) int {
 }
 
 // applyPrep changes the guessed preprocessing by the flags that were given.
-func (j *job) applyPrep(p *prepFlags) error {
+func (j *invocation) applyPrep(p *prepFlags) error {
 	cfg, _ := j.ws.Prep()
 	changed := false
 	for _, kv := range []struct{ flag, key, value string }{
@@ -211,7 +212,7 @@ func trimPrefix(err error) error {
 }
 
 // describe prints the settings in force (--verbose).
-func (j *job) describe() {
+func (j *invocation) describe() {
 	w := j.stderr
 	m := j.ws.Model
 	switch {
@@ -249,7 +250,7 @@ func (j *job) describe() {
 }
 
 // fail reports err in one line and returns the exit status for it.
-func (j *job) fail(err error) int {
+func (j *invocation) fail(err error) int {
 	if j.midLine {
 		fmt.Fprintln(j.stderr)
 		j.midLine = false
@@ -267,7 +268,7 @@ func (j *job) fail(err error) int {
 }
 
 // usageErr reports bad usage found after parsing.
-func (j *job) usageErr(format string, args ...any) int {
+func (j *invocation) usageErr(format string, args ...any) int {
 	return j.usageError(j.cmd, format, args...)
 }
 
@@ -297,7 +298,7 @@ func flagError(err error) string {
 
 // progressFunc returns a progress callback that redraws one line on stderr
 // when stderr is a terminal, and nil otherwise.
-func (j *job) progressFunc(what string) func(done, total int) {
+func (j *invocation) progressFunc(what string) func(done, total int) {
 	if !j.progress {
 		return nil
 	}
@@ -320,7 +321,7 @@ func (j *job) progressFunc(what string) func(done, total int) {
 }
 
 // writeJSON writes v to stdout as indented JSON.
-func (j *job) writeJSON(v any) int {
+func (j *invocation) writeJSON(v any) int {
 	enc := json.NewEncoder(j.stdout)
 	enc.SetIndent("", "  ")
 	enc.SetEscapeHTML(false)
@@ -371,7 +372,7 @@ func (cmd *command) usage(w io.Writer, fs *flag.FlagSet, cf *common) {
 }
 
 // writePNG writes img to path atomically, or to stdout for "-".
-func (j *job) writePNG(path string, img image.Image) int {
+func (j *invocation) writePNG(path string, img image.Image) int {
 	if path == "-" {
 		if err := png.Encode(j.stdout, img); err != nil {
 			return j.fail(fmt.Errorf("writing PNG to stdout: %w", err))

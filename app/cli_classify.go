@@ -19,11 +19,11 @@ var classifyCommand = &command{
 probabilities. When the model's output is not already a probability distribution,
 softmax is applied to it. With several images or a folder, the model is opened once
 and each image gets its line (with --json: one JSON object per line).`,
-	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
+	setup: func(fs *flag.FlagSet, cf *common) func(*invocation) int {
 		image := fs.String("image", "", "image `FILE` to classify (required)")
 		k := fs.Int("k", 5, "list the `N` most probable classes")
 		asJSON := fs.Bool("json", false, "print JSON instead of text")
-		return func(j *job) int {
+		return func(j *invocation) int {
 			if *k < 1 {
 				return j.usageErr("--k %d: give at least 1", *k)
 			}
@@ -70,7 +70,7 @@ and each image gets its line (with --json: one JSON object per line).`,
 
 // classifyOne is one image of a classify over several: a line of text or
 // of JSON.
-func classifyOne(j *job, file string, k int, asJSON bool) int {
+func classifyOne(j *invocation, file string, k int, asJSON bool) int {
 	img, err := core.LoadImage(file)
 	if err != nil {
 		return j.fail(err)

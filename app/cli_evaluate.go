@@ -31,12 +31,12 @@ With --shard K/N only the K-th (1…N) of N slices of the sorted file list is
 run and the partial result is printed as JSON; ` + "`fovea merge PART...`" + ` combines
 the N parts into exactly what one run over all the images prints.
 With --min-accuracy X the exit status is 3 when the accuracy is below X.`,
-	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
+	setup: func(fs *flag.FlagSet, cf *common) func(*invocation) int {
 		data := fs.String("data", "", "labelled `DIR` or list FILE (default for the demo: its probe images)")
 		var out evalOutput
 		out.declare(fs)
 		shard := fs.String("shard", "", "run only slice `K/N` (1 ≤ K ≤ N) of the sorted files and print the partial result as JSON")
-		return func(j *job) int {
+		return func(j *invocation) int {
 			if msg := out.check(); msg != "" {
 				return j.usageErr("%s", msg)
 			}

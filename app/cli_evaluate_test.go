@@ -228,9 +228,9 @@ func TestCLIEvaluateGate(t *testing.T) {
 // counts add up.
 func TestCLIEvaluateOtherExporter(t *testing.T) {
 	dir := t.TempDir()
-	b := tpNew(tpModels[0].opset)
-	tpModels[0].make(b, dir)
-	model := filepath.Join(dir, tpModels[0].name)
+	b := exNew(exModels[0].opset)
+	exModels[0].make(b, dir)
+	model := filepath.Join(dir, exModels[0].name)
 	if err := b.Write(model); err != nil {
 		t.Fatal(err)
 	}

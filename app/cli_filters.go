@@ -16,7 +16,7 @@ var filtersCommand = &command{
 image the three input channels become red, green and blue with zero at mid-grey;
 otherwise one input channel (--slice) is drawn with a diverging colour map.
 Filters whose kernel is all zeros or nearly parallel to another get a frame.`,
-	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
+	setup: func(fs *flag.FlagSet, cf *common) func(*invocation) int {
 		out := fs.String("out", "", "write the PNG to `FILE` (required; - for stdout)")
 		layer := fs.String("layer", "", "the convolution's node `NAME` (default: the first layer)")
 		cell := fs.Int("cell", 0, "`PIXELS` per weight (default: about 48 pixels per tile)")
@@ -26,7 +26,7 @@ Filters whose kernel is all zeros or nearly parallel to another get a frame.`,
 		columns := fs.Int("columns", 0, "`N` tiles per row (default: about square)")
 		captions := fs.Bool("captions", false, "write index, norm and flag letters under each tile")
 		asJSON := fs.Bool("json", false, "print each tile's index, norm, place and flags as JSON")
-		return func(j *job) int {
+		return func(j *invocation) int {
 			if *out == "" {
 				return j.usageErr("--out FILE is required")
 			}

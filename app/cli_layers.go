@@ -21,9 +21,9 @@ parameters, multiply-accumulates for one image, the output's memory at float32,
 the receptive field and jump (cumulative stride) in input pixels, and whether the
 shape was inferred from the file (static) or measured on a run (observed).
 Totals are in the last row.`,
-	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
+	setup: func(fs *flag.FlagSet, cf *common) func(*invocation) int {
 		asJSON := fs.Bool("json", false, "print JSON instead of a table")
-		return func(j *job) int {
+		return func(j *invocation) int {
 			if err := j.ws.ObserveShapes(j.ctx); err != nil {
 				// The static table is still worth printing; the unknown
 				// shapes say so in their notes.

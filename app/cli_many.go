@@ -15,7 +15,7 @@ import (
 // it (by extension, sorted by name). many is true when there is more than
 // one image or a folder was given: the command then handles each image in
 // turn with the model opened once.
-func (j *job) imageList(single string) (files []string, many bool, err error) {
+func (j *invocation) imageList(single string) (files []string, many bool, err error) {
 	if single != "" {
 		files = append(files, single)
 	}
@@ -62,7 +62,7 @@ func checkOutDir(dir string) error {
 // (exit 2, already reported on stderr naming it) is counted and the others
 // go on; a failure of the run (exit 1) or an interrupt stops. The exit
 // status is 2 when any image had a problem.
-func (j *job) eachImage(files []string, work func(file string) int) int {
+func (j *invocation) eachImage(files []string, work func(file string) int) int {
 	bad := 0
 	for _, f := range files {
 		if j.ctx.Err() != nil {
@@ -86,7 +86,7 @@ func (j *job) eachImage(files []string, work func(file string) int) int {
 
 // writeJSONLine writes v as one line of JSON (JSON Lines: one object per
 // image).
-func (j *job) writeJSONLine(v any) int {
+func (j *invocation) writeJSONLine(v any) int {
 	b, err := json.Marshal(v)
 	if err != nil {
 		return j.fail(fmt.Errorf("writing JSON: %w", err))

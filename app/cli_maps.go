@@ -15,7 +15,7 @@ var mapsCommand = &command{
 	about: `Runs the model on the image and draws every channel of the layer's activation map
 as a tile, all on one shared scale (legend under the grid), or with --channel one
 channel's map over the image as the model saw it.`,
-	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
+	setup: func(fs *flag.FlagSet, cf *common) func(*invocation) int {
 		image := fs.String("image", "", "image `FILE` (required)")
 		layer := fs.String("layer", "", "activation layer `NAME`, node or output tensor (default: the first)")
 		out := fs.String("out", "", "write the PNG to `FILE` (required; - for stdout)")
@@ -27,7 +27,7 @@ channel's map over the image as the model saw it.`,
 		columns := fs.Int("columns", 0, "`N` tiles per row (default: about square)")
 		captions := fs.Bool("captions", false, "write the channel index under each tile")
 		asJSON := fs.Bool("json", false, "print each channel's min, max, mean and firing fraction as JSON")
-		return func(j *job) int {
+		return func(j *invocation) int {
 			switch {
 			case *image == "":
 				return j.usageErr("--image FILE is required")

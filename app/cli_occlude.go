@@ -25,13 +25,13 @@ With several images or a folder, the model is opened once, each image's overlay 
 written to --out-dir as NAME.occlusion.png and --json prints one object per line.
 
 The map is evidence about this model on this image, not proof of what it looks at.`,
-	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
+	setup: func(fs *flag.FlagSet, cf *common) func(*invocation) int {
 		var o occlusionFlags
 		o.declare(fs)
 		out := fs.String("out", "", "write the heatmap overlay PNG to `FILE` (- for stdout)")
 		asJSON := fs.Bool("json", false, "print the scores as JSON")
 		outDir := fs.String("out-dir", "", "with several images: write one overlay PNG per image into `DIR`")
-		return func(j *job) int {
+		return func(j *invocation) int {
 			files, many, err := j.imageList(o.image)
 			if err != nil {
 				return j.fail(err)
@@ -139,7 +139,7 @@ type occlusionResult struct {
 }
 
 // run loads the image, resolves the classes and runs the occlusion.
-func (o *occlusionFlags) run(j *job) (*occlusionResult, int) {
+func (o *occlusionFlags) run(j *invocation) (*occlusionResult, int) {
 	if o.image == "" {
 		return nil, j.usageErr("--image FILE is required")
 	}
@@ -227,7 +227,7 @@ type occlusionTarget struct {
 	Scores [][]float64 `json:"scores"`
 }
 
-func occlusionJSON(j *job, r *occlusionResult) occlusionDoc {
+func occlusionJSON(j *invocation, r *occlusionResult) occlusionDoc {
 	t := func(o *viz.Occlusion) occlusionTarget {
 		return occlusionTarget{
 			Target: predictionDoc{o.Target, o.Label, o.Probability},

@@ -25,7 +25,7 @@ page states: the model file's SHA-256, the labels' source (and its SHA-256), the
 preprocessing, the predictions, the occlusion settings and the date. With several
 images or a folder, the model is opened once, each page is written to --out-dir as
 NAME.report.png and --json prints one object per line.`,
-	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
+	setup: func(fs *flag.FlagSet, cf *common) func(*invocation) int {
 		var o occlusionFlags
 		o.declare(fs)
 		out := fs.String("out", "", "write the PNG to `FILE` (required; - for stdout)")
@@ -33,7 +33,7 @@ NAME.report.png and --json prints one object per line.`,
 		date := fs.String("date", "", "`YYYY-MM-DD` printed on the page (default: today, or $SOURCE_DATE_EPOCH)")
 		asJSON := fs.Bool("json", false, "print what the page states as JSON on stdout (needs --out FILE, not -)")
 		outDir := fs.String("out-dir", "", "with several images: write one page per image into `DIR`")
-		return func(j *job) int {
+		return func(j *invocation) int {
 			files, many, err := j.imageList(o.image)
 			if err != nil {
 				return j.fail(err)
@@ -76,7 +76,7 @@ NAME.report.png and --json prints one object per line.`,
 
 // reportOne writes the page of o.image to out; with asJSON it prints what
 // the page states, on one line when oneLine (several images).
-func reportOne(j *job, o *occlusionFlags, out string, k int, when time.Time, asJSON, oneLine bool) int {
+func reportOne(j *invocation, o *occlusionFlags, out string, k int, when time.Time, asJSON, oneLine bool) int {
 	res, code := o.run(j)
 	if res == nil {
 		return code

@@ -26,7 +26,7 @@ With --max-dead N the exit status is 3 when more than N channels are dead, so a
 training pipeline can stop a bad run. With --shard K/N only the K-th of N slices of
 the sorted probe files is scanned and the counts are printed as JSON;
 ` + "`fovea merge PART...`" + ` adds the N parts up into exactly what one scan prints.`,
-	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
+	setup: func(fs *flag.FlagSet, cf *common) func(*invocation) int {
 		probe := fs.String("probe", "", "folder `DIR` of probe images (default for the demo: its own probe images)")
 		asCSV := fs.Bool("csv", false, "print every channel as CSV")
 		asJSON := fs.Bool("json", false, "print the report as JSON")
@@ -35,7 +35,7 @@ the sorted probe files is scanned and the counts are printed as JSON;
 		skip := fs.Bool("skip-unreadable", false, "pass over probe files that cannot be read (listed in the report) instead of stopping")
 		all := fs.Bool("all", false, "list every channel in the table, not only flagged ones")
 		shard := fs.String("shard", "", "scan only slice `K/N` (1 ≤ K ≤ N) of the sorted probe files and print its counts as JSON")
-		return func(j *job) int {
+		return func(j *invocation) int {
 			if *asCSV && *asJSON {
 				return j.usageErr("give --csv or --json, not both")
 			}
@@ -106,7 +106,7 @@ func writeScan(c *cli, cmd, model string, r *analysis.ScanReport, asJSON, asCSV,
 }
 
 // scanShard scans the K-th of N slices of files and prints its counts.
-func scanShard(j *job, spec string, files []string, opt analysis.ScanOptions) int {
+func scanShard(j *invocation, spec string, files []string, opt analysis.ScanOptions) int {
 	k, n, err := parseShard(spec)
 	if err != nil {
 		return j.usageErr("--shard %s: %v", spec, err)

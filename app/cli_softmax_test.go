@@ -15,7 +15,7 @@ import (
 // (exit 2) with the reason, and logprob works on it.
 func TestCLIOccludeBehindSoftmax(t *testing.T) {
 	startRuntime(t)
-	_, images := tpImages(t)
+	_, images := exImages(t)
 	dir := t.TempDir()
 	build := func(name string, head func(b *onnxbuild.Builder, z string) string) string {
 		b := onnxbuild.New(13, onnxbuild.Random)

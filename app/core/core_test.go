@@ -168,12 +168,12 @@ func TestActivationsOneRun(t *testing.T) {
 	}
 }
 
-// Jobs from several goroutines at once, with the settings changed meanwhile:
-// run under the race detector. Each job uses the settings in force when it
+// Analyses from several goroutines at once, with the settings changed meanwhile:
+// run under the race detector. Each analysis uses the settings in force when it
 // started, whole: its picture and its probabilities are those of one
 // setting (the same setting for both, no mixture of one setting's resize
 // and another's mean), and that setting was in force at some moment between
-// the job's start and its end. Every setting has its own mean and alternates
+// the analysis's start and its end. Every setting has its own mean and alternates
 // crop and stretch on a 96×64 picture, so each run tells which it used; the
 // reference for each is a run with no other work going on.
 func TestConcurrentJobs(t *testing.T) {
@@ -211,7 +211,7 @@ func TestConcurrentJobs(t *testing.T) {
 	if err := w.SetPrep(cfgs[0]); err != nil {
 		t.Fatal(err)
 	}
-	// started counts the SetPrep calls begun, done those returned: a job
+	// started counts the SetPrep calls begun, done those returned: a analysis
 	// that starts when done = d and ends when started = s must use a
 	// setting d..s.
 	var started, done atomic.Int32
@@ -346,12 +346,12 @@ func TestOccludeMatchesLibrary(t *testing.T) {
 	}
 }
 
-// A job cancelled while it runs returns the context's error and stops
-// promptly. In flight deterministically: the cancel comes from the job's
+// A analysis cancelled while it runs returns the context's error and stops
+// promptly. In flight deterministically: the cancel comes from the analysis's
 // own first progress report (stride 1 over 64×64 is 3969 occluded runs, so
 // the first report comes long before the end); promptly: no progress is
 // reported after the one that cancelled beyond the batch then running, and
-// the job stops far short of the total (a job that ignored the context
+// the analysis stops far short of the total (a analysis that ignored the context
 // would report every run).
 func TestCancel(t *testing.T) {
 	w := demo(t, false)

@@ -1,4 +1,4 @@
-// Package core holds the jobs that Fovea's window and its command line share:
+// Package core holds the analyses that Fovea's window and its command line share:
 // loading ONNX Runtime, opening a model (a file or the embedded demo) with its
 // preprocessing and labels, and the analyses that run it — classification,
 // activation maps, occlusion sensitivity, the dead-filter scan, filter tiles
@@ -13,10 +13,10 @@
 // A [Workspace] is one open model with everything needed to run it:
 // the preprocessing [prep.Config] in force, the class labels and where they
 // came from, and the ONNX Runtime sessions, created on first use. Its methods
-// are safe for concurrent use: each job takes a snapshot of the settings when
-// it starts, so changing them while a job runs affects only later jobs.
+// are safe for concurrent use: each analysis takes a snapshot of the settings when
+// it starts, so changing them while a analysis runs affects only later analyses.
 //
-// # Long jobs
+// # Long analyses
 //
 // Occlusion, scans and reports take a context.Context and a
 // func(done, total int) progress callback (nil allowed). They stop promptly

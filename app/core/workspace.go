@@ -87,7 +87,7 @@ func newWorkspace(m *modelio.Model, demo, hash string) (*Workspace, error) {
 	return w, nil
 }
 
-// Close releases the sessions. Cancel running jobs and wait for them first.
+// Close releases the sessions. Cancel running analyses and wait for them first.
 func (w *Workspace) Close() error {
 	w.mu.Lock()
 	defer w.mu.Unlock()
@@ -115,7 +115,7 @@ func (w *Workspace) Prep() (prep.Config, string) {
 }
 
 // SetPrep checks c against the model's image input and puts it in force for
-// the jobs started from now on. It does not save it: see [Workspace.Remember].
+// the analyses started from now on. It does not save it: see [Workspace.Remember].
 func (w *Workspace) SetPrep(c prep.Config) error {
 	if err := CheckPrep(w.Model, c); err != nil {
 		return err
@@ -123,7 +123,7 @@ func (w *Workspace) SetPrep(c prep.Config) error {
 	w.mu.Lock()
 	if !slices.Equal(dims(w.Model, w.cfg), dims(w.Model, c)) {
 		// Sessions of a model with symbolic input sizes are made for one
-		// size. Jobs still running keep theirs; they are closed with w.
+		// size. Analyses still running keep theirs; they are closed with w.
 		for i, s := range w.sessions {
 			if s != nil {
 				w.retired = append(w.retired, s)

@@ -7,14 +7,14 @@ import (
 	"fyne.io/fyne/v2"
 )
 
-// The bridge: the only methods that job goroutines call, and the only
+// The bridge: the only methods that task goroutines call, and the only
 // callers of fyne.Do. Each hops onto the UI goroutine and does the least it
 // can there.
 //
 // Each callback also holds u.uiMu. In the window that lock is never
 // contended (every holder runs on the UI goroutine); Fyne's headless test
-// driver, though, runs fyne.Do callbacks on the job's own goroutine, and the
-// tests hold the lock (ui.do) while they tap widgets a running job updates.
+// driver, though, runs fyne.Do callbacks on the task's own goroutine, and the
+// tests hold the lock (ui.do) while they tap widgets a running task updates.
 
 // progress moves t's progress bar to done of total.
 func (u *ui) progress(t *task, done, total int) {
@@ -33,10 +33,10 @@ func (u *ui) progress(t *task, done, total int) {
 	})
 }
 
-// finish ends t: it shows the result when the job succeeded, was not
+// finish ends t: it shows the result when the task succeeded, was not
 // replaced and its model is still open; the error in a dialog when it
 // failed; a note when it was stopped. It waits until the window has done so,
-// so that when a job's goroutine ends, the window shows its outcome.
+// so that when a task's goroutine ends, the window shows its outcome.
 func (u *ui) finish(t *task, res result, err error) {
 	fyne.DoAndWait(func() {
 		u.uiMu.Lock()

@@ -3,7 +3,7 @@
 // The window is thin. Analyses (classification, activation maps, occlusion,
 // dead-filter scans, filter tiles, the one-page report) come from package
 // app/core, which knows nothing of widgets; this package lays them out,
-// starts the long jobs on their own goroutines and brings the results back to
+// starts the long tasks on their own goroutines and brings the results back to
 // the UI goroutine through the bridge methods in bridge.go, the only callers
 // of fyne.Do. Everything else here runs on the UI goroutine.
 //
@@ -16,12 +16,12 @@
 // the window is doing, with a progress bar and a Stop button for model
 // loading.
 //
-// # Long jobs
+// # Long tasks
 //
 // Loading a model, running the model on an image, occlusion, scans and the
 // report run on their own goroutines with a context the Stop buttons cancel.
-// A job's result is shown only if its model is still the open one, so a slow
-// job never overwrites a newer answer.
+// A task's result is shown only if its model is still the open one, so a slow
+// task never overwrites a newer answer.
 package gui
 
 // Options are the window's start-up settings, parsed from the command line by

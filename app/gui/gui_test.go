@@ -43,7 +43,7 @@ func TestMain(m *testing.M) {
 }
 
 // openWindow builds the window on a headless test app, opens what o says
-// (the demo by default) and waits until every job has ended. Settings saved
+// (the demo by default) and waits until every task has ended. Settings saved
 // per model go to a scratch folder.
 func openWindow(t *testing.T, o Options) *ui {
 	t.Helper()
@@ -66,8 +66,8 @@ func openWindowIn(t *testing.T, a fyne.App, o Options) *ui {
 }
 
 // do runs f as the bridge's callbacks run: under the lock that keeps it
-// from touching widgets while a job's callback does (the headless driver
-// runs those on the job's goroutine).
+// from touching widgets while a task's callback does (the headless driver
+// runs those on the task's goroutine).
 func (u *ui) do(f func()) {
 	u.uiMu.Lock()
 	defer u.uiMu.Unlock()
@@ -372,12 +372,12 @@ func TestOcclusionShowsOverlayAndFullProgress(t *testing.T) {
 		return k
 	}
 	runs := positions(c.Height, 12, 8)*positions(c.Width, 12, 8) + 1
-	bar := v.jobs.bar
+	bar := v.runner.bar
 	if bar.Max != float64(runs) || bar.Value != bar.Max {
 		t.Errorf("progress ended at %v of %v, want %d of %d", bar.Value, bar.Max, runs, runs)
 	}
-	if !strings.Contains(v.jobs.note.Text, "took") || v.jobs.stop.Visible() {
-		t.Errorf("after the run the note says %q and Stop is visible: %v", v.jobs.note.Text, v.jobs.stop.Visible())
+	if !strings.Contains(v.runner.note.Text, "took") || v.runner.stop.Visible() {
+		t.Errorf("after the run the note says %q and Stop is visible: %v", v.runner.note.Text, v.runner.stop.Visible())
 	}
 	pred := u.acts.Class.Top[0]
 	if u.occ[0].Target != pred.Index || math.Abs(u.occ[0].Probability-pred.Probability) > 1e-6 {
@@ -414,15 +414,15 @@ func TestOcclusionShowsOverlayAndFullProgress(t *testing.T) {
 	u.wait()
 	checkPNG(t, out, viz.ReportWidth, viz.ReportHeight)
 
-	// Stop: a fine stride makes thousands of runs; Stop ends the job early
+	// Stop: a fine stride makes thousands of runs; Stop ends the task early
 	// and leaves the heatmap shown before.
 	v.stride.SetText("1")
 	v.patch.SetText("2")
 	u.do(func() { test.Tap(v.runBtn) })
-	u.do(func() { test.Tap(v.jobs.stop) })
+	u.do(func() { test.Tap(v.runner.stop) })
 	u.wait()
-	if !strings.HasSuffix(v.jobs.note.Text, "stopped") || len(u.occ) != 2 {
-		t.Errorf("after Stop the note says %q and %d heatmaps are kept", v.jobs.note.Text, len(u.occ))
+	if !strings.HasSuffix(v.runner.note.Text, "stopped") || len(u.occ) != 2 {
+		t.Errorf("after Stop the note says %q and %d heatmaps are kept", v.runner.note.Text, len(u.occ))
 	}
 }
 
@@ -457,7 +457,7 @@ func TestScanMarksDeadFiltersOfUnhealthyDemo(t *testing.T) {
 	if u.scan == nil || u.errShown > 0 {
 		t.Fatalf("no scan (error: %s)", dialogText(u))
 	}
-	if bar := v.jobs.bar; bar.Value != bar.Max || bar.Max != float64(u.scan.Images) {
+	if bar := v.runner.bar; bar.Value != bar.Max || bar.Max != float64(u.scan.Images) {
 		t.Errorf("scan progress ended at %v of %v for %d images", bar.Value, bar.Max, u.scan.Images)
 	}
 	tr := readTruth(t, assets.UnhealthyTruthFile)
@@ -562,10 +562,10 @@ func TestScanMarksDeadFiltersOfUnhealthyDemo(t *testing.T) {
 	// Stop: a scan stopped at once keeps the report shown before.
 	before := u.scan
 	u.do(func() { test.Tap(v.scanBtn) })
-	u.do(func() { test.Tap(v.jobs.stop) })
+	u.do(func() { test.Tap(v.runner.stop) })
 	u.wait()
-	if !strings.HasSuffix(v.jobs.note.Text, "stopped") || u.scan != before {
-		t.Errorf("after Stop the note says %q; report kept: %v", v.jobs.note.Text, u.scan == before)
+	if !strings.HasSuffix(v.runner.note.Text, "stopped") || u.scan != before {
+		t.Errorf("after Stop the note says %q; report kept: %v", v.runner.note.Text, u.scan == before)
 	}
 }
 

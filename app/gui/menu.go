@@ -91,9 +91,9 @@ func (u *ui) setTheme(choice string) {
 	u.win.SetMainMenu(u.menu())
 }
 
-// stopAll cancels every running job.
+// stopAll cancels every running task.
 func (u *ui) stopAll() {
-	for _, r := range []*runner{u.modelJobs, u.imageJobs, u.fileJobs, u.vOcc.jobs, u.vHealth.jobs, u.vScore.jobs, u.vScore.thumbs} {
+	for _, r := range []*runner{u.modelRunner, u.imageRunner, u.fileRunner, u.vOcc.runner, u.vHealth.runner, u.vScore.runner, u.vScore.thumbs} {
 		r.cancel()
 	}
 }

@@ -46,18 +46,18 @@ const (
 const defaultWidth, defaultHeight = 1280, 760
 
 // ui is the window and everything it shows. All fields are used on the UI
-// goroutine only, except jobs, ctx and the runners' tasks' atomics.
+// goroutine only, except running, ctx and the runners' tasks' atomics.
 type ui struct {
 	app   fyne.App
 	win   fyne.Window
 	opts  Options
 	prefs fyne.Preferences
 
-	ctx    context.Context    // cancelled when the window closes
-	cancel context.CancelFunc //
-	jobs   sync.WaitGroup     // running job goroutines
-	uiMu   sync.Mutex         // held by the bridge's callbacks (see bridge.go)
-	perWS  map[*core.Workspace]*sync.WaitGroup
+	ctx     context.Context    // cancelled when the window closes
+	cancel  context.CancelFunc //
+	running sync.WaitGroup     // running task goroutines
+	uiMu    sync.Mutex         // held by the bridge's callbacks (see bridge.go)
+	perWS   map[*core.Workspace]*sync.WaitGroup
 
 	// What is open.
 	ws       *core.Workspace
@@ -76,22 +76,22 @@ type ui struct {
 	onImage func()
 
 	// Widgets.
-	heading   *widget.RichText
-	status    *widget.Label
-	modelJobs *runner // opening models
-	imageJobs *runner // running the model on an image
-	fileJobs  *runner // exports
-	tabs      *container.AppTabs
-	tabByView map[string]*container.TabItem
-	layers    *layerPanel
-	vModel    *modelView
-	vKernels  *kernelView
-	vPredict  *predictView
-	vMaps     *mapsView
-	vOcc      *occlusionView
-	vHealth   *healthView
-	vScore    *scorecardView
-	errShown  int // errors shown so far (tests read it)
+	heading     *widget.RichText
+	status      *widget.Label
+	modelRunner *runner // opening models
+	imageRunner *runner // running the model on an image
+	fileRunner  *runner // exports
+	tabs        *container.AppTabs
+	tabByView   map[string]*container.TabItem
+	layers      *layerPanel
+	vModel      *modelView
+	vKernels    *kernelView
+	vPredict    *predictView
+	vMaps       *mapsView
+	vOcc        *occlusionView
+	vHealth     *healthView
+	vScore      *scorecardView
+	errShown    int // errors shown so far (tests read it)
 }
 
 func run(o Options) (status int) {
@@ -167,9 +167,9 @@ func newUI(a fyne.App, w fyne.Window, o Options) *ui {
 
 	u.status = widget.NewLabel("")
 	u.status.Truncation = fyne.TextTruncateEllipsis
-	u.modelJobs = u.newRunner(false)
-	u.imageJobs = u.newRunner(false)
-	u.fileJobs = u.newRunner(false)
+	u.modelRunner = u.newRunner(false)
+	u.imageRunner = u.newRunner(false)
+	u.fileRunner = u.newRunner(false)
 
 	u.layers = newLayerPanel(u)
 	u.vModel = newModelView(u)
@@ -218,7 +218,7 @@ func newUI(a fyne.App, w fyne.Window, o Options) *ui {
 
 	split := container.NewHSplit(u.layers.content, u.tabs)
 	split.SetOffset(0.42)
-	bottom := container.NewVBox(u.modelJobs.box, u.imageJobs.box, u.fileJobs.box, u.status)
+	bottom := container.NewVBox(u.modelRunner.box, u.imageRunner.box, u.fileRunner.box, u.status)
 	w.SetContent(container.NewBorder(
 		container.NewVBox(header, widget.NewSeparator()),
 		container.NewVBox(widget.NewSeparator(), bottom),
@@ -298,7 +298,7 @@ func (u *ui) redraw(view string) {
 	}
 }
 
-// close remembers the window's size and cancels every job; called when the
+// close remembers the window's size and cancels every task; called when the
 // window closes (more than once is harmless).
 func (u *ui) close() {
 	s := u.win.Canvas().Size()
@@ -309,9 +309,9 @@ func (u *ui) close() {
 	u.cancel()
 }
 
-// wsJobs returns the wait group of the jobs working on ws (a fresh one for
-// nil), so that a model is closed only after its last job ended.
-func (u *ui) wsJobs(ws *core.Workspace) *sync.WaitGroup {
+// wsRunning returns the wait group of the tasks working on ws (a fresh one for
+// nil), so that a model is closed only after its last task ended.
+func (u *ui) wsRunning(ws *core.Workspace) *sync.WaitGroup {
 	if ws == nil {
 		return new(sync.WaitGroup)
 	}
@@ -323,8 +323,8 @@ func (u *ui) wsJobs(ws *core.Workspace) *sync.WaitGroup {
 	return wg
 }
 
-// wait blocks until no job goroutine is running (tests).
-func (u *ui) wait() { u.jobs.Wait() }
+// wait blocks until no task goroutine is running (tests).
+func (u *ui) wait() { u.running.Wait() }
 
 // showHeading names the open model and image in the header and the title.
 func (u *ui) showHeading() {

@@ -27,7 +27,7 @@ import (
 type healthView struct {
 	u       *ui
 	content fyne.CanvasObject
-	jobs    *runner
+	runner  *runner
 
 	folder     *widget.Label
 	rare       *widget.Entry
@@ -62,7 +62,7 @@ var healthColumns = []struct {
 
 func newHealthView(u *ui) *healthView {
 	v := &healthView{u: u, sortCol: 2} // fires, ascending: dead filters first
-	v.jobs = u.newRunner(true)
+	v.runner = u.newRunner(true)
 	v.folder = widget.NewLabel("")
 	v.folder.Truncation = fyne.TextTruncateEllipsis
 	choose := widget.NewButtonWithIcon("Folder…", theme.FolderOpenIcon(), u.chooseProbeDir)
@@ -143,7 +143,7 @@ func newHealthView(u *ui) *healthView {
 	tableSide := container.NewBorder(container.NewBorder(nil, nil, v.onlyFlags, nil, tip), nil, nil, nil, v.table)
 	split := container.NewHSplit(tableSide, right)
 	split.SetOffset(0.64)
-	v.content = container.NewBorder(container.NewVBox(bar, v.jobs.box, v.summary), nil, nil, nil, split)
+	v.content = container.NewBorder(container.NewVBox(bar, v.runner.box, v.summary), nil, nil, nil, split)
 	return v
 }
 
@@ -337,7 +337,7 @@ func (v *healthView) run() {
 		return
 	}
 	u.showView(viewHealth)
-	v.jobs.launch("Scan", "images", ws, func(ctx context.Context, progress func(int, int)) (result, error) {
+	v.runner.launch("Scan", "images", ws, func(ctx context.Context, progress func(int, int)) (result, error) {
 		o := analysis.ScanOptions{Rare: rare / 100, SkipUnreadable: true}
 		var files []string
 		var err error
@@ -382,7 +382,7 @@ func (v *healthView) exportCSV() {
 func (v *healthView) writeCSV(path string) {
 	u := v.u
 	r := u.scan
-	u.fileJobs.launch("Exporting "+filepath.Base(path), "", nil, func(context.Context, func(int, int)) (result, error) {
+	u.fileRunner.launch("Exporting "+filepath.Base(path), "", nil, func(context.Context, func(int, int)) (result, error) {
 		if err := core.WriteFile(path, func(w io.Writer) error { return r.WriteCSV(w) }); err != nil {
 			return nil, err
 		}

@@ -23,7 +23,7 @@ import (
 type occlusionView struct {
 	u       *ui
 	content fyne.CanvasObject
-	jobs    *runner
+	runner  *runner
 
 	patch, stride *widget.Entry
 	fill, score   *widget.Select
@@ -53,7 +53,7 @@ const cautionText = "Evidence about this model on this image, not proof. The col
 
 func newOcclusionView(u *ui) *occlusionView {
 	v := &occlusionView{u: u, expectN: -1}
-	v.jobs = u.newRunner(true)
+	v.runner = u.newRunner(true)
 	v.patch = widget.NewEntry()
 	v.stride = widget.NewEntry()
 	var fills, scores []string
@@ -89,7 +89,7 @@ func newOcclusionView(u *ui) *occlusionView {
 		widget.NewLabel("Score"), v.score)
 	question := container.NewBorder(nil, nil, widget.NewLabel("Should have been"), container.NewHBox(v.runBtn, v.exportBtn), v.expect)
 	v.content = container.NewBorder(
-		container.NewVBox(settings, question, v.jobs.box, v.verdict, container.NewHBox(v.switchBtn)),
+		container.NewVBox(settings, question, v.runner.box, v.verdict, container.NewHBox(v.switchBtn)),
 		v.caution, nil, nil, v.pic.box)
 	return v
 }
@@ -226,7 +226,7 @@ func (v *occlusionView) run() {
 		targets = append(targets, exp)
 	}
 	u.showView(viewOcclusion)
-	v.jobs.launch("Occlusion", "patch positions", ws, func(ctx context.Context, progress func(int, int)) (result, error) {
+	v.runner.launch("Occlusion", "patch positions", ws, func(ctx context.Context, progress func(int, int)) (result, error) {
 		occ, fit, err := ws.Occlude(ctx, img, set, targets, progress)
 		if err != nil {
 			return nil, err
@@ -322,7 +322,7 @@ func (v *occlusionView) export() {
 func (v *occlusionView) writeReport(path string, in core.ReportInput) {
 	u := v.u
 	ws := u.ws
-	u.fileJobs.launch("Exporting "+filepath.Base(path), "patch positions", ws, func(ctx context.Context, progress func(int, int)) (result, error) {
+	u.fileRunner.launch("Exporting "+filepath.Base(path), "patch positions", ws, func(ctx context.Context, progress func(int, int)) (result, error) {
 		pic, err := ws.Report(ctx, in, progress)
 		if err != nil {
 			return nil, err

@@ -32,7 +32,7 @@ import (
 type scorecardView struct {
 	u       *ui
 	content fyne.CanvasObject
-	jobs    *runner // the evaluation
+	runner  *runner // the evaluation
 	thumbs  *runner // loading a cell's thumbnails
 
 	source  *widget.Label
@@ -63,7 +63,7 @@ const maxThumbs = 96
 
 func newScorecardView(u *ui) *scorecardView {
 	v := &scorecardView{u: u}
-	v.jobs = u.newRunner(true)
+	v.runner = u.newRunner(true)
 	v.thumbs = u.newRunner(false)
 	v.source = widget.NewLabel("")
 	v.source.Truncation = fyne.TextTruncateEllipsis
@@ -123,7 +123,7 @@ func newScorecardView(u *ui) *scorecardView {
 	right := container.NewBorder(container.NewBorder(nil, nil, nil, container.NewVBox(mistakes, unsure), v.cellTxt), nil, nil, nil, v.grid)
 	split := container.NewHSplit(left, right)
 	split.SetOffset(0.5)
-	v.content = container.NewBorder(container.NewVBox(bar, v.jobs.box, v.thumbs.box, v.summary), nil, nil, nil, split)
+	v.content = container.NewBorder(container.NewVBox(bar, v.runner.box, v.thumbs.box, v.summary), nil, nil, nil, split)
 	v.refresh()
 	return v
 }
@@ -230,7 +230,7 @@ func (v *scorecardView) run() {
 		return
 	}
 	u.showView(viewScorecard)
-	v.jobs.launch("Evaluation", "entries", ws, func(ctx context.Context, progress func(int, int)) (result, error) {
+	v.runner.launch("Evaluation", "entries", ws, func(ctx context.Context, progress func(int, int)) (result, error) {
 		var set *analysis.Labelled
 		var err error
 		if data == "" {

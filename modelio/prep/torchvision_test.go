@@ -12,13 +12,13 @@ import (
 	"math"
 	"os"
 	"path/filepath"
-	"sync"
 	"testing"
 
 	"fovea/modelio"
 	"fovea/modelio/classes"
 	"fovea/modelio/infer"
 	"fovea/modelio/prep"
+	"fovea/modelio/testkit"
 )
 
 // The reference files in testdata/torchvision were made once by
@@ -194,26 +194,6 @@ func TestTensorMatchesTorchvision(t *testing.T) {
 	}
 }
 
-var (
-	ortOnce sync.Once
-	ortErr  error
-)
-
-// needORT loads the real ONNX Runtime library; a missing one fails the test.
-func needORT(t *testing.T) {
-	t.Helper()
-	ortOnce.Do(func() {
-		p, err := infer.FindLibrary("")
-		if err == nil {
-			err = infer.Init(p)
-		}
-		ortErr = err
-	})
-	if ortErr != nil {
-		t.Fatalf("ONNX Runtime is needed for this test and is not usable: %v", ortErr)
-	}
-}
-
 // A model's top-5 probabilities on pictures Fovea prepared agree within 5e-4
 // with PyTorch's on pictures torchvision prepared (outside reference:
 // gen_torchvision.py, PyTorch 1.13 running the same small CNN, tiny224.onnx,
@@ -221,7 +201,7 @@ func needORT(t *testing.T) {
 // the three pipelines differ from each other by more than the tolerance on
 // some picture, so that preparing a photo the wrong way would be caught.
 func TestTopFiveMatchesTorchvision(t *testing.T) {
-	needORT(t)
+	testkit.NeedRuntime(t)
 	ref := readTVReference(t)
 	m, err := modelio.Open(filepath.Join(tvDir, "tiny224.onnx"))
 	if err != nil {

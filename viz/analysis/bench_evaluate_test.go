@@ -10,6 +10,7 @@ import (
 
 	"fovea/modelio/infer"
 	"fovea/modelio/prep"
+	"fovea/modelio/testkit"
 )
 
 // benchEvalImages is how many labelled PNGs the evaluation benchmark reads
@@ -22,7 +23,7 @@ const benchEvalImages = 48
 // tensors, by a session with the same options, in the same run: goal at
 // least 0.8 on the ResNet-18-sized network.
 func BenchmarkEvaluateRatio(b *testing.B) {
-	benchORT(b)
+	testkit.NeedRuntime(b)
 	for _, bc := range benchCases(b) {
 		if bc.name != "resnet18" {
 			continue

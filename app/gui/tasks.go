@@ -14,8 +14,8 @@ import (
 	"fovea/app/core"
 )
 
-// A runner is one place in the window where a kind of long job shows its
-// progress: a line of text, a progress bar and a Stop button. It runs one job
+// A runner is one place in the window where a kind of long task shows its
+// progress: a line of text, a progress bar and a Stop button. It runs one task
 // at a time; starting another cancels the one before.
 type runner struct {
 	u    *ui
@@ -24,18 +24,18 @@ type runner struct {
 	stop *widget.Button
 	box  *fyne.Container
 	cur  *task
-	// keep: the bar and the outcome stay visible after the job ends (the
+	// keep: the bar and the outcome stay visible after the task ends (the
 	// views' runners); otherwise the whole box hides and the outcome goes to
 	// the status line.
 	keep bool
 }
 
-// A task is one run of a job. Its fields other than permille are used on
+// A task is one run of a task. Its fields other than permille are used on
 // the UI goroutine only.
 type task struct {
 	r       *runner
 	what    string          // "Occlusion", shown in the note
-	ws      *core.Workspace // the model the job works on
+	ws      *core.Workspace // the model the task works on
 	ctx     context.Context
 	cancel  context.CancelFunc
 	started time.Time
@@ -45,7 +45,7 @@ type task struct {
 }
 
 // newRunner makes a runner; keep says whether its bar stays visible (with the
-// outcome in the note) after the job ends.
+// outcome in the note) after the task ends.
 func (u *ui) newRunner(keep bool) *runner {
 	r := &runner{u: u, note: widget.NewLabel(""), bar: widget.NewProgressBar(), keep: keep}
 	r.note.Truncation = fyne.TextTruncateEllipsis
@@ -59,11 +59,11 @@ func (u *ui) newRunner(keep bool) *runner {
 		return fmt.Sprintf("%.0f %%", 100*r.bar.Value/r.bar.Max)
 	}
 	r.box = container.NewBorder(nil, nil, nil, r.stop, container.NewGridWithColumns(2, r.note, r.bar))
-	r.box.Hide() // until the first job
+	r.box.Hide() // until the first task
 	return r
 }
 
-// cancel stops the running job, if any; its end is reported by finish.
+// cancel stops the running task, if any; its end is reported by finish.
 func (r *runner) cancel() {
 	if r.cur != nil {
 		r.cur.cancel()
@@ -71,22 +71,22 @@ func (r *runner) cancel() {
 	}
 }
 
-// work is a long job: it runs on its own goroutine, must stop promptly when
+// work is a long task: it runs on its own goroutine, must stop promptly when
 // ctx is cancelled, reports progress through progress, and returns either its
 // result or an error.
 type work func(ctx context.Context, progress func(done, total int)) (result, error)
 
-// A result shows a job's outcome; it runs on the UI goroutine. current is
-// false when the outcome is no longer wanted (the job was stopped or
+// A result shows a task's outcome; it runs on the UI goroutine. current is
+// false when the outcome is no longer wanted (the task was stopped or
 // replaced, or its model was closed meanwhile): the result then only
 // releases what it holds.
 type result func(current bool)
 
-// launch starts job on its own goroutine and shows its progress in r. ws is
-// the model the job works on: its result is shown only if that model is
-// still open (nil for jobs that open a model). unit names what the progress
+// launch starts task on its own goroutine and shows its progress in r. ws is
+// the model the task works on: its result is shown only if that model is
+// still open (nil for tasks that open a model). unit names what the progress
 // counts ("" when it counts nothing worth naming). Call on the UI goroutine.
-func (r *runner) launch(what, unit string, ws *core.Workspace, job work) *task {
+func (r *runner) launch(what, unit string, ws *core.Workspace, w work) *task {
 	u := r.u
 	if r.cur != nil {
 		r.cur.cancel()
@@ -101,20 +101,20 @@ func (r *runner) launch(what, unit string, ws *core.Workspace, job work) *task {
 	r.bar.Show()
 	r.stop.Show()
 	r.box.Show()
-	wsJobs := u.wsJobs(ws)
-	u.jobs.Add(1)
-	wsJobs.Add(1)
+	wsRunning := u.wsRunning(ws)
+	u.running.Add(1)
+	wsRunning.Add(1)
 	go func() {
-		defer u.jobs.Done()
-		defer wsJobs.Done()
+		defer u.running.Done()
+		defer wsRunning.Done()
 		defer cancel()
-		res, err := job(ctx, t.report)
+		res, err := w(ctx, t.report)
 		u.finish(t, res, err)
 	}()
 	return t
 }
 
-// report is the job's progress callback: it forwards a change of at least a
+// report is the task's progress callback: it forwards a change of at least a
 // thousandth (and always the end) to the window.
 func (t *task) report(done, total int) {
 	if total <= 0 {
@@ -127,7 +127,7 @@ func (t *task) report(done, total int) {
 	t.r.u.progress(t, done, total)
 }
 
-// ended shows how the job ended, on the UI goroutine.
+// ended shows how the task ended, on the UI goroutine.
 func (r *runner) ended(t *task, outcome string) {
 	if r.cur != t {
 		return

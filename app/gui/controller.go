@@ -255,7 +255,7 @@ func (u *ui) openDemoThen(unhealthy bool, after func()) {
 // loadModel runs open off the UI goroutine, restores the settings saved for
 // the model, observes the layer shapes the file leaves open, and shows it.
 func (u *ui) loadModel(what string, open func(context.Context) (*core.Workspace, error), after func()) {
-	u.modelJobs.launch(what, "", nil, func(ctx context.Context, _ func(int, int)) (result, error) {
+	u.modelRunner.launch(what, "", nil, func(ctx context.Context, _ func(int, int)) (result, error) {
 		ws, err := open(ctx)
 		if err != nil {
 			return nil, err
@@ -284,13 +284,13 @@ func (u *ui) loadModel(what string, open func(context.Context) (*core.Workspace,
 	})
 }
 
-// setWorkspace puts ws in place of the open model: the old one's jobs are
+// setWorkspace puts ws in place of the open model: the old one's tasks are
 // stopped and it is closed once they ended; what was computed with it is
 // dropped, and the open image runs through the new model.
 func (u *ui) setWorkspace(ws *core.Workspace) {
 	old := u.ws
 	u.ws = ws
-	for _, r := range []*runner{u.imageJobs, u.vOcc.jobs, u.vHealth.jobs, u.fileJobs, u.vScore.jobs, u.vScore.thumbs} {
+	for _, r := range []*runner{u.imageRunner, u.vOcc.runner, u.vHealth.runner, u.fileRunner, u.vScore.runner, u.vScore.thumbs} {
 		if r.cur != nil && r.cur.ws == old {
 			r.cancel()
 		}
@@ -346,7 +346,7 @@ func (u *ui) runImage(name, path string, load func() (image.Image, error)) {
 		u.showError("Opening "+name, fmt.Errorf("open a model first"))
 		return
 	}
-	u.imageJobs.launch("Running "+ws.Name()+" on "+name, "", ws, func(ctx context.Context, _ func(int, int)) (result, error) {
+	u.imageRunner.launch("Running "+ws.Name()+" on "+name, "", ws, func(ctx context.Context, _ func(int, int)) (result, error) {
 		img, err := load()
 		if err != nil {
 			return nil, err

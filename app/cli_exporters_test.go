@@ -1,6 +1,6 @@
 package main
 
-// Third-party models: graphs shaped the way other exporters write them
+// Models from other exporters: graphs shaped the way other exporters write them
 // (tf2onnx/Keras NHWC, opset-9 era fixed-batch models, MobileNet-style
 // blocks, SAME padding with even kernels, weights in Constant nodes and
 // float16, grayscale, symbolic image sizes, several outputs with odd names,
@@ -30,8 +30,8 @@ import (
 	"google.golang.org/protobuf/proto"
 )
 
-// tpModel is one generated third-party model.
-type tpModel struct {
+// exModel is one generated model shaped like another exporter's.
+type exModel struct {
 	name string // file name (spaces and non-ASCII letters on purpose in some)
 	make func(b *onnxbuild.Builder, dir string)
 	// opset of the builder.
@@ -41,11 +41,11 @@ type tpModel struct {
 	fails bool
 	// noFilters: no Conv reads the image input, so filters exits 2.
 	noFilters bool
-	check     func(t *testing.T, r *tpRuns)
+	check     func(t *testing.T, r *exRuns)
 }
 
-// tpRuns holds what every subcommand printed for one model.
-type tpRuns struct {
+// exRuns holds what every subcommand printed for one model.
+type exRuns struct {
 	path      string
 	imagePath string // the picture classify ran on
 	layers    layersDoc
@@ -60,14 +60,14 @@ type tpRuns struct {
 	b         *onnxbuild.Builder
 }
 
-// tpResult is one in-process run; a panic is caught and reported as such.
-type tpResult struct {
+// exResult is one in-process run; a panic is caught and reported as such.
+type exResult struct {
 	stdout, stderr string
 	code           int
 	panicked       any
 }
 
-func tpRun(args ...string) (r tpResult) {
+func exRun(args ...string) (r exResult) {
 	done := make(chan struct{})
 	go func() {
 		defer close(done)
@@ -136,7 +136,7 @@ func matmulHead(b *onnxbuild.Builder, x string, in, out int) string {
 	return b.Op("Add", []string{b.Op("MatMul", []string{x, w}), bias})
 }
 
-var tpModels = []tpModel{
+var exModels = []exModel{
 	{
 		// (a) tf2onnx from Keras: NHWC input, Transpose to NCHW, convs,
 		// ReduceMean over the spatial axes, Dense as MatMul+Add, Softmax.
@@ -153,7 +153,7 @@ var tpModels = []tpModel{
 			b.Node("Identity", []string{p}, []string{"dense_1"})
 			b.Output("dense_1", "unk__13", 10)
 		},
-		check: func(t *testing.T, r *tpRuns) {
+		check: func(t *testing.T, r *exRuns) {
 			im := r.layers.Image
 			if im == nil || im.Layout != "nhwc" || im.Channels != 3 || im.Height != 32 || im.Width != 32 {
 				t.Errorf("image input %+v, want nhwc 3 channels 32×32 (the input is [N,32,32,3])", im)
@@ -191,7 +191,7 @@ var tpModels = []tpModel{
 				b.Input(t.GetName(), t.GetDataType(), dimsAny(t.GetDims())...)
 			}
 		},
-		check: func(t *testing.T, r *tpRuns) {
+		check: func(t *testing.T, r *exRuns) {
 			// ONNX Operators.md, Conv (no padding): 24-3+1 = 22; MaxPool 2/2: 11.
 			wantVol(t, r, "MaxPool", "11×11×6")
 			if len(r.top.Top) != 5 {
@@ -218,7 +218,7 @@ var tpModels = []tpModel{
 			x = b.Flatten(b.GlobalAveragePool(x))
 			b.Output(b.Gemm(x, 40, 7))
 		},
-		check: func(t *testing.T, r *tpRuns) {
+		check: func(t *testing.T, r *exRuns) {
 			wantVol(t, r, "Concat", "16×16×40")
 			// Parameters of a grouped conv: M·(C/group)·kH·kW + M
 			// (ONNX Operators.md, Conv, W's shape): 8·4·9+8 = 296.
@@ -237,7 +237,7 @@ var tpModels = []tpModel{
 			x = b.Flatten(x)
 			b.Output(b.Gemm(x, 4*8*8, 3))
 		},
-		check: func(t *testing.T, r *tpRuns) {
+		check: func(t *testing.T, r *exRuns) {
 			// ONNX Operators.md, Conv auto_pad SAME_UPPER: out = ceil(in/stride):
 			// 30/2 = 15, then 15; MaxPool ceil_mode: ceil((15-2)/2)+1 = 8.
 			wantVol(t, r, "MaxPool", "8×8×4")
@@ -260,7 +260,7 @@ var tpModels = []tpModel{
 			fw := b.Op("Cast", []string{b.InitTensor(f16Tensor("fc_w_half", []int64{6, 4}, eighths(24, 4)))}, onnxbuild.Int("to", 1))
 			b.Output(b.Op("MatMul", []string{x, fw}))
 		},
-		check: func(t *testing.T, r *tpRuns) {
+		check: func(t *testing.T, r *exRuns) {
 			// conv_w_const above is [4, 3, 3, 3]: M × C × kH × kW (ONNX Operators.md, Conv).
 			if r.filt.Filters != 4 || r.filt.Channels != 3 || r.filt.Height != 3 {
 				t.Errorf("filters of the Constant-node conv: %+v, want 4 of 3×3×3", r.filt)
@@ -280,7 +280,7 @@ var tpModels = []tpModel{
 			x = b.MaxPool(b.Relu(b.Conv(x, 4, 8, 5, 1, 0)), 2, 2, 0) // 4
 			b.Output(b.Gemm(b.Flatten(x), 8*4*4, 10))
 		},
-		check: func(t *testing.T, r *tpRuns) {
+		check: func(t *testing.T, r *exRuns) {
 			im := r.layers.Image
 			if im == nil || im.Channels != 1 || im.Height != 28 || im.Width != 28 {
 				t.Errorf("image input %+v, want 1 channel 28×28", im)
@@ -304,7 +304,7 @@ var tpModels = []tpModel{
 			x = b.Relu(b.Conv(x, 8, 8, 3, 1, 1))
 			b.Output(b.Gemm(b.Flatten(b.GlobalAveragePool(x)), 8, 4))
 		},
-		check: func(t *testing.T, r *tpRuns) {
+		check: func(t *testing.T, r *exRuns) {
 			// The layer table observed the shapes on a run at the guessed
 			// size; the maps of the same layers have them too, and the
 			// stride-2 conv halves the side: floor((S+2-3)/2)+1 (ONNX
@@ -332,7 +332,7 @@ var tpModels = []tpModel{
 			b.Output("logits / Klassen ü")
 			b.Output("features/pooled ✓")
 		},
-		check: func(t *testing.T, r *tpRuns) {
+		check: func(t *testing.T, r *exRuns) {
 			if len(r.top.Top) != 5 {
 				t.Errorf("classify: %d rows, want 5", len(r.top.Top))
 			}
@@ -357,7 +357,7 @@ var tpModels = []tpModel{
 		// other (modelio.Model.ScoreOutput, rule 2): the 4-class Gemm, not
 		// the 12 pooled features. --output reads the other one on request,
 		// and an unknown --output is bad input.
-		check: func(t *testing.T, r *tpRuns) {
+		check: func(t *testing.T, r *exRuns) {
 			m, err := modelio.Open(r.path)
 			if err != nil {
 				t.Fatal(err)
@@ -371,7 +371,7 @@ var tpModels = []tpModel{
 					t.Errorf("classify read the features output: class %d of a 4-class logits output", p.Index)
 				}
 			}
-			res := tpRun("classify", "--json", "--k", "100", "--verbose", "--model", r.path, "--image", r.imagePath, "--output", feats)
+			res := exRun("classify", "--json", "--k", "100", "--verbose", "--model", r.path, "--image", r.imagePath, "--output", feats)
 			var doc classifyDoc
 			if res.code != exitOK {
 				t.Fatalf("--output %s: exit %d: %s", feats, res.code, res.stderr)
@@ -380,11 +380,11 @@ var tpModels = []tpModel{
 			if len(doc.Top) != 12 || !strings.Contains(res.stderr, fmt.Sprintf("scores:        output %q (named by --output)", feats)) {
 				t.Errorf("--output %s: %d classes, want 12; stderr %s", feats, len(doc.Top), res.stderr)
 			}
-			res = tpRun("classify", "--verbose", "--model", r.path, "--image", r.imagePath)
+			res = exRun("classify", "--verbose", "--model", r.path, "--image", r.imagePath)
 			if !strings.Contains(res.stderr, fmt.Sprintf("scores:        output %q (the other vector outputs are computed into it", logits)) {
 				t.Errorf("--verbose does not say which output is scored: %s", res.stderr)
 			}
-			res = tpRun("classify", "--model", r.path, "--image", r.imagePath, "--output", "nosuch")
+			res = exRun("classify", "--model", r.path, "--image", r.imagePath, "--output", "nosuch")
 			if res.code != exitUsage || !strings.Contains(res.stderr, `no output named "nosuch"`) || !strings.Contains(res.stderr, "features first") {
 				t.Errorf("--output nosuch: exit %d: %s", res.code, res.stderr)
 			}
@@ -403,7 +403,7 @@ var tpModels = []tpModel{
 			b.Output("softmaxout_1", "N", 10, 1, 1)
 			writeLabels(dir, "conv head.txt", 10)
 		},
-		check: func(t *testing.T, r *tpRuns) {
+		check: func(t *testing.T, r *exRuns) {
 			if len(r.top.Top) != 5 || r.top.Top[0].Label == "" || r.top.SoftmaxApplied {
 				t.Errorf("classify: %+v, want 5 of 10 labelled classes, no softmax applied", r.top)
 			}
@@ -418,7 +418,7 @@ var tpModels = []tpModel{
 			x = b.Gemm(b.Flatten(b.GlobalAveragePool(x)), 4, 6)
 			b.Output(b.Op("Reshape", []string{x, b.Ints64("to_1d", 6)}), 6)
 		},
-		check: func(t *testing.T, r *tpRuns) {
+		check: func(t *testing.T, r *exRuns) {
 			if len(r.top.Top) != 5 {
 				t.Errorf("classify: %d rows, want 5 of 6 classes", len(r.top.Top))
 			}
@@ -448,7 +448,7 @@ var tpModels = []tpModel{
 			b.Node("Identity", []string{x}, []string{"dense:0"})
 			b.Output("dense:0", "unk__8", 3)
 		},
-		check: func(t *testing.T, r *tpRuns) {
+		check: func(t *testing.T, r *exRuns) {
 			if im := r.layers.Image; im == nil || im.Layout != "nhwc" || im.Name != "input_1:0" {
 				t.Errorf("image input %+v, want input_1:0 in nhwc", im)
 			}
@@ -498,7 +498,7 @@ var tpModels = []tpModel{
 			x = b.Op("Reshape", []string{x, c})
 			b.Output(b.Gemm(x, 4*8*8, 6))
 		},
-		check: func(t *testing.T, r *tpRuns) {
+		check: func(t *testing.T, r *exRuns) {
 			// K·N weights + N biases, K = 4·8·8 (ONNX Operators.md, Gemm: B is N×K with
 			// transB = 1, as onnxbuild.Builder.Gemm stores it; the bias C has N).
 			if l := layerByOp(r, "Gemm"); l == nil || l.Params != 4*8*8*6+6 {
@@ -547,7 +547,7 @@ func writeLabels(dir, name string, n int) {
 	}
 }
 
-func layerByOp(r *tpRuns, op string) *layerDoc {
+func layerByOp(r *exRuns, op string) *layerDoc {
 	for i := range r.layers.Layers {
 		if r.layers.Layers[i].Op == op {
 			return &r.layers.Layers[i]
@@ -556,7 +556,7 @@ func layerByOp(r *tpRuns, op string) *layerDoc {
 	return nil
 }
 
-func lastOp(r *tpRuns, op string) *layerDoc {
+func lastOp(r *exRuns, op string) *layerDoc {
 	var l *layerDoc
 	for i := range r.layers.Layers {
 		if r.layers.Layers[i].Op == op {
@@ -569,7 +569,7 @@ func lastOp(r *tpRuns, op string) *layerDoc {
 // checkNorms compares the filter norms `filters` printed with the L2 norms
 // of the weights the test wrote into the initializer named w (tolerance
 // 1e-6 relative: float32 sums in another order).
-func checkNorms(t *testing.T, r *tpRuns, w string) {
+func checkNorms(t *testing.T, r *exRuns, w string) {
 	t.Helper()
 	for _, init := range r.b.Graph.Initializer {
 		if init.GetName() != w {
@@ -597,14 +597,14 @@ func checkNorms(t *testing.T, r *tpRuns, w string) {
 	t.Fatalf("no initializer %q", w)
 }
 
-func wantVol(t *testing.T, r *tpRuns, op, vol string) {
+func wantVol(t *testing.T, r *exRuns, op, vol string) {
 	t.Helper()
 	if l := lastOp(r, op); l == nil || l.Volume != vol {
 		t.Errorf("last %s: %+v, want volume %s", op, l, vol)
 	}
 }
 
-func wantParams(t *testing.T, r *tpRuns, op string, n int64) {
+func wantParams(t *testing.T, r *exRuns, op string, n int64) {
 	t.Helper()
 	for _, l := range r.layers.Layers {
 		if l.Op == op && l.Params == n {
@@ -614,9 +614,9 @@ func wantParams(t *testing.T, r *tpRuns, op string, n int64) {
 	t.Errorf("no %s layer with %d parameters", op, n)
 }
 
-// tpImages writes a few small generated PNGs (colour bars and a disc) into a
+// exImages writes a few small generated PNGs (colour bars and a disc) into a
 // new folder and returns the folder and the files.
-func tpImages(t *testing.T) (string, []string) {
+func exImages(t *testing.T) (string, []string) {
 	t.Helper()
 	dir := filepath.Join(t.TempDir(), "probe ü")
 	if err := os.MkdirAll(dir, 0o755); err != nil {
@@ -651,7 +651,7 @@ func tpImages(t *testing.T) (string, []string) {
 
 // tpWant gives the exit status each command must end with on a model:
 // exitOK, or exitUsage when the model cannot do what the command asks (one
-// line on stderr naming the file). what is the command as tpExercise names
+// line on stderr naming the file). what is the command as exExercise names
 // it: "layers", "filters", "classify", "maps <layer>", "occlude", "scan",
 // "report".
 type tpWant func(what string) int
@@ -664,7 +664,7 @@ func runsModel(what string) bool {
 
 // wantFor is the expectation of a generated model: a model that cannot be
 // fed fails every command that runs it; noFilters fails filters.
-func (tm tpModel) wantFor(what string) int {
+func (tm exModel) wantFor(what string) int {
 	switch {
 	case tm.fails && runsModel(what), tm.noFilters && what == "filters":
 		return exitUsage
@@ -672,18 +672,18 @@ func (tm tpModel) wantFor(what string) int {
 	return exitOK
 }
 
-// tpExercise runs every subcommand on the model at path, checks each exit
+// exExercise runs every subcommand on the model at path, checks each exit
 // status against want and decodes what the successful runs wrote: JSON
 // documents, the scan's flags against the README's definitions and the
 // report's page size. It returns what they printed.
-func tpExercise(t *testing.T, path string, probe string, image string, want tpWant) *tpRuns {
+func exExercise(t *testing.T, path string, probe string, image string, want tpWant) *exRuns {
 	t.Helper()
-	r := &tpRuns{path: path, imagePath: image, maps: map[string]mapsDoc{}, codes: map[string]int{}}
+	r := &exRuns{path: path, imagePath: image, maps: map[string]mapsDoc{}, codes: map[string]int{}}
 	out := t.TempDir()
 	base := filepath.Base(path)
 	try := func(what string, v any, args ...string) bool {
 		t.Helper()
-		res := tpRun(args...)
+		res := exRun(args...)
 		r.codes[what] = res.code
 		if os.Getenv("TPDEBUG") != "" { // TPDEBUG=1 go test -v: every exit status and message
 			t.Logf("%s %s: %d %s", base, what, res.code, strings.TrimSpace(res.stderr))
@@ -722,7 +722,7 @@ func tpExercise(t *testing.T, path string, probe string, image string, want tpWa
 	}
 	m := []string{"--model", path}
 	try("layers --json", &r.layers, append([]string{"layers", "--json"}, m...)...)
-	if res := tpRun(append([]string{"layers"}, m...)...); res.panicked != nil || res.code != want("layers") {
+	if res := exRun(append([]string{"layers"}, m...)...); res.panicked != nil || res.code != want("layers") {
 		t.Errorf("%s layers: exit %d %v: %s", base, res.code, res.panicked, res.stderr)
 	} else if res.code == exitOK {
 		r.table = res.stdout
@@ -808,22 +808,22 @@ func checkScanDoc(t *testing.T, base string, d *scanDoc, probe string) {
 	}
 }
 
-func TestCLIThirdPartyModels(t *testing.T) {
+func TestCLIOtherExportersModels(t *testing.T) {
 	startRuntime(t)
-	probe, images := tpImages(t)
-	for _, tm := range tpModels {
+	probe, images := exImages(t)
+	for _, tm := range exModels {
 		t.Run(tm.name, func(t *testing.T) {
 			dir := filepath.Join(t.TempDir(), "models é")
 			if err := os.MkdirAll(dir, 0o755); err != nil {
 				t.Fatal(err)
 			}
-			b := tpNew(tm.opset)
+			b := exNew(tm.opset)
 			tm.make(b, dir)
 			path := filepath.Join(dir, tm.name)
 			if err := b.Write(path); err != nil {
 				t.Fatal(err)
 			}
-			r := tpExercise(t, path, probe, images[0], tm.wantFor)
+			r := exExercise(t, path, probe, images[0], tm.wantFor)
 			r.b = b
 			if tm.check != nil && !t.Failed() {
 				tm.check(t, r)
@@ -832,10 +832,10 @@ func TestCLIThirdPartyModels(t *testing.T) {
 	}
 }
 
-// tpNew starts a model for the third-party tests: onnxbuild with its
+// exNew starts a model for the other-exporter tests: onnxbuild with its
 // Xorshift weights, IR version 7 and producer "fovea-test" (the values
 // these tests were written with; some models override them).
-func tpNew(opset int64) *onnxbuild.Builder {
+func exNew(opset int64) *onnxbuild.Builder {
 	b := onnxbuild.New(opset, onnxbuild.Xorshift)
 	b.Model.IrVersion, b.Model.ProducerName = 7, "fovea-test"
 	return b
@@ -850,7 +850,7 @@ func tpNew(opset int64) *onnxbuild.Builder {
 // output's per-image shape (the conformance data's output_0.pb) as a class.
 func TestCLIConformanceModels(t *testing.T) {
 	startRuntime(t)
-	probe, images := tpImages(t)
+	probe, images := exImages(t)
 	files, _ := filepath.Glob(filepath.Join(conformanceDir, "pytorch-converted", "*", "model.onnx"))
 	if len(files) == 0 {
 		t.Fatalf("no conformance models under %s (Debian package libonnx-testdata; `make test` installs it)", conformanceDir)
@@ -873,7 +873,7 @@ func TestCLIConformanceModels(t *testing.T) {
 		n++
 		t.Run(filepath.Base(filepath.Dir(f)), func(t *testing.T) {
 			want, classes := conformanceWant(t, f)
-			r := tpExercise(t, f, probe, images[0], want)
+			r := exExercise(t, f, probe, images[0], want)
 			if r.codes["classify --k 100"] == exitOK {
 				ran++
 				if len(r.all.Top) != min(100, classes) {

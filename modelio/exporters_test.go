@@ -1,7 +1,7 @@
 package modelio
 
 // Graph shapes other exporters write, checked at the modelio level (the
-// command-line pipeline over the same shapes is in app/cli_thirdparty_test.go).
+// command-line pipeline over the same shapes is in app/cli_exporters_test.go).
 
 import (
 	"encoding/binary"

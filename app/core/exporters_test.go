@@ -26,7 +26,7 @@ func openConformance(t *testing.T, name string) *Workspace {
 }
 
 // A 4-channel image input (test_Conv2d_depthwise takes [2,4,6,6]) cannot be
-// filled from a picture: every job returns an input error naming the model
+// filled from a picture: every analysis returns an input error naming the model
 // and the channel count instead of panicking in prep.
 func TestFourChannelInput(t *testing.T) {
 	w := openConformance(t, "test_Conv2d_depthwise")
