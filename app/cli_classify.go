@@ -98,8 +98,8 @@ func classifyOne(j *invocation, file string, k int, asJSON bool) int {
 	return exitOK
 }
 
-// The JSON form of `fovea classify`: {"top":[{"index","label","probability"}]}
-// (issue 8), with the model and image beside it.
+// The JSON form of `fovea classify`: {"top":[{"index","label","probability"}]},
+// with the model and image beside it.
 type classifyDoc struct {
 	Model string          `json:"model"`
 	Image string          `json:"image"`

@@ -191,7 +191,7 @@ func (o *evalOutput) write(c *cli, cmd string, e *analysis.Evaluation) int {
 	return exitOK
 }
 
-// The JSON form of `fovea evaluate` (issue 15's contract, with data,
+// The JSON form of `fovea evaluate` (with data,
 // correct, top5 null for 5 classes or fewer, least_sure, and per class the
 // number predicted as it).
 type evaluateDoc struct {

@@ -38,8 +38,7 @@ Totals are in the last row.`,
 	},
 }
 
-// The JSON form of `fovea layers`; field names are part of the interface
-// (issue 8).
+// The JSON form of `fovea layers`; field names are part of the interface.
 type layersDoc struct {
 	Model  string     `json:"model"`
 	Inputs []inputDoc `json:"inputs"`

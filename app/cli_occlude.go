@@ -192,7 +192,7 @@ func (o *occlusionFlags) run(j *invocation) (*occlusionResult, int) {
 	return &occlusionResult{occ: occ, fit: fit, image: o.image, set: set}, exitOK
 }
 
-// The JSON form of `fovea occlude` (issue 8): the first target at the top
+// The JSON form of `fovea occlude`: the first target at the top
 // level, a --versus target under "versus" with the same fields.
 type occlusionDoc struct {
 	Model string `json:"model,omitempty"`

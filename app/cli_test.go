@@ -1,6 +1,6 @@
 package main
 
-// Tests of the command-line mode (issue 8). Each subcommand runs in-process
+// Tests of the command-line mode. Each subcommand runs in-process
 // through cli.run with stdout and stderr captured, on the embedded demo model
 // and images, with the real ONNX Runtime. Every output is checked against
 // the libraries called directly in the test (modelio, infer, prep, viz) and,
@@ -74,7 +74,7 @@ func startRuntime(t *testing.T) {
 
 // demoFiles writes the model, one demo image and the labels into a new
 // folder whose names have spaces and non-ASCII letters, so every test also
-// exercises such paths (issue 8: "Paths with spaces and unicode work").
+// exercises such paths ("Paths with spaces and unicode work").
 type demoFiles struct {
 	dir, model, unhealthy, image, image2, labels string
 	imageName                                    string // the demo image's own name
@@ -255,7 +255,7 @@ func TestCLILayers(t *testing.T) {
 			t.Errorf("layer %d: CLI %+v, modelio %+v", i, l, w)
 		}
 		if l.ShapeSource != "static" && l.ShapeSource != "observed" {
-			t.Errorf("layer %s: shape_source %q, want static or observed (issue 8)", l.Name, l.ShapeSource)
+			t.Errorf("layer %s: shape_source %q, want static or observed", l.Name, l.ShapeSource)
 		}
 		sum.params += l.Params
 		sum.macs += l.MACs
@@ -699,7 +699,7 @@ func TestCLIOcclude(t *testing.T) {
 			t.Errorf("%s: CLI target %+v patch %d stride %d fill %s ys %v xs %v; library %d %v %v %v",
 				name, g.Target, g.Patch, g.Stride, g.Fill, g.Ys, g.Xs, w.Target, w.Probability, w.Ys, w.Xs)
 		}
-		// Patch positions by hand (issue 8: corners in model input pixels):
+		// Patch positions by hand (corners in model input pixels):
 		// 0, 8, ..., 48 for a 16-pixel patch moved by 8 over 64 pixels.
 		if !slices.Equal(g.Xs, []int{0, 8, 16, 24, 32, 40, 48}) {
 			t.Errorf("%s: xs %v, want 0..48 by 8", name, g.Xs)
@@ -828,7 +828,7 @@ func TestCLIScanUnhealthy(t *testing.T) {
 		os.WriteFile(filepath.Join(probeDir, filepath.Base(p.File)), b, 0o644)
 	}
 
-	// Exactly the truth file's dead channels (issue 8, Checks).
+	// Exactly the truth file's dead channels.
 	tr := readTruth(t, assets.UnhealthyTruthFile)
 	if tr.DeadTotal == 0 {
 		t.Fatal("the unhealthy demo's truth file lists no dead channel: the gate test below could not fail")
@@ -1098,7 +1098,7 @@ func TestCLIExitStatus(t *testing.T) {
 		{[]string{"scan", "--probe", d.image}, 2, []string{filepath.Base(d.image)}},
 		{[]string{"filters", "--out", filepath.Join(d.dir, "no folder", "x.png")}, 2, []string{"no folder"}},
 		{[]string{"maps", "--image", d.image, "--layer", "nope", "--out", out}, 2, []string{"nope"}},
-		// the library: exit 2, naming the file and the fetch command (issue 2)
+		// the library: exit 2, naming the file and the fetch command
 		{[]string{"layers", "--ort-lib", "/nonexistent"}, 2, []string{"/nonexistent", "fovea fetch-runtime"}},
 		{[]string{"--ort-lib", "/nonexistent"}, 2, []string{"/nonexistent", "fovea fetch-runtime"}},
 		// the window takes one model file after its flags (the desktop entry passes it so)

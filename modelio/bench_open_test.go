@@ -1,6 +1,6 @@
 package modelio_test
 
-// Opening benchmark of issue 9: modelio.Open on a model of about 500 MB
+// Opening benchmark: modelio.Open on a model of about 500 MB
 // (VGG-16 with random weights, 553 MB, written by modelio/internal/synth at
 // benchmark time, never committed) against reading the same file once with
 // os.ReadFile, and the peak resident memory of opening against the file's

@@ -42,8 +42,8 @@ func expectedDims(t *testing.T, path string) []int64 {
 	return tp.GetDims()
 }
 
-// conformancePrefixes are the operators the layer table must infer exactly
-// (issue 4), matched case-insensitively against "test_<prefix>" folder
+// conformancePrefixes are the operators the layer table must infer exactly,
+// matched case-insensitively against "test_<prefix>" folder
 // names under node/ and pytorch-converted/. PyTorch's converted tests call
 // AveragePool "AvgPool" and BatchNormalization "BatchNorm".
 var conformancePrefixes = []string{"conv", "maxpool", "averagepool", "avgpool", "globalaveragepool", "globalmaxpool",

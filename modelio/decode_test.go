@@ -174,7 +174,7 @@ func allocDuring(f func()) uint64 {
 }
 
 // TestOpenMemory: opening a model allocates at most 1.5× its file size in
-// total (issue 4: peak ≤ 1.5× file size; total allocation bounds the
+// total (peak ≤ 1.5× file size; total allocation bounds the
 // peak), while the plain read-then-unmarshal way needs about 2×, which
 // shows the measurement can tell them apart.
 func TestOpenMemory(t *testing.T) {

@@ -16,7 +16,7 @@ import (
 )
 
 // heapBound is the most any hostile input may make Open allocate, beyond
-// a few times its own size (issue 10: no allocation in proportion to a size
+// a few times its own size (no allocation in proportion to a size
 // the file merely claims).
 const heapBound = 32 << 20
 

@@ -216,7 +216,7 @@ func TestStartsOnDemoAndShowsEveryView(t *testing.T) {
 		t.Errorf("header %q should name the model %q and the image %q", heading, name, u.imgName)
 	}
 
-	// The layer panel lists every layer (issue 2: "shows the loaded model's
+	// The layer panel lists every layer ("shows the loaded model's
 	// name and its layer list").
 	layers := u.ws.Model.Layers
 	if rows, cols := u.layers.table.Length(); rows != len(layers) || cols != len(layerColumns) {

@@ -1,6 +1,6 @@
 package infer_test
 
-// Ratio benchmark of issue 9 for the ResNet-18-sized network; the demo
+// Ratio benchmark for the ResNet-18-sized network; the demo
 // model's is BenchmarkCaptureRatio in bench_test.go. `make bench` runs both
 // (-bench '^BenchmarkCaptureRatio') and prints the table.
 

@@ -149,6 +149,6 @@ func BenchmarkCaptureRatio(b *testing.B) {
 	b.ReportMetric(float64(tp.Microseconds())/float64(b.N), "plain-µs/op")
 	b.ReportMetric(float64(ta.Microseconds())/float64(b.N), "capture-µs/op")
 	if ratio > 1.3 {
-		b.Logf("capture/plain = %.2f, above the 1.3 bound of issue 5", ratio)
+		b.Logf("capture/plain = %.2f, above the 1.3 bound", ratio)
 	}
 }

@@ -11,7 +11,7 @@ import (
 )
 
 // The model's own outputs are those of a plain run, bit for bit, whatever is
-// captured (issue 5: "The rewrite must not change the model's own
+// captured ("The rewrite must not change the model's own
 // outputs"). ONNX Runtime folds a BatchNormalization into the Conv before
 // it, and arithmetic with a constant into the node before it, only while the
 // tensor between them is not a graph output (its graph optimisers, common

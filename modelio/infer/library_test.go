@@ -13,7 +13,7 @@ import (
 	"testing"
 )
 
-// The lookup order is the one documented in README.md and issue 2:
+// The lookup order is the one documented in README.md:
 // --ort-lib, then $FOVEA_ORT_LIB, then the cache, then the system paths.
 func TestFindLibraryOrder(t *testing.T) {
 	dir := t.TempDir()
@@ -52,7 +52,7 @@ func TestFindLibraryOrder(t *testing.T) {
 }
 
 // A path the user gave that does not exist is reported with the path and the
-// fetch command (issue 2 acceptance), never replaced by another library.
+// fetch command, never replaced by another library.
 func TestFindLibraryMissingExplicit(t *testing.T) {
 	for _, tc := range []struct{ flag, env string }{
 		{"/nonexistent/libonnxruntime.so.1", ""},

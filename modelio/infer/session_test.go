@@ -26,7 +26,7 @@ import (
 func images(n int) []float32 { return randn(99, n*3*16*16, 1) }
 
 // The rewrite that adds activation maps as graph outputs must not change the
-// model's own outputs (issue 5): compared bit for bit, on a batch, with and
+// model's own outputs: compared bit for bit, on a batch, with and
 // without every intermediate tensor captured.
 func TestRewriteKeepsOutputs(t *testing.T) {
 	for _, softmax := range []bool{false, true} {

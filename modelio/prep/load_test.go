@@ -155,7 +155,7 @@ func hostileCases() []hostileCase {
 	}
 }
 
-// TestHostileImages is issue 10's table: every odd or hostile image either decodes to the
+// TestHostileImages is a table: every odd or hostile image either decodes to the
 // right size and colour, or fails with the right class and a message naming the file,
 // without a panic and within a fixed allocation bound. Each case is read from a real file
 // through Load.

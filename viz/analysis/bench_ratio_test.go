@@ -1,6 +1,6 @@
 package analysis
 
-// Ratio benchmarks of issue 9 for the analyses: occlusion against plain
+// Ratio benchmarks for the analyses: occlusion against plain
 // batched inference over as many images, and the dead-filter scan against
 // plain batched inference with the same activations captured. Each ratio is
 // measured against its bound in the same run, the two interleaved (and

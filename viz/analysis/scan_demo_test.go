@@ -52,7 +52,7 @@ type demoTruth struct {
 }
 
 // TestScanDemoTruth: the scan of each demo checkpoint flags dead and rare
-// exactly the channels its truth file lists (issue 6), with the default
+// exactly the channels its truth file lists, with the default
 // rare threshold of 1 %, the one the truth file uses.
 func TestScanDemoTruth(t *testing.T) {
 	for _, kind := range []string{"healthy", "unhealthy"} {

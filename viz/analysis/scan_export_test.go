@@ -29,7 +29,7 @@ func literalReport() *ScanReport {
 }
 
 func TestScanJSON(t *testing.T) {
-	// Field names of the command line's scan JSON (issue 8):
+	// Field names of the command line's scan JSON:
 	// {"images", "layers":[{"name","channels":[{"index","fires","max","mean","flags":[...]}]}]}.
 	var buf bytes.Buffer
 	if err := literalReport().WriteJSON(&buf); err != nil {

@@ -1,6 +1,6 @@
 // Command synthbench is the helper of `make bench`: it writes the synthetic
 // models the benchmarks run on, and turns the output of `go test -bench`
-// into the table of ratios with their goals (issue 9).
+// into the table of ratios with their goals.
 //
 //	synthbench models DIR [parts|resnet18|vgg16 ...]   (default: all three)
 //	synthbench table [FILE]                            (default: standard input)
