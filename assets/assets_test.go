@@ -15,7 +15,7 @@ import (
 	"fovea/modelio/onnxpb"
 )
 
-// These tests check that the embedded files keep the promises of README.md and of the
+// These tests check that the embedded files keep the promises of assets/README.md and of the
 // package comment. They read the files with the standard library's PNG decoder, the ONNX
 // protobuf schema (onnx.proto, via modelio/onnxpb) and encoding/json; they do not run the
 // networks (the Go tests of modelio/infer and app do that through ONNX Runtime).
