@@ -59,8 +59,10 @@ func TestMapLayersAndCaptureEffect(t *testing.T) {
 		{"image", CaptureFree},
 		{"no such tensor", CaptureFree},
 	} {
-		if got := m.CaptureEffect(c.name); got != c.want {
-			t.Errorf("CaptureEffect(%s) = %d, want %d", c.name, got, c.want)
-		}
+		t.Run(c.name, func(t *testing.T) {
+			if got := m.CaptureEffect(c.name); got != c.want {
+				t.Errorf("CaptureEffect(%s) = %d, want %d", c.name, got, c.want)
+			}
+		})
 	}
 }

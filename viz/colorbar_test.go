@@ -118,15 +118,17 @@ func TestColorBarPanics(t *testing.T) {
 		{"nan", 300, 60, math.NaN(), 1, Sequential, "empty or not finite"},
 		{"nil map", 300, 60, 0, 1, nil, "nil colour map"},
 	} {
-		func() {
-			defer func() {
-				r := recover()
-				if s, _ := r.(string); !strings.Contains(s, c.want) {
-					t.Errorf("%s: panic %v, want one containing %q", c.name, r, c.want)
-				}
+		t.Run(c.name, func(t *testing.T) {
+			func() {
+				defer func() {
+					r := recover()
+					if s, _ := r.(string); !strings.Contains(s, c.want) {
+						t.Errorf("%s: panic %v, want one containing %q", c.name, r, c.want)
+					}
+				}()
+				ColorBar(c.w, c.h, c.min, c.max, "u", c.cmap)
 			}()
-			ColorBar(c.w, c.h, c.min, c.max, "u", c.cmap)
-		}()
+		})
 	}
 }
 

@@ -150,10 +150,12 @@ func TestMapGridErrors(t *testing.T) {
 		{"huge", tensor([]int64{1, 1, 1, 1}, 0), "nchw", GridOptions{Zoom: 1 << 13}, "exceeds the limit"},
 		{"overflow", tensor([]int64{1 << 20, 1 << 20, 1 << 20, 1 << 20}, 0), "nchw", GridOptions{}, "does not match"},
 	} {
-		_, _, err := MapGrid(c.t, c.layout, c.o)
-		if err == nil || !strings.Contains(err.Error(), c.want) {
-			t.Errorf("%s: error %v, want one containing %q", c.name, err, c.want)
-		}
+		t.Run(c.name, func(t *testing.T) {
+			_, _, err := MapGrid(c.t, c.layout, c.o)
+			if err == nil || !strings.Contains(err.Error(), c.want) {
+				t.Errorf("%s: error %v, want one containing %q", c.name, err, c.want)
+			}
+		})
 	}
 }
 
@@ -324,9 +326,11 @@ func TestMapOverlayErrors(t *testing.T) {
 		{"not input size", big, 0, 0.5, "pass the image at the model's input size"},
 		{"empty image", image.NewNRGBA(image.Rect(0, 0, 0, 5)), 0, 0.5, "empty"},
 	} {
-		_, err := MapOverlay(c.base, tt, "nchw", c.ch, l, c.op)
-		if err == nil || !strings.Contains(err.Error(), c.want) {
-			t.Errorf("%s: error %v, want one containing %q", c.name, err, c.want)
-		}
+		t.Run(c.name, func(t *testing.T) {
+			_, err := MapOverlay(c.base, tt, "nchw", c.ch, l, c.op)
+			if err == nil || !strings.Contains(err.Error(), c.want) {
+				t.Errorf("%s: error %v, want one containing %q", c.name, err, c.want)
+			}
+		})
 	}
 }

@@ -173,15 +173,17 @@ func TestRenderOcclusionPanics(t *testing.T) {
 		{"mixed", base, []*Occlusion{ok, logit}, HeatOptions{}, "mix"},
 		{"opacity", base, []*Occlusion{ok}, HeatOptions{Opacity: 1.5}, "opacity 1.5"},
 	} {
-		func() {
-			defer func() {
-				r := recover()
-				if s, _ := r.(string); !strings.Contains(s, c.want) || !strings.HasPrefix(s, "viz: RenderOcclusion") {
-					t.Errorf("%s: panic %v, want one containing %q", c.name, r, c.want)
-				}
+		t.Run(c.name, func(t *testing.T) {
+			func() {
+				defer func() {
+					r := recover()
+					if s, _ := r.(string); !strings.Contains(s, c.want) || !strings.HasPrefix(s, "viz: RenderOcclusion") {
+						t.Errorf("%s: panic %v, want one containing %q", c.name, r, c.want)
+					}
+				}()
+				RenderOcclusion(c.base, c.occ, c.o)
 			}()
-			RenderOcclusion(c.base, c.occ, c.o)
-		}()
+		})
 	}
 }
 

@@ -116,14 +116,16 @@ func TestOverlayScoresPanics(t *testing.T) {
 		{"opacity", func() { OverlayScores(base, [][]float64{{1}}, []int{0}, []int{0}, 1, 1, -1) }, "opacity -1"},
 		{"nil", func() { OverlayScores(nil, [][]float64{{1}}, []int{0}, []int{0}, 1, 1, 1) }, "nil image"},
 	} {
-		func() {
-			defer func() {
-				r := recover()
-				if s, _ := r.(string); !strings.Contains(s, c.want) {
-					t.Errorf("%s: panic %v, want one containing %q", c.name, r, c.want)
-				}
+		t.Run(c.name, func(t *testing.T) {
+			func() {
+				defer func() {
+					r := recover()
+					if s, _ := r.(string); !strings.Contains(s, c.want) {
+						t.Errorf("%s: panic %v, want one containing %q", c.name, r, c.want)
+					}
+				}()
+				c.f()
 			}()
-			c.f()
-		}()
+		})
 	}
 }

@@ -65,10 +65,12 @@ func TestComposeErrors(t *testing.T) {
 		{"negative", []Panel{{solid(1, 1, Light), ""}}, ComposeOptions{Gap: -1}, "negative"},
 		{"huge", []Panel{{solid(1, 100, Light), ""}}, ComposeOptions{Height: 1 << 20}, "above"},
 	} {
-		_, err := Compose(c.panels, c.o)
-		if err == nil || !strings.Contains(err.Error(), c.want) {
-			t.Errorf("%s: error %v, want one containing %q", c.name, err, c.want)
-		}
+		t.Run(c.name, func(t *testing.T) {
+			_, err := Compose(c.panels, c.o)
+			if err == nil || !strings.Contains(err.Error(), c.want) {
+				t.Errorf("%s: error %v, want one containing %q", c.name, err, c.want)
+			}
+		})
 	}
 }
 

@@ -275,10 +275,12 @@ func TestTilesErrors(t *testing.T) {
 		{"negative cell", kernels(1, 1, 1, 1, 1), TileOptions{Cell: -2}, "negative"},
 		{"huge", kernels(1, 1, 3, 3, 1, 1, 1, 1, 1, 1, 1, 1, 1), TileOptions{Cell: 1 << 14}, "exceeds the limit"},
 	} {
-		_, _, err := Tiles(c.k, c.o)
-		if err == nil || !strings.Contains(err.Error(), c.want) || !strings.HasPrefix(err.Error(), "viz: ") {
-			t.Errorf("%s: error %v, want one containing %q", c.name, err, c.want)
-		}
+		t.Run(c.name, func(t *testing.T) {
+			_, _, err := Tiles(c.k, c.o)
+			if err == nil || !strings.Contains(err.Error(), c.want) || !strings.HasPrefix(err.Error(), "viz: ") {
+				t.Errorf("%s: error %v, want one containing %q", c.name, err, c.want)
+			}
+		})
 	}
 }
 

@@ -26,14 +26,16 @@ func TestReadLabelsFormats(t *testing.T) {
 	}
 	dir := t.TempDir()
 	for _, c := range cases {
-		p := filepath.Join(dir, "l.txt")
-		if err := os.WriteFile(p, []byte(c.text), 0o644); err != nil {
-			t.Fatal(err)
-		}
-		got, err := ReadLabels(p)
-		if err != nil || !slices.Equal(got, c.want) {
-			t.Errorf("%s: got %q, %v; want %q", c.name, got, err, c.want)
-		}
+		t.Run(c.name, func(t *testing.T) {
+			p := filepath.Join(dir, "l.txt")
+			if err := os.WriteFile(p, []byte(c.text), 0o644); err != nil {
+				t.Fatal(err)
+			}
+			got, err := ReadLabels(p)
+			if err != nil || !slices.Equal(got, c.want) {
+				t.Errorf("%s: got %q, %v; want %q", c.name, got, err, c.want)
+			}
+		})
 	}
 	for _, c := range []struct {
 		name string
@@ -45,13 +47,15 @@ func TestReadLabelsFormats(t *testing.T) {
 		{"bad JSON", []byte(`[1, 2]`), "labels file bad.txt: starts like a JSON array"},
 		{"too large", []byte(strings.Repeat("x\n", maxLabelsFile/2+1)), "labels file bad.txt: more than 16 MiB"},
 	} {
-		p := filepath.Join(dir, "bad.txt")
-		if err := os.WriteFile(p, c.data, 0o644); err != nil {
-			t.Fatal(err)
-		}
-		if _, err := ReadLabels(p); err == nil || !strings.HasPrefix(err.Error(), c.want) {
-			t.Errorf("%s: got %v, want %q", c.name, err, c.want)
-		}
+		t.Run(c.name, func(t *testing.T) {
+			p := filepath.Join(dir, "bad.txt")
+			if err := os.WriteFile(p, c.data, 0o644); err != nil {
+				t.Fatal(err)
+			}
+			if _, err := ReadLabels(p); err == nil || !strings.HasPrefix(err.Error(), c.want) {
+				t.Errorf("%s: got %v, want %q", c.name, err, c.want)
+			}
+		})
 	}
 	if _, err := ReadLabels(filepath.Join(dir, "missing.txt")); err == nil || !strings.HasPrefix(err.Error(), "labels file missing.txt: ") {
 		t.Errorf("missing file: %v", err)

@@ -217,29 +217,31 @@ func TestBatchingMatchesSingleRuns(t *testing.T) {
 		{"fixed at 2: padded", 2, Options{}, 2},
 	}
 	for _, c := range cases {
-		s := newSession(t, openTiny(t, c.fixed, false), c.opt)
-		if c.wantBatch > 0 && s.BatchSize() != c.wantBatch {
-			t.Errorf("%s: BatchSize %d, want %d", c.name, s.BatchSize(), c.wantBatch)
-		}
-		for pass := range 2 { // the second pass writes into preallocated outputs
-			r, err := s.Run(context.Background(), x, n)
-			if err != nil {
-				t.Fatalf("%s: %v", c.name, err)
+		t.Run(c.name, func(t *testing.T) {
+			s := newSession(t, openTiny(t, c.fixed, false), c.opt)
+			if c.wantBatch > 0 && s.BatchSize() != c.wantBatch {
+				t.Errorf("%s: BatchSize %d, want %d", c.name, s.BatchSize(), c.wantBatch)
 			}
-			if r.N != n || !slices.Equal(r.Outputs[0].Shape, []int64{n, 5}) {
-				t.Fatalf("%s: N %d shape %v, want %d [%d 5]", c.name, r.N, r.Outputs[0].Shape, n, n)
-			}
-			// Different batch sizes may take different kernel paths; 1e-5
-			// relative is float32 rounding of sums of ~1000 terms.
-			if i := closeTo(r.Outputs[0].Data, want, 1e-5); i >= 0 {
-				t.Errorf("%s pass %d: logit %d = %v, single run %v", c.name, pass, i, r.Outputs[0].Data[i], want[i])
-			}
-			for i := range n {
-				if got := r.Scores(i); !slices.Equal(got, r.Outputs[0].Data[i*5:(i+1)*5]) {
-					t.Errorf("%s: Scores(%d) = %v", c.name, i, got)
+			for pass := range 2 { // the second pass writes into preallocated outputs
+				r, err := s.Run(context.Background(), x, n)
+				if err != nil {
+					t.Fatalf("%s: %v", c.name, err)
+				}
+				if r.N != n || !slices.Equal(r.Outputs[0].Shape, []int64{n, 5}) {
+					t.Fatalf("%s: N %d shape %v, want %d [%d 5]", c.name, r.N, r.Outputs[0].Shape, n, n)
+				}
+				// Different batch sizes may take different kernel paths; 1e-5
+				// relative is float32 rounding of sums of ~1000 terms.
+				if i := closeTo(r.Outputs[0].Data, want, 1e-5); i >= 0 {
+					t.Errorf("%s pass %d: logit %d = %v, single run %v", c.name, pass, i, r.Outputs[0].Data[i], want[i])
+				}
+				for i := range n {
+					if got := r.Scores(i); !slices.Equal(got, r.Outputs[0].Data[i*5:(i+1)*5]) {
+						t.Errorf("%s: Scores(%d) = %v", c.name, i, got)
+					}
 				}
 			}
-		}
+		})
 	}
 }
 

@@ -33,9 +33,11 @@ func TestStoredImages(t *testing.T) {
 			t.Fatal(err)
 		}
 		for _, tc := range hostileCases() {
-			if err := atomicfile.WriteBytes(filepath.Join(imagesDir, tc.name), tc.data(t), 0o644); err != nil {
-				t.Fatal(err)
-			}
+			t.Run(tc.name, func(t *testing.T) {
+				if err := atomicfile.WriteBytes(filepath.Join(imagesDir, tc.name), tc.data(t), 0o644); err != nil {
+					t.Fatal(err)
+				}
+			})
 		}
 		for _, e := range exifFiles {
 			data := withExif(encJPEG(t, storedFor(visualQuadrants(), e.o)), uint16(e.o), e.be)

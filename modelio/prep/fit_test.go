@@ -149,11 +149,13 @@ func TestAlphaComposite(t *testing.T) {
 		{"alpha mask", &image.Alpha{Pix: []uint8{0}, Stride: 1, Rect: image.Rect(0, 0, 1, 1)}, color.NRGBA{9, 8, 7, 255}, color.NRGBA{9, 8, 7, 255}},
 	}
 	for _, tc := range cases {
-		c := Default()
-		c.Width, c.Height, c.Background = 1, 1, tc.bg
-		if got := Fit(tc.img, c).NRGBAAt(0, 0); !closeTo(got, tc.want, 1) {
-			t.Errorf("%s: %v, want %v ± 1 (8-bit rounding)", tc.name, got, tc.want)
-		}
+		t.Run(tc.name, func(t *testing.T) {
+			c := Default()
+			c.Width, c.Height, c.Background = 1, 1, tc.bg
+			if got := Fit(tc.img, c).NRGBAAt(0, 0); !closeTo(got, tc.want, 1) {
+				t.Errorf("%s: %v, want %v ± 1 (8-bit rounding)", tc.name, got, tc.want)
+			}
+		})
 	}
 }
 

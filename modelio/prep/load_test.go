@@ -443,9 +443,11 @@ func TestTIFFOrientationParser(t *testing.T) {
 		{"empty", nil, 0},
 	}
 	for _, tc := range cases {
-		if got := tiffOrientation(tc.data); got != tc.want {
-			t.Errorf("%s: %d, want %d", tc.name, got, tc.want)
-		}
+		t.Run(tc.name, func(t *testing.T) {
+			if got := tiffOrientation(tc.data); got != tc.want {
+				t.Errorf("%s: %d, want %d", tc.name, got, tc.want)
+			}
+		})
 	}
 }
 
@@ -480,9 +482,11 @@ func TestEXIFSegmentWalk(t *testing.T) {
 		{"just SOI", soi, 0},
 	}
 	for _, tc := range cases {
-		if got := exifOrientation(strings.NewReader(string(tc.data))); got != tc.want {
-			t.Errorf("%s: %d, want %d", tc.name, got, tc.want)
-		}
+		t.Run(tc.name, func(t *testing.T) {
+			if got := exifOrientation(strings.NewReader(string(tc.data))); got != tc.want {
+				t.Errorf("%s: %d, want %d", tc.name, got, tc.want)
+			}
+		})
 	}
 }
 

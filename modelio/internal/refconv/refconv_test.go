@@ -49,10 +49,12 @@ func TestConvOperatorsExamples(t *testing.T) {
 		{"dilation 2 (by hand)", Window{Kernel: []int64{3, 3}, Dilations: []int64{2, 2}}, []int64{1, 1, 1, 1}, []float32{108}},
 	}
 	for _, c := range cases {
-		y := Conv(x, w, Tensor{}, c.win, 1)
-		if !slices.Equal(y.Shape, c.shape) || !slices.Equal(y.Data, c.want) {
-			t.Errorf("%s: got %v %v, want %v %v", c.name, y.Shape, y.Data, c.shape, c.want)
-		}
+		t.Run(c.name, func(t *testing.T) {
+			y := Conv(x, w, Tensor{}, c.win, 1)
+			if !slices.Equal(y.Shape, c.shape) || !slices.Equal(y.Data, c.want) {
+				t.Errorf("%s: got %v %v, want %v %v", c.name, y.Shape, y.Data, c.shape, c.want)
+			}
+		})
 	}
 }
 

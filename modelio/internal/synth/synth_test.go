@@ -39,12 +39,14 @@ func TestParams(t *testing.T) {
 		// 32·32·9+32, 512·64+64, 64·7+7.
 		{"parts", Parts(), 1216 + 3480 + 6944 + 9248 + 32832 + 455, 0, "assets/make_demo.py PartsNet, hand count"},
 	} {
-		if tc.net.Params != tc.params {
-			t.Errorf("%s: %d parameters, want %d (%s)", tc.name, tc.net.Params, tc.params, tc.source)
-		}
-		if got, want := tc.net.Values, tc.params+2*tc.bn; got != want {
-			t.Errorf("%s: %d values in the initializers, want %d parameters + 2×%d running statistics", tc.name, got, want, tc.bn)
-		}
+		t.Run(tc.name, func(t *testing.T) {
+			if tc.net.Params != tc.params {
+				t.Errorf("%s: %d parameters, want %d (%s)", tc.name, tc.net.Params, tc.params, tc.source)
+			}
+			if got, want := tc.net.Values, tc.params+2*tc.bn; got != want {
+				t.Errorf("%s: %d values in the initializers, want %d parameters + 2×%d running statistics", tc.name, got, want, tc.bn)
+			}
+		})
 	}
 }
 
