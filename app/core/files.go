@@ -10,7 +10,7 @@ import (
 	"os"
 	"path/filepath"
 
-	"fovea/internal/atomicfile"
+	"fovea/modelio/atomicfile"
 )
 
 // WriteFile writes the file at path atomically (atomicfile.Write): write

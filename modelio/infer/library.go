@@ -23,7 +23,7 @@ import (
 
 	ort "github.com/yalue/onnxruntime_go"
 
-	"fovea/internal/atomicfile"
+	"fovea/modelio/atomicfile"
 )
 
 // The ONNX Runtime shared library is in no Go module. The npm registry's

@@ -32,7 +32,7 @@ import (
 
 	"fovea/modelio/onnxpb"
 
-	"fovea/internal/atomicfile"
+	"fovea/modelio/atomicfile"
 )
 
 // Element types (onnx.proto TensorProto.DataType).

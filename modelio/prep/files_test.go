@@ -6,7 +6,7 @@ import (
 	"path/filepath"
 	"testing"
 
-	"fovea/internal/atomicfile"
+	"fovea/modelio/atomicfile"
 	"fovea/modelio/testkit"
 )
 

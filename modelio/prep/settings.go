@@ -12,7 +12,7 @@ import (
 	"path/filepath"
 	"time"
 
-	"fovea/internal/atomicfile"
+	"fovea/modelio/atomicfile"
 )
 
 // Settings are the choices a user made for one model, remembered across sessions. They

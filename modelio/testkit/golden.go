@@ -11,7 +11,7 @@ import (
 	"path/filepath"
 	"testing"
 
-	"fovea/internal/atomicfile"
+	"fovea/modelio/atomicfile"
 )
 
 // Update is the one -update flag of every test binary that imports testkit:

@@ -41,7 +41,7 @@ import (
 
 	"fovea/modelio/onnxpb"
 
-	"fovea/internal/atomicfile"
+	"fovea/modelio/atomicfile"
 )
 
 // Net is a model being described: its graph without weight values, and for
