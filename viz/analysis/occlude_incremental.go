@@ -67,6 +67,10 @@ type incremental struct {
 // before a stage runs on crops, against the noise of the measurement.
 const incrementalMinGain = 0.97
 
+// incrementalMinSaved is the least number of multiply-accumulates the crops
+// must be predicted to save before the sub-models are cut and opened.
+const incrementalMinSaved = 4e9
+
 // incrementalForce, when not negative, skips the measurement and runs that
 // many stages (at most all) on crops: for tests, which must exercise the
 // crops whatever this machine's timings say.
@@ -115,6 +119,22 @@ func newIncremental(ctx context.Context, s *infer.Session, set viz.OcclusionSett
 	if len(inc.stages) == 0 {
 		return nil, "the patch's changed window covers the whole map already in the first stage", nil
 	}
+	// Opening the sub-models' sessions costs about as much as a few
+	// hundred million multiply-accumulates on a laptop core: a model
+	// whose crops would save less runs every occluded image.
+	var saved, total float64
+	npos := float64(len(ys) * len(xs))
+	for _, l := range m.Layers {
+		total += float64(max(l.MACs, 0)) * npos
+	}
+	for _, is := range inc.stages {
+		out := is.st.Out()
+		frac := float64(is.ax[0].outN*is.ax[1].outN) / float64(out.Height()*out.Width())
+		saved += float64(is.st.MACs) * npos * (1 - frac)
+	}
+	if saved < incrementalMinSaved && incrementalForce < 0 {
+		return nil, fmt.Sprintf("too little to gain: crops would save %.2g of %.2g multiply-accumulates, less than opening the sub-models costs", saved, total), nil
+	}
 	// Sessions: one per stage with open spatial sizes, and the rest of
 	// the network from the last stage's output.
 	fail := func(err error) (*incremental, string, error) {
@@ -130,7 +150,7 @@ func newIncremental(ctx context.Context, s *infer.Session, set viz.OcclusionSett
 		if err != nil {
 			return fail(err)
 		}
-		if is.sess, err = infer.NewSession(sub, infer.Options{}); err != nil {
+		if is.sess, err = infer.NewSession(sub, infer.Options{NoSpin: true}); err != nil {
 			return fail(err)
 		}
 	}
@@ -145,7 +165,7 @@ func newIncremental(ctx context.Context, s *infer.Session, set viz.OcclusionSett
 	if err != nil {
 		return fail(err)
 	}
-	if inc.rest, err = infer.NewSession(sub, infer.Options{}); err != nil {
+	if inc.rest, err = infer.NewSession(sub, infer.Options{NoSpin: true}); err != nil {
 		return fail(err)
 	}
 	// The clean pass.
