@@ -165,7 +165,9 @@ func newIncremental(ctx context.Context, s *infer.Session, set viz.OcclusionSett
 	if err != nil {
 		return fail(err)
 	}
-	if inc.rest, err = infer.NewSession(sub, infer.Options{NoSpin: true}); err != nil {
+	// The rest returns what the model's own session returns: its outputs
+	// and the logits behind a final softmax (OcclusionCapture).
+	if inc.rest, err = infer.NewSession(sub, infer.Options{NoSpin: true, Capture: OcclusionCapture(m)}); err != nil {
 		return fail(err)
 	}
 	// The clean pass.

@@ -26,7 +26,7 @@ import (
 // occlusionPair runs Occlude both ways and compares them.
 func occlusionPair(t *testing.T, m *modelio.Model, set viz.OcclusionSettings, targets []int, force int) {
 	t.Helper()
-	s := newSession(t, m, infer.Options{})
+	s := newSession(t, m, infer.Options{Capture: OcclusionCapture(m)})
 	cfg := prep.Guess(m)
 	if err := cfg.Validate(); err != nil {
 		t.Fatal(err)
@@ -247,10 +247,13 @@ func TestIncrementalConcat(t *testing.T) {
 	x = b.Relu(b.Conv(x, 16, 16, 3, 2, 1))
 	x = b.AveragePool(x, 2, 2, 0)
 	x = b.Relu(b.Conv(x, 16, 16, 3, 1, 1))
-	b.Output(b.Gemm(b.Flatten(b.GlobalAveragePool(x)), 16, 5))
+	// A final Softmax: the logit and log-probability scores read the
+	// logits before it, which the rest of the network must return too.
+	b.Output(b.Softmax(b.Gemm(b.Flatten(b.GlobalAveragePool(x)), 16, 5)))
 	heScale(b)
 	m := buildModel(t, b, "concat")
 	occlusionPair(t, m, viz.OcclusionSettings{Patch: 5, Stride: 3, Fill: viz.FillMean, Score: viz.ScoreLogit}, nil, 99)
+	occlusionPair(t, m, viz.OcclusionSettings{Patch: 5, Stride: 3, Score: viz.ScoreLogProb}, nil, 1)
 }
 
 // TestIncrementalNHWC: an input in height-width-channel order, transposed
