@@ -68,8 +68,9 @@ type incremental struct {
 const incrementalMinGain = 0.97
 
 // incrementalMinSaved is the least number of multiply-accumulates the crops
-// must be predicted to save before the sub-models are cut and opened.
-const incrementalMinSaved = 4e9
+// must be predicted to save before the sub-models are cut and opened (a
+// variable for tests of the measured choice on small networks).
+var incrementalMinSaved = 4e9
 
 // incrementalForce, when not negative, skips the measurement and runs that
 // many stages (at most all) on crops: for tests, which must exercise the
@@ -294,14 +295,22 @@ func (inc *incremental) rows(ctx context.Context, score func(p int, res *infer.R
 	if incrementalForce >= 0 && inc.k < 0 {
 		inc.k, inc.why = min(incrementalForce, K), "forced"
 	}
-	for start := 0; start < npos; start += inc.chunk {
+	for start := 0; start < npos; {
 		if err := ctx.Err(); err != nil {
 			return err
 		}
-		pos := make([]int, 0, inc.chunk)
-		for p := start; p < min(npos, start+inc.chunk); p++ {
+		// The measurement on full maps costs as much per position as
+		// running every image: it takes one batch of the model's own size,
+		// not a whole chunk.
+		size := inc.chunk
+		if inc.k < 0 && chunkNo == 1 {
+			size = inc.batch
+		}
+		pos := make([]int, 0, size)
+		for p := start; p < min(npos, start+size); p++ {
 			pos = append(pos, p)
 		}
+		start += len(pos)
 		k := inc.k
 		switch {
 		case k >= 0:
@@ -327,7 +336,7 @@ func (inc *incremental) rows(ctx context.Context, score func(p int, res *infer.R
 			inc.choose()
 		}
 		chunkNo++
-		done(start + len(pos))
+		done(start)
 	}
 	if inc.k < 0 {
 		inc.k, inc.why = K, fmt.Sprintf("all positions fit in one chunk; %d stages on crops", K)
