@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"image"
 	"strconv"
+	"time"
 
 	"fovea/app/core"
 	"fovea/viz"
@@ -118,6 +119,7 @@ type occlusionFlags struct {
 	image, class, versus string
 	patch, stride        int
 	fill, score          string
+	noReuse              bool
 }
 
 func (o *occlusionFlags) declare(fs *flag.FlagSet) {
@@ -128,6 +130,7 @@ func (o *occlusionFlags) declare(fs *flag.FlagSet) {
 	fs.IntVar(&o.stride, "stride", 0, "step between patch positions in `PIXELS` (default: half the patch)")
 	fs.StringVar(&o.fill, "fill", string(viz.FillGrey), "`FILL` of the hidden patch: grey (0.5 on the 0-1 pixel scale, before normalisation), mean, blur or zero")
 	fs.StringVar(&o.score, "score", string(viz.ScoreProbability), "`SCORE` compared with and without the patch: probability, logit (the logits, also those before a final Softmax) or logprob (log-probability)")
+	fs.BoolVar(&o.noReuse, "no-reuse", false, "run every occluded image through the whole model instead of reusing the clean image's activations (same scores, usually slower)")
 }
 
 // occlusionResult is what occlude and report share.
@@ -136,6 +139,9 @@ type occlusionResult struct {
 	fit   *image.NRGBA
 	image string
 	set   viz.OcclusionSettings
+	// seconds is the occlusion's own wall time (not opening the model or
+	// reading the image).
+	seconds float64
 }
 
 // run loads the image, resolves the classes and runs the occlusion.
@@ -154,7 +160,7 @@ func (o *occlusionFlags) run(j *invocation) (*occlusionResult, int) {
 	if o.stride != 0 {
 		set.Stride = o.stride
 	}
-	set.Fill, set.Score = viz.Fill(o.fill), viz.Score(o.score)
+	set.Fill, set.Score, set.NoReuse = viz.Fill(o.fill), viz.Score(o.score), o.noReuse
 	if err := core.CheckOcclusion(set, cfg.Width, cfg.Height); err != nil {
 		return nil, j.fail(err)
 	}
@@ -185,11 +191,12 @@ func (o *occlusionFlags) run(j *invocation) (*occlusionResult, int) {
 			targets = append(targets, v)
 		}
 	}
+	start := time.Now()
 	occ, fit, err := j.ws.Occlude(j.ctx, img, set, targets, j.progressFunc("occluding"))
 	if err != nil {
 		return nil, j.fail(err)
 	}
-	return &occlusionResult{occ: occ, fit: fit, image: o.image, set: set}, exitOK
+	return &occlusionResult{occ: occ, fit: fit, image: o.image, set: set, seconds: time.Since(start).Seconds()}, exitOK
 }
 
 // The JSON form of `fovea occlude`: the first target at the top
@@ -199,6 +206,18 @@ type occlusionDoc struct {
 	Image string `json:"image,omitempty"`
 	occlusionTarget
 	Versus *occlusionTarget `json:"versus,omitempty"`
+	// Method says how the scores were computed and why; Seconds is the
+	// occlusion's wall time, without opening the model.
+	Method  methodDoc `json:"method"`
+	Seconds float64   `json:"seconds"`
+}
+
+// methodDoc: "incremental" (the clean image's activations reused, only what
+// the patch can change recomputed) or "every-image"; both give the same
+// scores.
+type methodDoc struct {
+	Name string `json:"name"`
+	Why  string `json:"why"`
 }
 
 type occlusionTarget struct {
@@ -236,7 +255,8 @@ func occlusionJSON(j *invocation, r *occlusionResult) occlusionDoc {
 			Width: o.Width, Height: o.Height, Ys: o.Ys, Xs: o.Xs, Scores: o.Scores,
 		}
 	}
-	d := occlusionDoc{Model: j.ws.Name(), Image: r.image, occlusionTarget: t(r.occ[0])}
+	d := occlusionDoc{Model: j.ws.Name(), Image: r.image, occlusionTarget: t(r.occ[0]),
+		Method: methodDoc{r.occ[0].Method, r.occ[0].MethodWhy}, Seconds: r.seconds}
 	if len(r.occ) > 1 {
 		v := t(r.occ[1])
 		d.Versus = &v

@@ -668,6 +668,10 @@ type occDoc struct {
 	Xs     []int       `json:"xs"`
 	Scores [][]float64 `json:"scores"`
 	Versus *occDoc     `json:"versus"`
+	Method struct {
+		Name, Why string
+	} `json:"method"`
+	Seconds *float64 `json:"seconds"`
 }
 
 func TestCLIOcclude(t *testing.T) {
@@ -720,6 +724,19 @@ func TestCLIOcclude(t *testing.T) {
 	}
 	samePixels(t, "occlude PNG vs viz.RenderOcclusion", got, viz.RenderOcclusion(lib.fit, want, viz.HeatOptions{Captions: true}), 0)
 	golden(t, "occlude_versus.png", got)
+
+	// --json says which method ran and why, and how long the occlusion
+	// took; --no-reuse forces running every occluded image. The demo is too
+	// small to gain from incremental occlusion, so both run every image.
+	if doc.Method.Name != "every-image" || doc.Method.Why == "" || doc.Seconds == nil || *doc.Seconds <= 0 {
+		t.Errorf("method %+v seconds %v: want every-image with a reason and a positive time", doc.Method, doc.Seconds)
+	}
+	doc = occDoc{}
+	decodeJSON(t, mustRun(t, "occlude", "--model", d.model, "--image", d.image, "--patch", "16", "--stride", "8", "--no-reuse", "--json"), &doc)
+	if doc.Method.Name != "every-image" || !strings.Contains(doc.Method.Why, "no reuse") {
+		t.Errorf("--no-reuse: method %+v", doc.Method)
+	}
+	check("--no-reuse", &doc, want[0])
 
 	// Without --class the target is the predicted class; the default patch
 	// and stride depend on the input size only.

@@ -71,7 +71,21 @@ type OcclusionSettings struct {
 	Patch, Stride int   // side of the square patch and step between positions, in input pixels
 	Fill          Fill  // FillGrey, FillMean, FillBlur or FillZero
 	Score         Score // ScoreProbability, ScoreLogit or ScoreLogProb
+	// NoReuse runs every occluded image through the whole model even where
+	// incremental occlusion (which reuses the clean image's activations
+	// and gives the same scores) would be faster.
+	NoReuse bool
 }
+
+// Occlusion methods (Occlusion.Method).
+const (
+	// MethodEveryImage runs every occluded image through the whole model.
+	MethodEveryImage = "every-image"
+	// MethodIncremental runs the clean image once and, for each position,
+	// recomputes only the part of the early activation maps that the patch
+	// can change.
+	MethodIncremental = "incremental"
+)
 
 // Occlusion is the result of one occlusion run for one target class.
 type Occlusion struct {
@@ -103,6 +117,9 @@ type Occlusion struct {
 	// where it raised it.
 	Scores        [][]float64
 	Width, Height int // the image's size in pixels (the model's input size)
+	// Method is how the scores were computed (MethodEveryImage or
+	// MethodIncremental; both give the same scores) and MethodWhy why.
+	Method, MethodWhy string
 }
 
 // Unit is the unit of the scores, for legends: "drop in probability",

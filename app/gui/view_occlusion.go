@@ -279,6 +279,7 @@ func (v *occlusionView) show(occ []*viz.Occlusion, pic *image.NRGBA, set viz.Occ
 			break
 		}
 	}
+	add(" "+methodText(occ[0]), widget.RichTextStyleInline)
 	v.verdict.Segments = segs
 	v.verdict.Refresh()
 }
@@ -344,4 +345,16 @@ func scoreNoun(score viz.Score) string {
 		return "log-probability"
 	}
 	return "probability"
+}
+
+// methodText says how the heatmap was computed; both methods give the same
+// scores, so this is about time, not about trust.
+func methodText(o *viz.Occlusion) string {
+	switch o.Method {
+	case viz.MethodIncremental:
+		return "(Computed incrementally: the clean image's activations were reused and only what each patch can change was recomputed; " + o.MethodWhy + ".)"
+	case viz.MethodEveryImage:
+		return "(Computed by running every occluded image: " + o.MethodWhy + ".)"
+	}
+	return ""
 }

@@ -360,3 +360,56 @@ func processCPU() (d time.Duration, ok bool) {
 	}
 	return time.Duration(ut+st) * 10 * time.Millisecond, true
 }
+
+// BenchmarkIncrementalRatio reports incremental occlusion's time over that
+// of running every occluded image (Occlude with NoReuse), same session, same
+// positions, interleaved: goals at most 1.00 for the demo, 0.70 for the
+// ResNet-18-sized network and 0.40 for the VGG-16-sized one (the last only
+// when $FOVEA_BENCH_MODELS holds vgg16.onnx, as make bench writes it). The
+// incremental side includes cutting the sub-models, opening their
+// sessions, the clean pass and the measurement that picks the stages.
+func BenchmarkIncrementalRatio(b *testing.B) {
+	benchORT(b)
+	cases := benchCases(b)
+	if p := filepath.Join(benchModelDir(b), "vgg16.onnx"); os.Getenv("FOVEA_BENCH_MODELS") != "" {
+		if _, err := os.Stat(p); err == nil {
+			cases = append(cases, benchCase{name: "vgg16", path: p, patch: benchResNetPatch, stride: benchResNetStride})
+		}
+	}
+	for _, bc := range cases {
+		b.Run(fmt.Sprintf("%s/stride%d", bc.name, bc.stride), func(b *testing.B) { incrementalRatio(b, bc) })
+		if bc.name != "vgg16" {
+			bc.stride = 8
+			b.Run(fmt.Sprintf("%s/stride%d", bc.name, bc.stride), func(b *testing.B) { incrementalRatio(b, bc) })
+		}
+	}
+}
+
+func incrementalRatio(b *testing.B, bc benchCase) {
+	ctx := context.Background()
+	m, cfg := benchOpen(b, bc.path)
+	s, err := infer.NewSession(m, infer.Options{})
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer s.Close()
+	img := prep.Fit(benchPicture(cfg.Width, cfg.Height, 1), cfg)
+	set := viz.OcclusionSettings{Patch: bc.patch, Stride: bc.stride}
+	every := set
+	every.NoReuse = true
+	var method string
+	run := func(set viz.OcclusionSettings) func() {
+		return func() {
+			o, err := Occlude(ctx, s, cfg, img, set, nil, nil)
+			if err != nil {
+				b.Fatal(err)
+			}
+			if !set.NoReuse {
+				method = o[0].Method + ": " + o[0].MethodWhy
+			}
+		}
+	}
+	p := interleave(b, run(every), run(set))
+	p.report(b, "incremental/every", false, 1)
+	b.Log(method)
+}

@@ -193,6 +193,49 @@ func Occlude(ctx context.Context, s *infer.Session, c prep.Config, img *image.NR
 	}
 	report(1)
 
+	// score records the scores of position p from image i of a run.
+	score := func(p int, res *infer.Result, i int) error {
+		if row := res.Scores(i); len(row) != k {
+			return fmt.Errorf("viz: occlusion: the model returned %d scores for an occluded image but %d for the original", len(row), k)
+		}
+		v := sc.score(res, i)
+		for _, o := range out {
+			o.Scores[p/len(xs)][p%len(xs)] = o.Base - v[o.Target]
+		}
+		return nil
+	}
+
+	// Dispatch: incremental occlusion where the model has something to
+	// gain and its graph can be cut, every occluded image otherwise.
+	method, why := viz.MethodEveryImage, "asked for (no reuse)"
+	if !set.NoReuse {
+		inc, reason, err := newIncremental(ctx, s, set, base, fill, ys, xs)
+		if err != nil {
+			return nil, err
+		}
+		if inc != nil {
+			defer inc.close()
+			if err := inc.rows(ctx, score, func(done int) { report(1 + done) }); err != nil {
+				if ctx.Err() != nil {
+					return nil, ctx.Err()
+				}
+				return nil, fmt.Errorf("viz: occlusion: %w", err)
+			}
+			method, why = viz.MethodIncremental, inc.why
+			if inc.k == 0 {
+				method = viz.MethodEveryImage
+			}
+			for _, o := range out {
+				o.Method, o.MethodWhy = method, why
+			}
+			return out, nil
+		}
+		why = reason
+	}
+	for _, o := range out {
+		o.Method, o.MethodWhy = method, why
+	}
+
 	// Batch slots hold the base tensor with at most one patch applied; the
 	// previous patch is restored from base before the next one is written,
 	// so each image costs two patch copies instead of a full tensor.
@@ -234,14 +277,9 @@ func Occlude(ctx context.Context, s *infer.Session, c prep.Config, img *image.NR
 		if err != nil {
 			return nil, err
 		}
-		for i, row := range rows {
-			if len(row) != k {
-				return nil, fmt.Errorf("viz: occlusion: the model returned %d scores for an occluded image but %d for the original", len(row), k)
-			}
-			p := start + i
-			v := sc.score(res, i)
-			for _, o := range out {
-				o.Scores[p/len(xs)][p%len(xs)] = o.Base - v[o.Target]
+		for i := range rows {
+			if err := score(start+i, res, i); err != nil {
+				return nil, err
 			}
 		}
 		report(1 + start + n)

@@ -175,9 +175,17 @@ func rows(demo string) []row {
 	perImage := func(m map[string]float64) string {
 		return fmt.Sprintf("%.0f images, plain %.2f ms/image", m["images"], m["plain-ms/image"])
 	}
+	pairsOf := func(m map[string]float64) string {
+		return fmt.Sprintf("%.0f pairs, range %.2f–%.2f", m["pairs"], m["min-ratio"], m["max-ratio"])
+	}
 	out := []row{
 		{"occlusion / plain batched inference, same images", demo, "BenchmarkOcclusionRatio/demo", "occlusion/plain", 1.10, true, perImage},
 		{"occlusion / plain batched inference, same images", "ResNet-18 224×224 (patch 32, stride 16)", "BenchmarkOcclusionRatio/resnet18", "occlusion/plain", 1.10, true, perImage},
+		{"incremental occlusion / every occluded image, same positions", demo + ", stride 4", "BenchmarkIncrementalRatio/demo/stride4", "incremental/every", 1.00, true, pairsOf},
+		{"incremental occlusion / every occluded image, same positions", demo + ", stride 8", "BenchmarkIncrementalRatio/demo/stride8", "incremental/every", 1.00, true, pairsOf},
+		{"incremental occlusion / every occluded image, same positions", "ResNet-18 224×224 (patch 32, stride 16)", "BenchmarkIncrementalRatio/resnet18/stride16", "incremental/every", 0.70, true, pairsOf},
+		{"incremental occlusion / every occluded image, same positions", "ResNet-18 224×224 (patch 32, stride 8)", "BenchmarkIncrementalRatio/resnet18/stride8", "incremental/every", 0.70, true, pairsOf},
+		{"incremental occlusion / every occluded image, same positions", "VGG-16 224×224 (patch 32, stride 16)", "BenchmarkIncrementalRatio/vgg16/stride16", "incremental/every", 0.40, true, pairsOf},
 		{"run returning every activation map / plain run", demo, "BenchmarkCaptureRatio", "capture/plain", 1.3, true, func(m map[string]float64) string {
 			return fmt.Sprintf("plain %.2f ms/run", m["plain-µs/op"]/1000)
 		}},
