@@ -369,10 +369,10 @@ func processCPU() (d time.Duration, ok bool) {
 // incremental side includes cutting the sub-models, opening their
 // sessions, the clean pass and the measurement that picks the stages.
 func BenchmarkIncrementalRatio(b *testing.B) {
-	benchORT(b)
+	testkit.NeedRuntime(b)
 	cases := benchCases(b)
-	if p := filepath.Join(benchModelDir(b), "vgg16.onnx"); os.Getenv("FOVEA_BENCH_MODELS") != "" {
-		if _, err := os.Stat(p); err == nil {
+	if d := os.Getenv("FOVEA_BENCH_MODELS"); d != "" {
+		if p := filepath.Join(d, "vgg16.onnx"); fileExists(p) {
 			cases = append(cases, benchCase{name: "vgg16", path: p, patch: benchResNetPatch, stride: benchResNetStride})
 		}
 	}
@@ -412,4 +412,9 @@ func incrementalRatio(b *testing.B, bc benchCase) {
 	p := interleave(b, run(every), run(set))
 	p.report(b, "incremental/every", false, 1)
 	b.Log(method)
+}
+
+func fileExists(p string) bool {
+	_, err := os.Stat(p)
+	return err == nil
 }

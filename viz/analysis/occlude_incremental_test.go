@@ -20,6 +20,7 @@ import (
 	"fovea/modelio/infer"
 	"fovea/modelio/onnxbuild"
 	"fovea/modelio/prep"
+	"fovea/modelio/testkit"
 	"fovea/viz"
 )
 
@@ -176,7 +177,7 @@ func buildModel(t *testing.T, b *onnxbuild.Builder, name string) *modelio.Model 
 }
 
 func TestIncrementalDemo(t *testing.T) {
-	initRuntime(t)
+	testkit.NeedRuntime(t)
 	m, err := modelio.Open(benchDemoFile)
 	if err != nil {
 		t.Fatal(err)
@@ -197,7 +198,7 @@ func TestIncrementalDemo(t *testing.T) {
 // the size a trained network has.
 
 func TestIncrementalResNet18(t *testing.T) {
-	initRuntime(t)
+	testkit.NeedRuntime(t)
 	b := onnxbuild.ResNet18(onnxbuild.Random, "N", 10)
 	heScale(b)
 	calmLogits(b, 0.03)
@@ -207,7 +208,7 @@ func TestIncrementalResNet18(t *testing.T) {
 }
 
 func TestIncrementalVGG16(t *testing.T) {
-	initRuntime(t)
+	testkit.NeedRuntime(t)
 	b := onnxbuild.VGG16(onnxbuild.Random, "N", 10)
 	heScale(b)
 	calmLogits(b, 0.03)
@@ -218,7 +219,7 @@ func TestIncrementalVGG16(t *testing.T) {
 // TestIncrementalDepthwise: depthwise (one group per channel) and dilated
 // convolutions, as in MobileNet (Howard et al. 2017).
 func TestIncrementalDepthwise(t *testing.T) {
-	initRuntime(t)
+	testkit.NeedRuntime(t)
 	b := onnxbuild.New(13, onnxbuild.Random)
 	x := b.Input("image", onnxbuild.Float, "N", 3, 48, 48)
 	x = b.Relu(b.Conv(x, 3, 8, 3, 1, 1))
@@ -241,7 +242,7 @@ func TestIncrementalDepthwise(t *testing.T) {
 // TestIncrementalConcat: branches concatenated along the channels, as in
 // an Inception module (Szegedy et al. 2015).
 func TestIncrementalConcat(t *testing.T) {
-	initRuntime(t)
+	testkit.NeedRuntime(t)
 	b := onnxbuild.New(13, onnxbuild.Random)
 	x := b.Input("image", onnxbuild.Float, "N", 3, 40, 40)
 	a := b.Relu(b.Conv(x, 3, 8, 3, 1, 1))
@@ -264,7 +265,7 @@ func TestIncrementalConcat(t *testing.T) {
 // TestIncrementalNHWC: an input in height-width-channel order, transposed
 // by the model, on a non-square image with odd sizes.
 func TestIncrementalNHWC(t *testing.T) {
-	initRuntime(t)
+	testkit.NeedRuntime(t)
 	b := onnxbuild.New(13, onnxbuild.Random)
 	x := b.Input("image", onnxbuild.Float, "N", 37, 45, 3)
 	x = b.Op("Transpose", []string{x}, onnxbuild.Ints("perm", 0, 3, 1, 2))
