@@ -192,7 +192,7 @@ func (v *mapsView) drawOverlay() {
 		v.overlay.set(nil)
 		return
 	}
-	pic, err := u.acts.OverlayPicture(l.Output, ch, 0.7, 0)
+	pic, err := u.acts.OverlayPicture(l.Output, ch, 0.7, 0, v.perTile.Checked)
 	if err != nil {
 		v.overlay.set(nil)
 		v.stats.SetText(err.Error())
