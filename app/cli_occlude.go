@@ -16,10 +16,12 @@ var occludeCommand = &command{
 	many:    true,
 	summary: "occlusion sensitivity: which parts of the image the score depends on (PNG or JSON)",
 	about: `Hides one square patch of the image at a time and measures how much the score of
-the target class drops (Zeiler & Fergus 2014). The heatmap is drawn over the image
-as the model saw it (after resizing): orange where hiding the patch lowered the
-score, blue where it raised it. With --versus the second class's map is drawn beside the first
-on the same scale.
+the target class drops (Zeiler & Fergus 2014). The picture shows, for each class, the
+heatmap on its own (orange where hiding the patch lowered the score, blue where it
+raised it, white for no change; every colour reads on the bar below) beside the image
+as the model saw it, in colour (--grey for grey), with a solid line where the drop
+reaches half the scale and a dashed one where the rise does. With --expected the
+class the image should have been is drawn beside the predicted one, on the same scale.
 
 With several images or a folder, the model is opened once, each image's overlay is
 written to --out-dir as NAME.occlusion.png and --json prints one object per line.
@@ -85,7 +87,7 @@ The map is evidence about this model on this image, not proof of what it looks a
 				return code
 			}
 			if *out != "" {
-				img := viz.RenderOcclusion(res.fit, res.occ, viz.HeatOptions{Captions: true})
+				img := viz.RenderOcclusion(res.fit, res.occ, viz.HeatOptions{Captions: true, Grey: o.grey})
 				if code := j.writePNG(*out, img); code != exitOK {
 					return code
 				}
@@ -118,6 +120,7 @@ type occlusionFlags struct {
 	image, class, versus string
 	patch, stride        int
 	fill, score          string
+	grey                 bool
 }
 
 func (o *occlusionFlags) declare(fs *flag.FlagSet) {
@@ -127,6 +130,7 @@ func (o *occlusionFlags) declare(fs *flag.FlagSet) {
 	fs.IntVar(&o.patch, "patch", 0, "side of the hidden square in input `PIXELS` (default: a sixth of the shorter side)")
 	fs.IntVar(&o.stride, "stride", 0, "step between patch positions in `PIXELS` (default: half the patch)")
 	fs.StringVar(&o.fill, "fill", string(viz.FillGrey), "`FILL` of the hidden patch: grey (0.5 on the 0-1 pixel scale, before normalisation), mean, blur or zero")
+	fs.BoolVar(&o.grey, "grey", false, "draw the image beside the heatmap in grey (default: in colour, as the model saw it)")
 	fs.StringVar(&o.score, "score", string(viz.ScoreProbability), "`SCORE` compared with and without the patch: probability, logit (the logits, also those before a final Softmax) or logprob (log-probability)")
 }
 

@@ -91,7 +91,7 @@ func reportOne(j *job, o *occlusionFlags, out string, k int, when time.Time, asJ
 	}
 	page, content, err := j.ws.ReportPage(j.ctx, core.ReportInput{
 		Image: img, ImageName: filepath.Base(o.image), K: k, Versus: versus,
-		Occlusion: res.set, Occlusions: res.occ, Date: when,
+		Occlusion: res.set, Occlusions: res.occ, Date: when, Grey: o.grey,
 	}, nil)
 	if err != nil {
 		return j.fail(err)

@@ -231,3 +231,18 @@ func lastDigit(label string) float64 {
 	}
 	return unit
 }
+
+// TestBarTicksKeepClearOfEnds: the occlusion bar of the demo's coil-spring
+// image ran −0.69…0.69 with step 0.2 and printed "−0.69 −0.6" side by side.
+// Inner ticks now keep at least half a step from each end: −0.6 and 0.6
+// (0.09 from the ends, under 0.1) go, −0.4 … 0.4 stay.
+func TestBarTicksKeepClearOfEnds(t *testing.T) {
+	var got []string
+	for _, m := range barTicks(-0.69, 0.69, 7) {
+		got = append(got, m.label)
+	}
+	want := []string{"-0.69", "-0.4", "-0.2", "0", "0.2", "0.4", "0.69"}
+	if strings.Join(got, " ") != strings.Join(want, " ") {
+		t.Errorf("ticks %v, want %v", got, want)
+	}
+}

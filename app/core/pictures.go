@@ -51,16 +51,16 @@ func (a *Activations) MapPicture(layer string, o viz.GridOptions) (*image.NRGBA,
 	if !(lo < hi) { // every value the same (often all zero): give the legend a range
 		hi = lo + 1
 	}
-	unit := fmt.Sprintf("activation · one scale shared across the layer's %d channels", len(stats))
+	unit := "activation, scale shared across the layer"
 	if len(stats) == 1 {
 		unit = "activation"
 	}
 	if o.PerTile {
 		lo, hi = 0, 1
-		unit = "activation ÷ the tile's own peak · each tile on its own scale"
+		unit = "activation ÷ each tile's own peak"
 		if signedLayer(stats) {
 			lo = -1
-			unit = "activation ÷ the tile's own largest |value| · each tile on its own scale"
+			unit = "activation ÷ each tile's own largest |value|"
 		}
 	}
 	// The tiles move with the grid onto the page: Rect says where each is
@@ -150,7 +150,7 @@ func (a *Activations) OverlayPicture(layer string, channel int, opacity float64,
 	}
 	layerLo, layerHi := viz.MapRange(all)
 	lo, hi := layerLo, layerHi
-	whose := "the layer's shared scale"
+	whose := "scale shared across the layer"
 	if perTile {
 		lo, hi = viz.OwnRange(layerLo, all[channel])
 		whose = "this channel's own scale"
@@ -176,5 +176,5 @@ func (a *Activations) OverlayPicture(layer string, channel int, opacity float64,
 	if factor <= 0 {
 		factor = max(1, 256/max(1, ov.Bounds().Dx()))
 	}
-	return withLegend(Enlarge(ov, factor), barLo, hi, fmt.Sprintf("channel %d of %s · %s", channel, l.Name, whose), cmap), nil
+	return withLegend(Enlarge(ov, factor), barLo, hi, fmt.Sprintf("channel %d, %s", channel, whose), cmap), nil
 }

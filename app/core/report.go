@@ -28,6 +28,9 @@ type ReportInput struct {
 	// Versus.
 	Occlusions []*viz.Occlusion
 	Date       time.Time // printed on the page; zero = now
+	// Grey draws the image under the heatmap's lines in grey instead of in
+	// colour.
+	Grey bool
 }
 
 // ReportContent is what a report page states, in the form `report --json`
@@ -125,7 +128,7 @@ func (w *Workspace) ReportPage(ctx context.Context, in ReportInput, progress fun
 	factor := max(1, 256/max(1, max(cl.Input.Bounds().Dx(), cl.Input.Bounds().Dy())))
 	panels := make([]viz.Panel, len(occ))
 	for i, o := range occ {
-		heat := viz.OverlayScores(cl.Input, o.Scores, o.Ys, o.Xs, o.Patch, scale, 0.6)
+		heat := viz.OcclusionPair(cl.Input, o, scale, factor, in.Grey)
 		role := "class asked for"
 		switch {
 		case o.Target == cl.Top[0].Index:
@@ -133,10 +136,12 @@ func (w *Workspace) ReportPage(ctx context.Context, in ReportInput, progress fun
 		case in.Versus >= 0 && o.Target == in.Versus:
 			role = "expected"
 		}
-		panels[i] = viz.Panel{Image: Enlarge(heat, factor),
+		panels[i] = viz.Panel{Image: heat,
 			Caption: fmt.Sprintf("%s (%s), probability %.1f%%", className(labels, o.Target), role, 100*o.Probability)}
 	}
-	legend := viz.ColorBar(480, 56, -scale, scale, occ[0].Unit(), viz.Diverging)
+	// 100 pixels high: labels of 20 px, about 9.6 pt at the page's 150 dpi,
+	// legible in print.
+	legend := viz.ColorBar(900, 100, -scale, scale, occ[0].Unit(), viz.Diverging)
 
 	expected := ""
 	if in.Versus >= 0 {
@@ -156,6 +161,7 @@ func (w *Workspace) ReportPage(ctx context.Context, in ReportInput, progress fun
 		"labels         " + labelsFrom,
 		fmt.Sprintf("occlusion      patch %d px, stride %d px, fill %s, score %s", set.Patch, set.Stride, set.Fill, occ[0].Unit()),
 		"scored         " + occ[0].SourceNote,
+		fmt.Sprintf("lines          on the image where the %s reaches %.2g (solid) or %.2g (dashed)", occ[0].Unit(), scale/2, -scale/2),
 	}
 	for _, o := range occ {
 		if o.Saturated() {

@@ -34,11 +34,14 @@ type occlusionView struct {
 	// is saturated (viz.Occlusion.Saturated); hidden otherwise.
 	switchBtn *widget.Button
 	switchTo  viz.Score
-	pic       *picture
-	verdict   *widget.RichText
-	caution   *widget.Label
+	// grey draws the image beside the heatmap in grey (colour by default).
+	grey    *widget.Check
+	pic     *picture
+	verdict *widget.RichText
+	caution *widget.Label
 
-	classes []int // class index of each expect option after the first ("none")
+	classes []int        // class index of each expect option after the first ("none")
+	fit     *image.NRGBA // the image the shown occlusion was computed on
 	set     viz.OcclusionSettings
 	expectN int // the expected class of the shown result, -1 none
 	runs    int // occlusions shown so far (tests read it)
@@ -75,6 +78,7 @@ func newOcclusionView(u *ui) *occlusionView {
 	v.runBtn = widget.NewButtonWithIcon("Run occlusion", theme.MediaPlayIcon(), v.run)
 	v.runBtn.Importance = widget.HighImportance
 	v.exportBtn = widget.NewButtonWithIcon("Export picture…", theme.DocumentSaveIcon(), v.export)
+	v.grey = widget.NewCheck("Grey image", func(bool) { v.redraw() })
 	v.pic = newPicture(fyne.NewSize(360, 240), 2)
 	v.verdict = widget.NewRichText()
 	v.caution = widget.NewLabel(cautionText)
@@ -86,7 +90,7 @@ func newOcclusionView(u *ui) *occlusionView {
 	}
 	settings := container.NewHBox(
 		widget.NewLabel("Patch"), num(v.patch), widget.NewLabel("px   Step"), num(v.stride), widget.NewLabel("px   Fill"), v.fill,
-		widget.NewLabel("Score"), v.score)
+		widget.NewLabel("Score"), v.score, v.grey)
 	question := container.NewBorder(nil, nil, widget.NewLabel("Should have been"), container.NewHBox(v.runBtn, v.exportBtn), v.expect)
 	v.content = container.NewBorder(
 		container.NewVBox(settings, question, v.jobs.box, v.verdict, container.NewHBox(v.switchBtn)),
@@ -231,9 +235,11 @@ func (v *occlusionView) run() {
 		if err != nil {
 			return nil, err
 		}
-		pic := viz.RenderOcclusion(fit, occ, viz.HeatOptions{Captions: true})
+		grey := v.grey.Checked
+		pic := viz.RenderOcclusion(fit, occ, viz.HeatOptions{Captions: true, Grey: grey})
 		return func(current bool) {
 			if current {
+				v.fit = fit
 				v.show(occ, pic, set, exp)
 			}
 		}, nil
@@ -283,6 +289,16 @@ func (v *occlusionView) show(occ []*viz.Occlusion, pic *image.NRGBA, set viz.Occ
 	v.verdict.Refresh()
 }
 
+// redraw draws the shown occlusion again (the grey/colour choice changed).
+func (v *occlusionView) redraw() {
+	u := v.u
+	if u.occ == nil || v.fit == nil {
+		return
+	}
+	u.occPic = viz.RenderOcclusion(v.fit, u.occ, viz.HeatOptions{Captions: true, Grey: v.grey.Checked})
+	v.pic.set(u.occPic)
+}
+
 // switchScore reruns the occlusion with the score a saturation warning
 // suggested.
 func (v *occlusionView) switchScore() {
@@ -313,7 +329,7 @@ func (v *occlusionView) export() {
 	imgName := u.imgName
 	base := strings.TrimSuffix(imgName, filepath.Ext(imgName))
 	u.saveDialog("Export the explanation picture", base+"-explained.png", []string{".png"}, func(path string) {
-		v.writeReport(path, core.ReportInput{Image: img, ImageName: imgName, Versus: exp, Occlusion: set, Occlusions: occ})
+		v.writeReport(path, core.ReportInput{Image: img, ImageName: imgName, Versus: exp, Occlusion: set, Occlusions: occ, Grey: v.grey.Checked})
 	})
 }
 
