@@ -25,6 +25,10 @@ type HeatOptions struct {
 	Grey bool
 	// Captions writes each panel's class label and probability under it.
 	Captions bool
+	// NoCaution leaves the package's Caution out of the notes under the
+	// picture, for a caller that shows it once beside the picture (the
+	// window does); a picture that is saved or shared keeps it.
+	NoCaution bool
 	// Zoom enlarges the image by this whole factor (nearest neighbour, so
 	// the model's pixels stay visible); 0 picks the smallest factor that
 	// makes the larger side at least 256 pixels.
@@ -138,8 +142,11 @@ func renderOcclusion(base image.Image, occ []*Occlusion, o HeatOptions) (*image.
 	width = max(width, 2*heatMargin+heatMinBar)
 	inner := width - 2*heatMargin
 	r0 := occ[0]
-	text := fmt.Sprintf("Left of each pair: the %s, each colour read on the bar. Right: the image the model saw, with lines where it reaches %s (solid) and %s (dashed). Patch %d px, stride %d px, %s fill. %s",
-		r0.Unit(), levelLabel(level, scale), levelLabel(-level, scale), r0.Patch, r0.Stride, r0.Fill, Caution)
+	text := fmt.Sprintf("Left of each pair: the %s, each colour read on the bar. Right: the image the model saw, with lines where it reaches %s (solid) and %s (dashed). Patch %d px, stride %d px, %s fill.",
+		r0.Unit(), levelLabel(level, scale), levelLabel(-level, scale), r0.Patch, r0.Stride, r0.Fill)
+	if !o.NoCaution {
+		text += " " + Caution
+	}
 	for _, r := range occ {
 		// Beside the heatmap it concerns: a saturated probability says
 		// little, and the note says what to score instead.

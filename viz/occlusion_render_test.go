@@ -237,3 +237,17 @@ func TestGoldenOcclusion(t *testing.T) {
 	}
 	checkGolden(t, "occlusion_render.png", RenderOcclusion(goldenBase(), []*Occlusion{first, &second}, HeatOptions{Captions: true}))
 }
+
+// TestRenderOcclusionNoCaution: the window shows the caution once beside
+// the picture, so NoCaution leaves it out of the notes; a picture made
+// for saving keeps it. The caution is two lines or more at this width, so
+// the picture without it is shorter.
+func TestRenderOcclusionNoCaution(t *testing.T) {
+	base := uniformImage(32, 32, color.NRGBA{128, 128, 128, 255})
+	occ := []*Occlusion{fakeOcclusion(32, 32, 8, 8, 0.1, 1, "")}
+	with := RenderOcclusion(base, occ, HeatOptions{})
+	without := RenderOcclusion(base, occ, HeatOptions{NoCaution: true})
+	if without.Rect.Dy() >= with.Rect.Dy() {
+		t.Errorf("without the caution %v, with it %v: want shorter", without.Rect, with.Rect)
+	}
+}

@@ -50,7 +50,9 @@ type occlusionView struct {
 // noExpected is the first choice of the expected-class select.
 const noExpected = "(none: predicted class only)"
 
-// cautionText goes under every heatmap: a heatmap is easy to over-read.
+// cautionText goes once under the heatmap, which is drawn without the
+// picture's own copy of it (viz.HeatOptions.NoCaution): a heatmap is easy
+// to over-read. An exported picture carries it itself.
 const cautionText = "Evidence about this model on this image, not proof. The colours show where hiding a patch changed the score, " +
 	"not why the model decided; other settings or images can tell a different story. Do not base safety-critical decisions on it without proper validation."
 
@@ -236,7 +238,7 @@ func (v *occlusionView) run() {
 			return nil, err
 		}
 		grey := v.grey.Checked
-		pic := viz.RenderOcclusion(fit, occ, viz.HeatOptions{Captions: true, Grey: grey})
+		pic := viz.RenderOcclusion(fit, occ, viz.HeatOptions{Captions: true, Grey: grey, NoCaution: true})
 		return func(current bool) {
 			if current {
 				v.fit = fit
@@ -295,7 +297,7 @@ func (v *occlusionView) redraw() {
 	if u.occ == nil || v.fit == nil {
 		return
 	}
-	u.occPic = viz.RenderOcclusion(v.fit, u.occ, viz.HeatOptions{Captions: true, Grey: v.grey.Checked})
+	u.occPic = viz.RenderOcclusion(v.fit, u.occ, viz.HeatOptions{Captions: true, Grey: v.grey.Checked, NoCaution: true})
 	v.pic.set(u.occPic)
 }
 
