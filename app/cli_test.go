@@ -22,6 +22,7 @@ import (
 	"flag"
 	"fmt"
 	"image"
+	"image/draw"
 	"image/png"
 	"math"
 	"os"
@@ -539,7 +540,12 @@ func TestCLIFilters(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	samePixels(t, "filters vs viz.Tiles", got, want, 0)
+	// The tiles at (8, 8), the colour legend under them (core.Tiles).
+	samePixels(t, "filters vs viz.Tiles", cropTo(got, want.Bounds().Add(image.Pt(8, 8))), want, 0)
+	legendRow := got.Bounds().Dy() - 56 - 8 + 10 // inside the bar (56 px high, 8 px margin)
+	if c := got.NRGBAAt(8+180, legendRow); c == viz.Light {
+		t.Errorf("no colour legend under the tiles (pixel %v at row %d)", c, legendRow)
+	}
 	if doc.Layer != k.Node || len(doc.Tiles) != k.M || len(info) != k.M {
 		t.Fatalf("layer %q with %d tiles; the first conv is %q with %d filters", doc.Layer, len(doc.Tiles), k.Node, k.M)
 	}
@@ -576,7 +582,7 @@ func TestCLIFilters(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	samePixels(t, "filters --layer "+second, readPNG(t, out2), w2, 0)
+	samePixels(t, "filters --layer "+second, cropTo(readPNG(t, out2), w2.Bounds().Add(image.Pt(8, 8))), w2, 0)
 	_, errs, code := runCLI(t, "filters", "--model", d.model, "--layer", "no such layer", "--out", out2)
 	if code != exitUsage || !strings.Contains(errs, "no such layer") {
 		t.Errorf("--layer 'no such layer': exit %d, %q; want 2 naming it", code, errs)
@@ -1287,4 +1293,11 @@ func golden(t *testing.T, name string, got *image.NRGBA) {
 		core.SavePNG(failed, got)
 		t.Logf("the picture made now is in %s", failed)
 	}
+}
+
+// cropTo copies the part r of img into a picture of its own at the origin.
+func cropTo(img *image.NRGBA, r image.Rectangle) *image.NRGBA {
+	out := image.NewNRGBA(image.Rect(0, 0, r.Dx(), r.Dy()))
+	draw.Draw(out, out.Rect, img, r.Min, draw.Src)
+	return out
 }

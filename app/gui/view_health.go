@@ -294,7 +294,7 @@ func (v *healthView) drawTiles() {
 	if k.C != 3 && k.C != 1 {
 		slice = 0
 	}
-	a := u.area(fyne.NewSize(0, 200))
+	a := u.area(fyne.NewSize(0, 280)) // 80 of them for the colour legend under the tiles
 	cols, cell := gridFit(k.M, max(k.KH, k.KW), 14, fyne.NewSize(a.Width*0.34, a.Height), 24)
 	img, info, err := u.ws.Tiles(v.conv, viz.TileOptions{Cell: max(2, cell), Columns: cols, Slice: slice}, u.scan)
 	if err != nil {
