@@ -30,6 +30,19 @@ type command struct {
 	many bool
 }
 
+// windowPlace says where the window does each command's job: the tabs
+// and commands keep their own names (a tab names what it shows, a command
+// what it does), and `fovea help` and each --help say which is which.
+var windowPlace = map[string]string{
+	"layers":   "the layer table on the left, totals on the Model tab",
+	"classify": "the Prediction tab",
+	"filters":  "the Kernels tab",
+	"maps":     "the Layer maps tab",
+	"occlude":  "the Occlusion tab",
+	"scan":     "the Filter health tab",
+	"report":   "the Occlusion tab's Export picture…",
+}
+
 // commands in the order `fovea help` lists them.
 var commands = []*command{
 	layersCommand, classifyCommand, filtersCommand, mapsCommand, occludeCommand, scanCommand, reportCommand, evaluateCommand,
@@ -331,13 +344,20 @@ func (j *job) writeJSON(v any) int {
 	return exitOK
 }
 
+// hiddenFlags are old flag names kept working for scripts but no longer
+// listed in --help (README: "Renamed").
+var hiddenFlags = map[string]bool{}
+
 // usage prints a command's help text: what it does, its own flags, then the
 // flags every command shares.
 func (cmd *command) usage(w io.Writer, fs *flag.FlagSet, cf *common) {
 	fmt.Fprintf(w, "Usage: fovea %s %s\n\n%s\n", cmd.name, cmd.args, cmd.about)
+	if place := windowPlace[cmd.name]; place != "" {
+		fmt.Fprintf(w, "\nIn the window: %s.\n", place)
+	}
 	var own, shared []*flag.Flag
 	fs.VisitAll(func(f *flag.Flag) {
-		if !cf.names[f.Name] {
+		if !cf.names[f.Name] && !hiddenFlags[f.Name] {
 			own = append(own, f)
 		}
 	})

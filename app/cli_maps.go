@@ -108,11 +108,12 @@ type mapsDoc struct {
 }
 
 // channelDoc: min, max, mean over the channel's positions on this image;
-// fires is the fraction of positions above zero.
+// active_fraction is the fraction of positions above zero (named apart from
+// scan's "fires", the fraction of probe images on which a channel fired).
 type channelDoc struct {
-	Index int     `json:"index"`
-	Min   float64 `json:"min"`
-	Max   float64 `json:"max"`
-	Mean  float64 `json:"mean"`
-	Fires float64 `json:"fires"`
+	Index          int     `json:"index"`
+	Min            float64 `json:"min"`
+	Max            float64 `json:"max"`
+	Mean           float64 `json:"mean"`
+	ActiveFraction float64 `json:"active_fraction"`
 }

@@ -12,7 +12,7 @@ import (
 
 var occludeCommand = &command{
 	name:    "occlude",
-	args:    "--image FILE (--out FILE | --json) [--class CLASS] [--versus CLASS]\n       fovea occlude IMAGE... | FOLDER (--out-dir DIR | --json) [flags]",
+	args:    "--image FILE (--out FILE | --json) [--class CLASS] [--expected CLASS]\n       fovea occlude IMAGE... | FOLDER (--out-dir DIR | --json) [flags]",
 	many:    true,
 	summary: "occlusion sensitivity: which parts of the image the score depends on (PNG or JSON)",
 	about: `Hides one square patch of the image at a time and measures how much the score of
@@ -117,7 +117,7 @@ The map is evidence about this model on this image, not proof of what it looks a
 
 // occlusionFlags are the flags of occlude and report.
 type occlusionFlags struct {
-	image, class, versus string
+	image, class, expected string
 	patch, stride        int
 	fill, score          string
 	grey                 bool
@@ -126,7 +126,9 @@ type occlusionFlags struct {
 func (o *occlusionFlags) declare(fs *flag.FlagSet) {
 	fs.StringVar(&o.image, "image", "", "image `FILE` (or give image files or a folder as arguments)")
 	fs.StringVar(&o.class, "class", "", "target `CLASS`, a label or a number (default: the predicted class)")
-	fs.StringVar(&o.versus, "versus", "", "a second `CLASS` to compare with, e.g. the one the image should have been")
+	fs.StringVar(&o.expected, "expected", "", "the `CLASS` the image should have been, drawn beside the first on the same scale")
+	fs.StringVar(&o.expected, "versus", "", "old name of --expected")
+	hiddenFlags["versus"] = true
 	fs.IntVar(&o.patch, "patch", 0, "side of the hidden square in input `PIXELS` (default: a sixth of the shorter side)")
 	fs.IntVar(&o.stride, "stride", 0, "step between patch positions in `PIXELS` (default: half the patch)")
 	fs.StringVar(&o.fill, "fill", string(viz.FillGrey), "`FILL` of the hidden patch: grey (0.5 on the 0-1 pixel scale, before normalisation), mean, blur or zero")
@@ -167,7 +169,7 @@ func (o *occlusionFlags) run(j *job) (*occlusionResult, int) {
 		return nil, j.fail(err)
 	}
 	var targets []int
-	if o.class != "" || o.versus != "" {
+	if o.class != "" || o.expected != "" {
 		first := -1
 		if o.class != "" {
 			if first, err = j.ws.ClassIndex(o.class); err != nil {
@@ -181,10 +183,10 @@ func (o *occlusionFlags) run(j *job) (*occlusionResult, int) {
 			first = cl.Top[0].Index
 		}
 		targets = append(targets, first)
-		if o.versus != "" {
-			v, err := j.ws.ClassIndex(o.versus)
+		if o.expected != "" {
+			v, err := j.ws.ClassIndex(o.expected)
 			if err != nil {
-				return nil, j.fail(fmt.Errorf("--versus: %w", err))
+				return nil, j.fail(fmt.Errorf("--expected: %w", err))
 			}
 			targets = append(targets, v)
 		}
@@ -197,12 +199,12 @@ func (o *occlusionFlags) run(j *job) (*occlusionResult, int) {
 }
 
 // The JSON form of `fovea occlude` (issue 8): the first target at the top
-// level, a --versus target under "versus" with the same fields.
+// level, an --expected target under "expected" with the same fields.
 type occlusionDoc struct {
 	Model string `json:"model,omitempty"`
 	Image string `json:"image,omitempty"`
 	occlusionTarget
-	Versus *occlusionTarget `json:"versus,omitempty"`
+	Expected *occlusionTarget `json:"expected,omitempty"`
 }
 
 type occlusionTarget struct {
@@ -243,7 +245,7 @@ func occlusionJSON(j *job, r *occlusionResult) occlusionDoc {
 	d := occlusionDoc{Model: j.ws.Name(), Image: r.image, occlusionTarget: t(r.occ[0])}
 	if len(r.occ) > 1 {
 		v := t(r.occ[1])
-		d.Versus = &v
+		d.Expected = &v
 	}
 	return d
 }

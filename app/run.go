@@ -105,7 +105,8 @@ func (c *cli) window(args []string) int {
 	fs.StringVar(&o.View, "view", "", "`VIEW` to show first")
 	fs.StringVar(&o.Theme, "theme", "", "colour theme: light or dark (default: the system's)")
 	fs.StringVar(&o.Data, "data", "", "labelled folder or list `FILE` the scorecard view evaluates at start")
-	fs.StringVar(&o.Expect, "expect", "", "`CLASS` the image should have been (name or index), for the side-by-side heatmaps")
+	fs.StringVar(&o.Expect, "expected", "", "`CLASS` the image should have been (name or index), for the side-by-side heatmaps")
+	fs.StringVar(&o.Expect, "expect", "", "old name of --expected")
 	if err := fs.Parse(args); err != nil {
 		fmt.Fprintf(c.stderr, "fovea: %v; `fovea help` lists the commands and the window's options\n", flagError(err))
 		return exitUsage
@@ -148,7 +149,7 @@ func (c *cli) help(args []string) int {
 	fmt.Fprintf(w, `Fovea shows what a trained ONNX image classifier responds to.
 
 Usage:
-  fovea [--model FILE] [--image FILE] [--expect CLASS] [--probe DIR] [--data DIR_OR_LIST] [--view VIEW] [--theme light|dark] [--ort-lib FILE] [MODEL.onnx]
+  fovea [--model FILE] [--image FILE] [--expected CLASS] [--probe DIR] [--data DIR_OR_LIST] [--view VIEW] [--theme light|dark] [--ort-lib FILE] [MODEL.onnx]
         opens the window (needs a display)
   fovea COMMAND [flags]
         does one job without a display and exits
@@ -157,6 +158,9 @@ Commands:
 `)
 	for _, cmd := range commands {
 		fmt.Fprintf(w, "  %-14s %s\n", cmd.name, cmd.summary)
+		if place := windowPlace[cmd.name]; place != "" {
+			fmt.Fprintf(w, "  %-14s (in the window: %s)\n", "", place)
+		}
 	}
 	fmt.Fprintf(w, "  %-14s %s\n", "merge", "combine the parts of `evaluate --shard K/N` into one result")
 	fmt.Fprintf(w, "  %-14s %s\n", "fetch-runtime", "download ONNX Runtime "+runtimeVersion+" into the user cache folder")

@@ -45,7 +45,7 @@ type ReportContent struct {
 	LabelsSHA256 string          `json:"labels_sha256,omitempty"` // of the label file, when they came from one
 	Preprocess   prep.Config     `json:"preprocess"`
 	Top          []ReportClass   `json:"top"`
-	Expected     *ReportClass    `json:"expected"` // the class it should have been (--versus), or null
+	Expected     *ReportClass    `json:"expected"` // the class it should have been (--expected), or null
 	Occlusion    ReportOcclusion `json:"occlusion"`
 	Heatmaps     []ReportClass   `json:"heatmaps"` // the classes whose heatmaps the page shows, in order
 	Softmax      bool            `json:"softmax_applied"`

@@ -8,7 +8,7 @@
 # Environment: FOVEA (binary, default: builds bin/fovea), FOVEA_MODEL,
 # FOVEA_IMAGE, FOVEA_PROBE (default: the embedded demo, and for the health
 # view its unhealthy twin scanning the demo's probe images, for the scorecard
-# view the same twin evaluated on them), FOVEA_EXPECT
+# view the same twin evaluated on them), FOVEA_EXPECTED
 # (the class the occlusion view explains against), SHOT_VIEWS, SHOT_THEMES,
 # SHOT_WAIT (seconds to let a view settle, default 6).
 # Needs Xvfb, ImageMagick (import, convert) and xwininfo.
@@ -57,7 +57,7 @@ for theme in $themes; do
 		# The scorecard shows the unhealthy twin's mistakes on the demo's probe images.
 		[ "$view" = scorecard ] && [ -z "${FOVEA_MODEL:-}" ] &&
 			extra+=(--model "$root/assets/demo/parts_unhealthy.onnx" --data assets/demo/probe/labels.csv)
-		[ "$view" = occlusion ] && [ -n "${FOVEA_EXPECT:-}" ] && extra+=(--expect "$FOVEA_EXPECT")
+		[ "$view" = occlusion ] && [ -n "${FOVEA_EXPECTED:-}" ] && extra+=(--expected "$FOVEA_EXPECTED")
 		rm -rf "$home/.config"  # every shot starts from no remembered state
 		"$bin" "${args[@]}" "${extra[@]}" --view "$view" --theme "$theme" >"$home/log" 2>&1 &
 		app=$!

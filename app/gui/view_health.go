@@ -137,7 +137,7 @@ func newHealthView(u *ui) *healthView {
 	bar := container.NewVBox(
 		container.NewBorder(nil, nil, widget.NewLabel("Probe images:"), nil, v.folder),
 		container.NewHBox(choose, sick, widget.NewLabel("   Rare below"),
-			container.NewGridWrap(fyne.NewSize(48, v.rare.MinSize().Height), v.rare), widget.NewLabel("%"), v.scanBtn, v.csvBtn))
+			container.NewGridWrap(fyne.NewSize(48, v.rare.MinSize().Height), v.rare), widget.NewLabel("% of images"), v.scanBtn, v.csvBtn))
 	right := container.NewBorder(v.tilesAbout, nil, nil, nil, v.tiles.box)
 	tip := note("Click a column title to sort; choose a row to see its filters.")
 	tableSide := container.NewBorder(container.NewBorder(nil, nil, v.onlyFlags, nil, tip), nil, nil, nil, v.table)

@@ -91,9 +91,9 @@ func newOcclusionView(u *ui) *occlusionView {
 		return container.NewGridWrap(fyne.NewSize(64, e.MinSize().Height), e)
 	}
 	settings := container.NewHBox(
-		widget.NewLabel("Patch"), num(v.patch), widget.NewLabel("px   Step"), num(v.stride), widget.NewLabel("px   Fill"), v.fill,
+		widget.NewLabel("Patch"), num(v.patch), widget.NewLabel("px   Stride"), num(v.stride), widget.NewLabel("px   Fill"), v.fill,
 		widget.NewLabel("Score"), v.score, v.grey)
-	question := container.NewBorder(nil, nil, widget.NewLabel("Should have been"), container.NewHBox(v.runBtn, v.exportBtn), v.expect)
+	question := container.NewBorder(nil, nil, widget.NewLabel("Expected class"), container.NewHBox(v.runBtn, v.exportBtn), v.expect)
 	v.content = container.NewBorder(
 		container.NewVBox(settings, question, v.jobs.box, v.verdict, container.NewHBox(v.switchBtn)),
 		v.caution, nil, nil, v.pic.box)
@@ -204,7 +204,7 @@ func (v *occlusionView) settings() (viz.OcclusionSettings, error) {
 	patch, err1 := strconv.Atoi(strings.TrimSpace(v.patch.Text))
 	stride, err2 := strconv.Atoi(strings.TrimSpace(v.stride.Text))
 	if err1 != nil || err2 != nil {
-		return viz.OcclusionSettings{}, fmt.Errorf("patch %q and step %q must be whole numbers of pixels", v.patch.Text, v.stride.Text)
+		return viz.OcclusionSettings{}, fmt.Errorf("patch %q and stride %q must be whole numbers of pixels", v.patch.Text, v.stride.Text)
 	}
 	set := viz.OcclusionSettings{Patch: patch, Stride: stride, Fill: viz.Fill(v.fill.Selected), Score: viz.Score(v.score.Selected)}
 	c, _ := v.u.ws.Prep()
