@@ -118,9 +118,9 @@ The map is evidence about this model on this image, not proof of what it looks a
 // occlusionFlags are the flags of occlude and report.
 type occlusionFlags struct {
 	image, class, expected string
-	patch, stride        int
-	fill, score          string
-	grey                 bool
+	patch, stride          int
+	fill, score            string
+	grey                   bool
 }
 
 func (o *occlusionFlags) declare(fs *flag.FlagSet) {
