@@ -273,21 +273,16 @@ func (j *job) fail(err error) int {
 		fmt.Fprintf(j.stderr, "fovea %s: interrupted\n", j.cmd)
 		return exitFail
 	case core.IsInput(err):
-		fmt.Fprintf(j.stderr, "fovea %s: %s\n", j.cmd, oneLine(err))
+		fmt.Fprintf(j.stderr, "fovea %s: %s\n", j.cmd, core.Message(err))
 		return exitUsage
 	}
-	fmt.Fprintf(j.stderr, "fovea %s: %s\n", j.cmd, oneLine(err))
+	fmt.Fprintf(j.stderr, "fovea %s: %s\n", j.cmd, core.Message(err))
 	return exitFail
 }
 
 // usageErr reports bad usage found after parsing.
 func (j *job) usageErr(format string, args ...any) int {
 	return j.usageError(j.cmd, format, args...)
-}
-
-// oneLine puts an error message on one line.
-func oneLine(err error) string {
-	return strings.Join(strings.Fields(strings.ReplaceAll(err.Error(), "\n", "; ")), " ")
 }
 
 // flagError rewords the flag package's parse errors in our terms.

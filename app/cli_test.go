@@ -1148,6 +1148,12 @@ func TestCLIExitStatus(t *testing.T) {
 			if strings.Contains(stderr, "panic") || strings.Contains(stderr, "goroutine") {
 				t.Errorf("fovea %q: %q", c.args, stderr)
 			}
+			// Plain words: no internal package prefix after "fovea CMD: ".
+			for _, p := range []string{"core: ", "modelio: ", "infer: ", "prep: ", "viz: ", "analysis: "} {
+				if strings.Contains(stderr, " "+p) {
+					t.Errorf("fovea %q: stderr %q shows the internal prefix %q", c.args, stderr, p)
+				}
+			}
 		}
 		for _, s := range c.needs {
 			if !strings.Contains(stderr, s) {

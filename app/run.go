@@ -122,7 +122,7 @@ func (c *cli) window(args []string) int {
 		return exitUsage
 	}
 	if err := core.Start(*ortLib); err != nil {
-		fmt.Fprintln(c.stderr, "fovea:", oneLine(err))
+		fmt.Fprintln(c.stderr, "fovea:", core.Message(err))
 		return exitUsage
 	}
 	o.ORTLib = core.Library()

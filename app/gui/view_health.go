@@ -287,7 +287,7 @@ func (v *healthView) drawTiles() {
 	k, err := u.ws.Kernels(v.conv)
 	if err != nil {
 		v.tiles.set(nil)
-		v.tilesAbout.SetText(err.Error())
+		v.tilesAbout.SetText(plainError(err))
 		return
 	}
 	slice := -1
@@ -299,7 +299,7 @@ func (v *healthView) drawTiles() {
 	img, info, err := u.ws.Tiles(v.conv, viz.TileOptions{Cell: max(2, cell), Columns: cols, Slice: slice}, u.scan)
 	if err != nil {
 		v.tiles.set(nil)
-		v.tilesAbout.SetText(err.Error())
+		v.tilesAbout.SetText(plainError(err))
 		return
 	}
 	v.info = info

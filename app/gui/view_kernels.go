@@ -135,7 +135,7 @@ func (v *kernelView) draw() {
 	k, err := ws.Kernels(v.layer.Selected)
 	if err != nil {
 		v.pic.set(nil)
-		v.about.SetText(err.Error())
+		v.about.SetText(plainError(err))
 		return
 	}
 	// The input-channel choice: RGB for colour first layers, one channel
@@ -183,7 +183,7 @@ func (v *kernelView) draw() {
 	}, v.u.scan)
 	if err != nil {
 		v.pic.set(nil)
-		v.about.SetText(err.Error())
+		v.about.SetText(plainError(err))
 		return
 	}
 	v.info = info
