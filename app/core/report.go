@@ -156,9 +156,10 @@ func (w *Workspace) ReportPage(ctx context.Context, in ReportInput, progress fun
 		name = "(unnamed image)"
 	}
 	settings := []string{
+		"model          " + w.Model.Name + "  SHA-256 " + ShortHash(w.Hash),
 		"image          " + name,
 		"preprocessing  " + cfg.String(),
-		"labels         " + labelsFrom,
+		"class names    " + labelsFrom,
 		fmt.Sprintf("occlusion      patch %d px, stride %d px, fill %s, score %s", set.Patch, set.Stride, set.Fill, occ[0].Unit()),
 		"scored         " + occ[0].SourceNote,
 		fmt.Sprintf("lines          on the image where the %s reaches %.2g (solid) or %.2g (dashed)", occ[0].Unit(), scale/2, -scale/2),
@@ -200,7 +201,7 @@ func (w *Workspace) ReportPage(ctx context.Context, in ReportInput, progress fun
 		Expected:  expected,
 		Panels:    panels,
 		Legend:    legend,
-		ModelName: w.Model.Name,
+		ModelName: w.Model.Name + " (SHA-256 " + ShortHash(w.Hash) + ")",
 		Settings:  settings,
 		Date:      date.Format("2006-01-02"),
 	})
@@ -231,4 +232,15 @@ func softmaxNote(cl *Classification) string {
 		return "the model's output is already a probability distribution"
 	}
 	return "applied by Fovea to the model's output"
+}
+
+// ShortHash is the short form of a model's SHA-256 printed on pages: its
+// first 12 hex digits (48 bits, enough to tell two files named last.onnx
+// apart at a glance; the full digest goes into data, e.g. report --json).
+// A hash shorter than that is returned as it is.
+func ShortHash(h string) string {
+	if len(h) > 12 {
+		return h[:12]
+	}
+	return h
 }
