@@ -100,6 +100,7 @@ func (c *cli) window(args []string) int {
 	var o gui.Options
 	ortLib := fs.String("ort-lib", "", "ONNX Runtime shared library `FILE` (default: $FOVEA_ORT_LIB, the user cache, system folders)")
 	fs.StringVar(&o.Model, "model", "", "open this ONNX model `FILE` instead of the embedded demo")
+	fs.StringVar(&o.Demo, "demo", "", "open the embedded demo `NAME`: healthy or unhealthy (the checkpoint with dead filters)")
 	fs.StringVar(&o.Image, "image", "", "open this image `FILE` instead of the demo image")
 	fs.StringVar(&o.Probe, "probe", "", "folder `DIR` of probe images for the dead-filter scan")
 	fs.StringVar(&o.View, "view", "", "`VIEW` to show first")
@@ -109,6 +110,10 @@ func (c *cli) window(args []string) int {
 	fs.StringVar(&o.Expect, "expect", "", "old name of --expected")
 	if err := fs.Parse(args); err != nil {
 		fmt.Fprintf(c.stderr, "fovea: %v; `fovea help` lists the commands and the window's options\n", flagError(err))
+		return exitUsage
+	}
+	if o.Demo != "" && o.Demo != "healthy" && o.Demo != "unhealthy" {
+		fmt.Fprintf(c.stderr, "fovea: --demo %q: use healthy or unhealthy\n", o.Demo)
 		return exitUsage
 	}
 	// One model file may follow the flags: the desktop entry's Exec line
@@ -149,7 +154,7 @@ func (c *cli) help(args []string) int {
 	fmt.Fprintf(w, `Fovea shows what a trained ONNX image classifier responds to.
 
 Usage:
-  fovea [--model FILE] [--image FILE] [--expected CLASS] [--probe DIR] [--data DIR_OR_LIST] [--view VIEW] [--theme light|dark] [--ort-lib FILE] [MODEL.onnx]
+  fovea [--model FILE | --demo unhealthy] [--image FILE] [--expected CLASS] [--probe DIR] [--data DIR_OR_LIST] [--view VIEW] [--theme light|dark] [--ort-lib FILE] [MODEL.onnx]
         opens the window (needs a display)
   fovea COMMAND [flags]
         does one job without a display and exits

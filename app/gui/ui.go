@@ -285,7 +285,7 @@ func (u *ui) start() {
 	if u.opts.Model != "" {
 		u.openModelThen(u.opts.Model, after)
 	} else {
-		u.openDemoThen(false, after)
+		u.openDemoThen(u.opts.Demo == "unhealthy", after)
 	}
 }
 

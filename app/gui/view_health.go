@@ -29,7 +29,7 @@ type healthView struct {
 	content fyne.CanvasObject
 	jobs    *runner
 
-	folder     *widget.Label
+	folder     *pathLabel // the probe folder, short (~/… or its name), in full on hover
 	rare       *widget.Entry
 	scanBtn    *widget.Button
 	csvBtn     *widget.Button
@@ -63,7 +63,7 @@ var healthColumns = []struct {
 func newHealthView(u *ui) *healthView {
 	v := &healthView{u: u, sortCol: 2} // fires, ascending: dead filters first
 	v.jobs = u.newRunner(true)
-	v.folder = widget.NewLabel("")
+	v.folder = newPathLabel()
 	v.folder.Truncation = fyne.TextTruncateEllipsis
 	choose := widget.NewButtonWithIcon("Folder…", theme.FolderOpenIcon(), u.chooseProbeDir)
 	sick := widget.NewButton("Unhealthy demo", func() { u.openDemo(true) })
@@ -231,13 +231,13 @@ func (v *healthView) refresh() {
 	u := v.u
 	switch {
 	case u.scanDir != "" && u.scanDir == u.demoProbes:
-		v.folder.SetText("the demo's probe images")
+		v.folder.setPlain("the demo's probe images")
 	case u.scanDir != "":
-		v.folder.SetText(u.scanDir)
+		v.folder.setPath(u.scanDir)
 	case u.ws != nil && u.ws.Demo != "":
-		v.folder.SetText("the demo's probe images (choose a folder to use your own)")
+		v.folder.setPlain("the demo's probe images (choose a folder to use your own)")
 	default:
-		v.folder.SetText("no folder chosen")
+		v.folder.setPlain("no folder chosen")
 	}
 	v.csvBtn.Disable()
 	if r := u.scan; r != nil {
