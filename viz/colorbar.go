@@ -165,8 +165,9 @@ type barMark struct {
 
 // barTicks returns the marks of a bar from min to max: the two ends and,
 // between them, round values ({1, 2, 5}·10^k steps, about target of them).
-// Inner values closer than half a step to an end are dropped, so that an
-// end label never sits against a round one ("−0.69 −0.6"). Every
+// Inner values closer than one step to an end are dropped, so that an end
+// label never sits against a round one ("−0.69 −0.6"); zero, the centre of
+// a diverging bar, is kept unless closer than a quarter step. Every
 // label of one bar has one number format, so that they read as one scale:
 // fixed-point when the bar's magnitude max(|min|, |max|) lies in [1e-3,
 // 1e5), with decimals enough for the step and for 3 significant digits of
@@ -197,7 +198,8 @@ func barTicks(min, max float64, target int) []barMark {
 		if v >= max {
 			break
 		}
-		if v-min < step/2 || max-v < step/2 {
+		zero := math.Abs(v) < step*1e-9 // the centre of a diverging bar: kept unless it touches an end
+		if (v-min < step || max-v < step) && !(zero && v-min >= step/4 && max-v >= step/4) {
 			continue
 		}
 		if math.Abs(v) < step*1e-9 {

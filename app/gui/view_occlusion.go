@@ -42,6 +42,7 @@ type occlusionView struct {
 
 	classes []int        // class index of each expect option after the first ("none")
 	fit     *image.NRGBA // the image the shown occlusion was computed on
+	zoom    int          // the enlargement it is drawn at (heatZoom)
 	set     viz.OcclusionSettings
 	expectN int // the expected class of the shown result, -1 none
 	runs    int // occlusions shown so far (tests read it)
@@ -232,13 +233,16 @@ func (v *occlusionView) run() {
 		targets = append(targets, exp)
 	}
 	u.showView(viewOcclusion)
+	c, _ := ws.Prep()
+	v.zoom = heatZoom(u.area(fyne.NewSize(24, 230)), c.Width, c.Height, len(targets))
+	zoom := v.zoom
 	v.jobs.launch("Occlusion", "patch positions", ws, func(ctx context.Context, progress func(int, int)) (result, error) {
 		occ, fit, err := ws.Occlude(ctx, img, set, targets, progress)
 		if err != nil {
 			return nil, err
 		}
 		grey := v.grey.Checked
-		pic := viz.RenderOcclusion(fit, occ, viz.HeatOptions{Captions: true, Grey: grey, NoCaution: true})
+		pic := viz.RenderOcclusion(fit, occ, viz.HeatOptions{Captions: true, Grey: grey, NoCaution: true, Zoom: zoom})
 		return func(current bool) {
 			if current {
 				v.fit = fit
@@ -291,13 +295,30 @@ func (v *occlusionView) show(occ []*viz.Occlusion, pic *image.NRGBA, set viz.Occ
 	v.verdict.Refresh()
 }
 
+// heatZoom is the largest whole enlargement (1 to 8) at which n pairs of
+// w×h pictures (viz.RenderOcclusion: 12-pixel margins, 6 pixels inside a
+// pair, 16 between pairs, about 190 pixels of captions, colour bar and
+// notes) fit in area, so that the window shows the picture at its own
+// size and its text stays legible rather than being scaled down.
+func heatZoom(area fyne.Size, w, h, n int) int {
+	z := 8
+	for ; z > 1; z-- {
+		width := 24 + n*(2*w*z+6) + (n-1)*16
+		height := h*z + 190
+		if float32(width) <= area.Width && float32(height) <= area.Height {
+			break
+		}
+	}
+	return z
+}
+
 // redraw draws the shown occlusion again (the grey/colour choice changed).
 func (v *occlusionView) redraw() {
 	u := v.u
 	if u.occ == nil || v.fit == nil {
 		return
 	}
-	u.occPic = viz.RenderOcclusion(v.fit, u.occ, viz.HeatOptions{Captions: true, Grey: v.grey.Checked, NoCaution: true})
+	u.occPic = viz.RenderOcclusion(v.fit, u.occ, viz.HeatOptions{Captions: true, Grey: v.grey.Checked, NoCaution: true, Zoom: v.zoom})
 	v.pic.set(u.occPic)
 }
 
