@@ -30,6 +30,19 @@ type command struct {
 	many bool
 }
 
+// windowPlace says where the window does each command's job: the tabs
+// and commands keep their own names (a tab names what it shows, a command
+// what it does), and `fovea help` and each --help say which is which.
+var windowPlace = map[string]string{
+	"layers":   "the layer table on the left, totals on the Model tab",
+	"classify": "the Prediction tab",
+	"filters":  "the Kernels tab",
+	"maps":     "the Layer maps tab",
+	"occlude":  "the Occlusion tab",
+	"scan":     "the Filter health tab",
+	"report":   "the Occlusion tab's Export picture…",
+}
+
 // commands in the order `fovea help` lists them.
 var commands = []*command{
 	layersCommand, classifyCommand, filtersCommand, mapsCommand, occludeCommand, scanCommand, reportCommand, evaluateCommand,
@@ -260,21 +273,16 @@ func (j *invocation) fail(err error) int {
 		fmt.Fprintf(j.stderr, "fovea %s: interrupted\n", j.cmd)
 		return exitFail
 	case core.IsInput(err):
-		fmt.Fprintf(j.stderr, "fovea %s: %s\n", j.cmd, oneLine(err))
+		fmt.Fprintf(j.stderr, "fovea %s: %s\n", j.cmd, core.Message(err))
 		return exitUsage
 	}
-	fmt.Fprintf(j.stderr, "fovea %s: %s\n", j.cmd, oneLine(err))
+	fmt.Fprintf(j.stderr, "fovea %s: %s\n", j.cmd, core.Message(err))
 	return exitFail
 }
 
 // usageErr reports bad usage found after parsing.
 func (j *invocation) usageErr(format string, args ...any) int {
 	return j.usageError(j.cmd, format, args...)
-}
-
-// oneLine puts an error message on one line.
-func oneLine(err error) string {
-	return strings.Join(strings.Fields(strings.ReplaceAll(err.Error(), "\n", "; ")), " ")
 }
 
 // flagError rewords the flag package's parse errors in our terms.
@@ -331,13 +339,20 @@ func (j *invocation) writeJSON(v any) int {
 	return exitOK
 }
 
+// hiddenFlags are old flag names kept working for scripts but no longer
+// listed in --help (README: "Renamed").
+var hiddenFlags = map[string]bool{}
+
 // usage prints a command's help text: what it does, its own flags, then the
 // flags every command shares.
 func (cmd *command) usage(w io.Writer, fs *flag.FlagSet, cf *common) {
 	fmt.Fprintf(w, "Usage: fovea %s %s\n\n%s\n", cmd.name, cmd.args, cmd.about)
+	if place := windowPlace[cmd.name]; place != "" {
+		fmt.Fprintf(w, "\nIn the window: %s.\n", place)
+	}
 	var own, shared []*flag.Flag
 	fs.VisitAll(func(f *flag.Flag) {
-		if !cf.names[f.Name] {
+		if !cf.names[f.Name] && !hiddenFlags[f.Name] {
 			own = append(own, f)
 		}
 	})

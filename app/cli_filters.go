@@ -14,8 +14,11 @@ var filtersCommand = &command{
 	summary: "draw the filters (kernels) of the first layer or of --layer as a PNG",
 	about: `Draws every filter of a convolution as a tile: for a first layer reading a colour
 image the three input channels become red, green and blue with zero at mid-grey;
-otherwise one input channel (--slice) is drawn with a diverging colour map.
-Filters whose kernel is all zeros or nearly parallel to another get a frame.`,
+otherwise one input channel (--slice) is drawn with a diverging colour map. A colour
+bar under the tiles gives the weights' scale and says which input channel is drawn.
+Filters whose kernel is all zeros or nearly parallel to another get a frame. With
+--captions each tile reads "#index |w|=norm": the L2 norm of the whole filter (all
+input channels), then its flag letters.`,
 	setup: func(fs *flag.FlagSet, cf *common) func(*invocation) int {
 		out := fs.String("out", "", "write the PNG to `FILE` (required; - for stdout)")
 		layer := fs.String("layer", "", "the convolution's node `NAME` (default: the first layer)")
@@ -24,7 +27,7 @@ Filters whose kernel is all zeros or nearly parallel to another get a frame.`,
 		perFilter := fs.Bool("per-filter", false, "scale each filter by its own largest weight (default: one scale for all)")
 		slice := fs.Int("slice", -1, "input `CHANNEL` to draw (default: 3-channel kernels as RGB, others channel 0)")
 		columns := fs.Int("columns", 0, "`N` tiles per row (default: about square)")
-		captions := fs.Bool("captions", false, "write index, norm and flag letters under each tile")
+		captions := fs.Bool("captions", false, "write \"#index |w|=L2 norm of the whole filter\" and flag letters under each tile")
 		asJSON := fs.Bool("json", false, "print each tile's index, norm, place and flags as JSON")
 		return func(j *invocation) int {
 			if *out == "" {

@@ -27,7 +27,7 @@ Totals are in the last row.`,
 			if err := j.ws.ObserveShapes(j.ctx); err != nil {
 				// The static table is still worth printing; the unknown
 				// shapes say so in their notes.
-				fmt.Fprintf(j.stderr, "fovea layers: shapes left unknown: %s\n", oneLine(err))
+				fmt.Fprintf(j.stderr, "fovea layers: shapes left unknown: %s\n", core.Message(err))
 			}
 			if *asJSON {
 				return j.writeJSON(layersJSON(j.ws.Model))

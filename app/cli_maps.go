@@ -13,8 +13,13 @@ var mapsCommand = &command{
 	args:    "--image FILE --layer NAME --out FILE [--channel N]",
 	summary: "draw the activation maps of one layer for an image as a PNG",
 	about: `Runs the model on the image and draws every channel of the layer's activation map
-as a tile, all on one shared scale (legend under the grid), or with --channel one
-channel's map over the image as the model saw it.`,
+as a tile, or with --channel one channel's map over the image as the model saw it,
+with a colour legend under the picture. Colours: a layer with no negative value
+(after a ReLU) runs from dark violet at 0 to pale yellow at its largest value; a
+layer with negative values (a convolution before its ReLU) is near-white at 0,
+orange above, blue below. The scale is shared across the layer's channels, or with
+--per-tile each channel's own; the grid and --channel use the same colours for
+one channel, and the legend says whose scale it shows.`,
 	setup: func(fs *flag.FlagSet, cf *common) func(*invocation) int {
 		image := fs.String("image", "", "image `FILE` (required)")
 		layer := fs.String("layer", "", "activation layer `NAME`, node or output tensor (default: the first)")
@@ -23,10 +28,10 @@ channel's map over the image as the model saw it.`,
 		opacity := fs.Float64("opacity", 0.6, "with --channel: `WEIGHT` of the map over the image, 0..1")
 		zoom := fs.Int("zoom", 0, "`PIXELS` per map cell in the grid (default: about 48 pixels per tile)")
 		scale := fs.Int("scale", 0, "with --channel: enlarge the overlay by this `FACTOR` (default: to about 256 pixels)")
-		perTile := fs.Bool("per-tile", false, "scale each channel to its own range (default: one scale for all)")
+		perTile := fs.Bool("per-tile", false, "scale each channel to its own range, in the grid and with --channel (default: one scale shared across the layer)")
 		columns := fs.Int("columns", 0, "`N` tiles per row (default: about square)")
 		captions := fs.Bool("captions", false, "write the channel index under each tile")
-		asJSON := fs.Bool("json", false, "print each channel's min, max, mean and firing fraction as JSON")
+		asJSON := fs.Bool("json", false, "print each channel's min, max, mean and active fraction as JSON")
 		return func(j *invocation) int {
 			switch {
 			case *image == "":
@@ -54,7 +59,7 @@ channel's map over the image as the model saw it.`,
 			}
 			var stats []viz.ChannelStats
 			if *channel >= 0 {
-				ov, err := a.OverlayPicture(l.Output, *channel, *opacity, *scale)
+				ov, err := a.OverlayPicture(l.Output, *channel, *opacity, *scale, *perTile)
 				if err != nil {
 					return j.fail(err)
 				}
@@ -103,11 +108,12 @@ type mapsDoc struct {
 }
 
 // channelDoc: min, max, mean over the channel's positions on this image;
-// fires is the fraction of positions above zero.
+// active_fraction is the fraction of positions above zero (named apart from
+// scan's "fires", the fraction of probe images on which a channel fired).
 type channelDoc struct {
-	Index int     `json:"index"`
-	Min   float64 `json:"min"`
-	Max   float64 `json:"max"`
-	Mean  float64 `json:"mean"`
-	Fires float64 `json:"fires"`
+	Index          int     `json:"index"`
+	Min            float64 `json:"min"`
+	Max            float64 `json:"max"`
+	Mean           float64 `json:"mean"`
+	ActiveFraction float64 `json:"active_fraction"`
 }

@@ -13,14 +13,16 @@ import (
 
 var occludeCommand = &command{
 	name:    "occlude",
-	args:    "--image FILE (--out FILE | --json) [--class CLASS] [--versus CLASS]\n       fovea occlude IMAGE... | FOLDER (--out-dir DIR | --json) [flags]",
+	args:    "--image FILE (--out FILE | --json) [--class CLASS] [--expected CLASS]\n       fovea occlude IMAGE... | FOLDER (--out-dir DIR | --json) [flags]",
 	many:    true,
 	summary: "occlusion sensitivity: which parts of the image the score depends on (PNG or JSON)",
 	about: `Hides one square patch of the image at a time and measures how much the score of
-the target class drops (Zeiler & Fergus 2014). The heatmap is drawn over the image
-as the model saw it (after resizing): orange where hiding the patch lowered the
-score, blue where it raised it. With --versus the second class's map is drawn beside the first
-on the same scale.
+the target class drops (Zeiler & Fergus 2014). The picture shows, for each class, the
+heatmap on its own (orange where hiding the patch lowered the score, blue where it
+raised it, white for no change; every colour reads on the bar below) beside the image
+as the model saw it, in colour (--grey for grey), with a solid line where the drop
+reaches half the scale and a dashed one where the rise does. With --expected the
+class the image should have been is drawn beside the predicted one, on the same scale.
 
 With several images or a folder, the model is opened once, each image's overlay is
 written to --out-dir as NAME.occlusion.png and --json prints one object per line.
@@ -86,7 +88,7 @@ The map is evidence about this model on this image, not proof of what it looks a
 				return code
 			}
 			if *out != "" {
-				img := viz.RenderOcclusion(res.fit, res.occ, viz.HeatOptions{Captions: true})
+				img := viz.RenderOcclusion(res.fit, res.occ, viz.HeatOptions{Captions: true, Grey: o.grey})
 				if code := j.writePNG(*out, img); code != exitOK {
 					return code
 				}
@@ -116,19 +118,22 @@ The map is evidence about this model on this image, not proof of what it looks a
 
 // occlusionFlags are the flags of occlude and report.
 type occlusionFlags struct {
-	image, class, versus string
-	patch, stride        int
-	fill, score          string
-	noReuse              bool
+	image, class, expected string
+	patch, stride          int
+	fill, score            string
+	noReuse, grey          bool
 }
 
 func (o *occlusionFlags) declare(fs *flag.FlagSet) {
 	fs.StringVar(&o.image, "image", "", "image `FILE` (or give image files or a folder as arguments)")
 	fs.StringVar(&o.class, "class", "", "target `CLASS`, a label or a number (default: the predicted class)")
-	fs.StringVar(&o.versus, "versus", "", "a second `CLASS` to compare with, e.g. the one the image should have been")
+	fs.StringVar(&o.expected, "expected", "", "the `CLASS` the image should have been, drawn beside the first on the same scale")
+	fs.StringVar(&o.expected, "versus", "", "old name of --expected")
+	hiddenFlags["versus"] = true
 	fs.IntVar(&o.patch, "patch", 0, "side of the hidden square in input `PIXELS` (default: a sixth of the shorter side)")
 	fs.IntVar(&o.stride, "stride", 0, "step between patch positions in `PIXELS` (default: half the patch)")
 	fs.StringVar(&o.fill, "fill", string(viz.FillGrey), "`FILL` of the hidden patch: grey (0.5 on the 0-1 pixel scale, before normalisation), mean, blur or zero")
+	fs.BoolVar(&o.grey, "grey", false, "draw the image beside the heatmap in grey (default: in colour, as the model saw it)")
 	fs.StringVar(&o.score, "score", string(viz.ScoreProbability), "`SCORE` compared with and without the patch: probability, logit (the logits, also those before a final Softmax) or logprob (log-probability)")
 	fs.BoolVar(&o.noReuse, "no-reuse", false, "run every occluded image through the whole model instead of reusing the clean image's activations (same scores, usually slower)")
 }
@@ -169,7 +174,7 @@ func (o *occlusionFlags) run(j *invocation) (*occlusionResult, int) {
 		return nil, j.fail(err)
 	}
 	var targets []int
-	if o.class != "" || o.versus != "" {
+	if o.class != "" || o.expected != "" {
 		first := -1
 		if o.class != "" {
 			if first, err = j.ws.ClassIndex(o.class); err != nil {
@@ -183,10 +188,10 @@ func (o *occlusionFlags) run(j *invocation) (*occlusionResult, int) {
 			first = cl.Top[0].Index
 		}
 		targets = append(targets, first)
-		if o.versus != "" {
-			v, err := j.ws.ClassIndex(o.versus)
+		if o.expected != "" {
+			v, err := j.ws.ClassIndex(o.expected)
 			if err != nil {
-				return nil, j.fail(fmt.Errorf("--versus: %w", err))
+				return nil, j.fail(fmt.Errorf("--expected: %w", err))
 			}
 			targets = append(targets, v)
 		}
@@ -200,12 +205,12 @@ func (o *occlusionFlags) run(j *invocation) (*occlusionResult, int) {
 }
 
 // The JSON form of `fovea occlude`: the first target at the top
-// level, a --versus target under "versus" with the same fields.
+// level, an --expected target under "expected" with the same fields.
 type occlusionDoc struct {
 	Model string `json:"model,omitempty"`
 	Image string `json:"image,omitempty"`
 	occlusionTarget
-	Versus *occlusionTarget `json:"versus,omitempty"`
+	Expected *occlusionTarget `json:"expected,omitempty"`
 	// Method says how the scores were computed and why; Seconds is the
 	// occlusion's wall time, without opening the model.
 	Method  methodDoc `json:"method"`
@@ -259,7 +264,7 @@ func occlusionJSON(j *invocation, r *occlusionResult) occlusionDoc {
 		Method: methodDoc{r.occ[0].Method, r.occ[0].MethodWhy}, Seconds: r.seconds}
 	if len(r.occ) > 1 {
 		v := t(r.occ[1])
-		d.Versus = &v
+		d.Expected = &v
 	}
 	return d
 }

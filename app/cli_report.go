@@ -13,11 +13,11 @@ import (
 
 var reportCommand = &command{
 	name:    "report",
-	args:    "--image FILE --out FILE [--versus CLASS] [--json]\n       fovea report IMAGE... | FOLDER --out-dir DIR [flags]",
+	args:    "--image FILE --out FILE [--expected CLASS] [--json]\n       fovea report IMAGE... | FOLDER --out-dir DIR [flags]",
 	many:    true,
 	summary: "the one-page picture explaining a prediction, to share with a colleague",
 	about: `Composes one PNG page: the image as the model saw it, the top-k predictions, the
-occlusion heatmaps of the predicted class and (with --versus) of the class it should
+occlusion heatmaps of the predicted class and (with --expected) of the class it should
 have been, side by side on one scale with their legend, the model's name, the
 preprocessing and occlusion settings, the date, and the caution that a heatmap is
 evidence about this model on this image, not proof. With --json it also prints what the
@@ -91,7 +91,7 @@ func reportOne(j *invocation, o *occlusionFlags, out string, k int, when time.Ti
 	}
 	page, content, err := j.ws.ReportPage(j.ctx, core.ReportInput{
 		Image: img, ImageName: filepath.Base(o.image), K: k, Versus: versus,
-		Occlusion: res.set, Occlusions: res.occ, Date: when,
+		Occlusion: res.set, Occlusions: res.occ, Date: when, Grey: o.grey,
 	}, nil)
 	if err != nil {
 		return j.fail(err)

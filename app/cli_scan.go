@@ -19,7 +19,7 @@ var scanCommand = &command{
 	about: `Runs the model on every image in the probe folder and records, for each channel
 of each ReLU-like activation layer, on what fraction of the images it fired
 (any value above zero), its largest and its mean value. Flags: dead (never fired),
-rare (fired on fewer than --rare of the images), constant (one value everywhere),
+rare (fired on fewer than --rare-percent % of the images, 1 by default), constant (one value everywhere),
 zero_kernel and duplicate (from the weights of the convolution feeding it).
 
 With --max-dead N the exit status is 3 when more than N channels are dead, so a
@@ -31,7 +31,9 @@ the sorted probe files is scanned and the counts are printed as JSON;
 		asCSV := fs.Bool("csv", false, "print every channel as CSV")
 		asJSON := fs.Bool("json", false, "print the report as JSON")
 		maxDead := fs.Int("max-dead", -1, "exit with status 3 when more than `N` channels are dead (default: no limit)")
-		rare := fs.Float64("rare", analysis.DefaultRare, "`FRACTION` of images under which a firing channel is rare")
+		rarePct := fs.Float64("rare-percent", 100*analysis.DefaultRare, "`PERCENT` of the images under which a firing channel is rare (the window's \"Rare below … %\")")
+		rareOld := fs.Float64("rare", 0, "old name: the same threshold as a fraction (0.01 = 1 %)")
+		hiddenFlags["rare"] = true
 		skip := fs.Bool("skip-unreadable", false, "pass over probe files that cannot be read (listed in the report) instead of stopping")
 		all := fs.Bool("all", false, "list every channel in the table, not only flagged ones")
 		shard := fs.String("shard", "", "scan only slice `K/N` (1 ≤ K ≤ N) of the sorted probe files and print its counts as JSON")
@@ -39,13 +41,19 @@ the sorted probe files is scanned and the counts are printed as JSON;
 			if *asCSV && *asJSON {
 				return j.usageErr("give --csv or --json, not both")
 			}
-			if !(*rare > 0 && *rare <= 1) {
-				return j.usageErr("--rare %g: give a fraction above 0 and at most 1", *rare)
+			rare := *rarePct / 100
+			if j.set["rare"] {
+				if !(*rareOld > 0 && *rareOld <= 1) {
+					return j.usageErr("--rare %g: give a fraction above 0 and at most 1 (or --rare-percent)", *rareOld)
+				}
+				rare = *rareOld
+			} else if !(*rarePct > 0 && *rarePct <= 100) {
+				return j.usageErr("--rare-percent %g: give a percentage above 0 and at most 100", *rarePct)
 			}
 			if *maxDead < -1 {
 				return j.usageErr("--max-dead %d: give 0 or more (or -1 for no limit)", *maxDead)
 			}
-			opt := analysis.ScanOptions{Rare: *rare, SkipUnreadable: *skip}
+			opt := analysis.ScanOptions{Rare: rare, SkipUnreadable: *skip}
 			var files []string
 			var err error
 			if *probe != "" {
@@ -135,7 +143,7 @@ type scanPartDoc struct {
 
 // writeScanTable prints the flagged channels (or all) and a summary per layer.
 func writeScanTable(w io.Writer, model string, r *analysis.ScanReport, all bool) {
-	fmt.Fprintf(w, "%s: %d probe images, rare below %g of them\n", model, r.Images, r.Rare)
+	fmt.Fprintf(w, "%s: %d probe images, rare below %g %% of them\n", model, r.Images, 100*r.Rare)
 	for _, s := range r.Skipped {
 		fmt.Fprintf(w, "skipped (unreadable): %s\n", s)
 	}

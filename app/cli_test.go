@@ -21,6 +21,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"image"
+	"image/draw"
 	"image/png"
 	"math"
 	"os"
@@ -535,7 +536,12 @@ func TestCLIFilters(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	samePixels(t, "filters vs viz.Tiles", got, want, 0)
+	// The tiles at (8, 8), the colour legend under them (core.Tiles).
+	samePixels(t, "filters vs viz.Tiles", cropTo(got, want.Bounds().Add(image.Pt(8, 8))), want, 0)
+	legendRow := got.Bounds().Dy() - 56 - 8 + 10 // inside the bar (56 px high, 8 px margin)
+	if c := got.NRGBAAt(8+180, legendRow); c == viz.Light {
+		t.Errorf("no colour legend under the tiles (pixel %v at row %d)", c, legendRow)
+	}
 	if doc.Layer != k.Node || len(doc.Tiles) != k.M || len(info) != k.M {
 		t.Fatalf("layer %q with %d tiles; the first conv is %q with %d filters", doc.Layer, len(doc.Tiles), k.Node, k.M)
 	}
@@ -572,7 +578,7 @@ func TestCLIFilters(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	samePixels(t, "filters --layer "+second, readPNG(t, out2), w2, 0)
+	samePixels(t, "filters --layer "+second, cropTo(readPNG(t, out2), w2.Bounds().Add(image.Pt(8, 8))), w2, 0)
 	_, errs, code := runCLI(t, "filters", "--model", d.model, "--layer", "no such layer", "--out", out2)
 	if code != exitUsage || !strings.Contains(errs, "no such layer") {
 		t.Errorf("--layer 'no such layer': exit %d, %q; want 2 naming it", code, errs)
@@ -609,8 +615,11 @@ func TestCLIMaps(t *testing.T) {
 		Layer    string  `json:"layer"`
 		Shape    []int64 `json:"shape"`
 		Channels []struct {
-			Index                 int
-			Min, Max, Mean, Fires float64
+			Index          int
+			Min, Max, Mean float64
+			// active_fraction: the share of positions above zero (was
+			// "fires", which in scan --json means a share of images).
+			Active float64 `json:"active_fraction"`
 		} `json:"channels"`
 	}
 	decodeJSON(t, mustRun(t, "maps", "--model", d.model, "--image", d.image, "--layer", layer.Name, "--out", out, "--json"), &doc)
@@ -630,8 +639,8 @@ func TestCLIMaps(t *testing.T) {
 				pos++
 			}
 		}
-		if g.Index != c || !near(g.Min, lo) || !near(g.Max, hi) || math.Abs(g.Mean-sum/float64(hw)) > 1e-5 || !near(g.Fires, float64(pos)/float64(hw)) {
-			t.Errorf("channel %d: CLI %+v; by definition min %v max %v mean %v fires %v", c, g, lo, hi, sum/float64(hw), float64(pos)/float64(hw))
+		if g.Index != c || !near(g.Min, lo) || !near(g.Max, hi) || math.Abs(g.Mean-sum/float64(hw)) > 1e-5 || !near(g.Active, float64(pos)/float64(hw)) {
+			t.Errorf("channel %d: CLI %+v; by definition min %v max %v mean %v active fraction %v", c, g, lo, hi, sum/float64(hw), float64(pos)/float64(hw))
 		}
 	}
 	got := readPNG(t, out)
@@ -661,14 +670,14 @@ type occDoc struct {
 		Label       string  `json:"label"`
 		Probability float64 `json:"probability"`
 	} `json:"target"`
-	Patch  int         `json:"patch"`
-	Stride int         `json:"stride"`
-	Fill   string      `json:"fill"`
-	Ys     []int       `json:"ys"`
-	Xs     []int       `json:"xs"`
-	Scores [][]float64 `json:"scores"`
-	Versus *occDoc     `json:"versus"`
-	Method struct {
+	Patch    int         `json:"patch"`
+	Stride   int         `json:"stride"`
+	Fill     string      `json:"fill"`
+	Ys       []int       `json:"ys"`
+	Xs       []int       `json:"xs"`
+	Scores   [][]float64 `json:"scores"`
+	Expected *occDoc     `json:"expected"`
+	Method   struct {
 		Name, Why string
 	} `json:"method"`
 	Seconds *float64 `json:"seconds"`
@@ -693,7 +702,7 @@ func TestCLIOcclude(t *testing.T) {
 	var doc occDoc
 	out := filepath.Join(d.dir, "heat map ü.png")
 	decodeJSON(t, mustRun(t, "occlude", "--model", d.model, "--image", d.image, "--patch", "16", "--stride", "8",
-		"--versus", top[1].Label, "--json", "--out", out), &doc)
+		"--expected", top[1].Label, "--json", "--out", out), &doc)
 	check := func(name string, g *occDoc, w *viz.Occlusion) {
 		if g == nil {
 			t.Fatalf("%s: missing", name)
@@ -717,7 +726,7 @@ func TestCLIOcclude(t *testing.T) {
 		}
 	}
 	check("target", &doc, want[0])
-	check("versus", doc.Versus, want[1])
+	check("expected", doc.Expected, want[1])
 	got := readPNG(t, out)
 	for _, w := range want {
 		w.Label = assets.Labels()[w.Target] // viz leaves labels to the caller (viz.Occlusion)
@@ -742,8 +751,8 @@ func TestCLIOcclude(t *testing.T) {
 	// and stride depend on the input size only.
 	doc = occDoc{}
 	decodeJSON(t, mustRun(t, "occlude", "--model", d.model, "--image", d.image, "--json"), &doc)
-	if doc.Target.Index != top[0].Index || doc.Versus != nil {
-		t.Errorf("default target %d (versus %v), want the predicted class %d alone", doc.Target.Index, doc.Versus, top[0].Index)
+	if doc.Target.Index != top[0].Index || doc.Expected != nil {
+		t.Errorf("default target %d (expected %v), want the predicted class %d alone", doc.Target.Index, doc.Expected, top[0].Index)
 	}
 	// --class by number, --fill and --score reach viz.
 	doc = occDoc{}
@@ -870,6 +879,19 @@ func TestCLIScanUnhealthy(t *testing.T) {
 		t.Errorf("healthy model: dead channels %v, truth %v", got, want)
 	}
 
+	// The rare threshold is a percentage, as in the window; the old
+	// --rare FRACTION still works and means the same; the JSON keeps it as
+	// a fraction of the images.
+	for _, args := range [][]string{{"--rare-percent", "30"}, {"--rare", "0.3"}} {
+		var r struct {
+			Rare float64 `json:"rare"`
+		}
+		decodeJSON(t, mustRun(t, append([]string{"scan", "--demo", "unhealthy", "--json"}, args...)...), &r)
+		if r.Rare != 0.3 {
+			t.Errorf("scan %v: rare %v in the JSON, want the fraction 0.3", args, r.Rare)
+		}
+	}
+
 	// The gate: more dead channels than --max-dead is exit status 3, with
 	// the report still printed; at the limit it passes.
 	out, errs, code = runCLI(t, "scan", "--demo", "unhealthy", "--max-dead", "0")
@@ -925,6 +947,7 @@ func TestCLIReport(t *testing.T) {
 	// The demo's genuine mistake (demo/demo.json): explain why the model
 	// said its predicted class and not the true one.
 	mis := d.info.Misclassified
+	// --versus is the old name of --expected, kept for scripts (README: Renamed).
 	mustRun(t, "report", "--model", d.model, "--image", d.mistake, "--versus", mis.Label, "--date", "2026-01-02", "--out", out)
 	got := readPNG(t, out)
 	if got.Bounds().Dx() != viz.ReportWidth || got.Bounds().Dy() != viz.ReportHeight {
@@ -947,7 +970,7 @@ func TestCLIReport(t *testing.T) {
 	// page: 2026-01-02T00:00:00Z = 1767312000 s.
 	t.Setenv("SOURCE_DATE_EPOCH", "1767312000")
 	out2 := filepath.Join(d.dir, "again.png")
-	mustRun(t, "report", "--model", d.model, "--image", d.mistake, "--versus", mis.Label, "--out", out2)
+	mustRun(t, "report", "--model", d.model, "--image", d.mistake, "--expected", mis.Label, "--out", out2)
 	samePixels(t, "report with SOURCE_DATE_EPOCH", readPNG(t, out2), got, 0)
 }
 
@@ -1138,6 +1161,12 @@ func TestCLIExitStatus(t *testing.T) {
 			if strings.Contains(stderr, "panic") || strings.Contains(stderr, "goroutine") {
 				t.Errorf("fovea %q: %q", c.args, stderr)
 			}
+			// Plain words: no internal package prefix after "fovea CMD: ".
+			for _, p := range []string{"core: ", "modelio: ", "infer: ", "prep: ", "viz: ", "analysis: "} {
+				if strings.Contains(stderr, " "+p) {
+					t.Errorf("fovea %q: stderr %q shows the internal prefix %q", c.args, stderr, p)
+				}
+			}
 		}
 		for _, s := range c.needs {
 			if !strings.Contains(stderr, s) {
@@ -1152,6 +1181,14 @@ func TestCLIExitStatus(t *testing.T) {
 			if !strings.Contains(out, f) {
 				t.Errorf("fovea %s --help lacks %s", cmd.name, f)
 			}
+		}
+	}
+	// One word for the class the image should have been: --expected is
+	// listed, its old name --versus still works but is not.
+	for _, name := range []string{"occlude", "report"} {
+		out := mustRun(t, name, "--help")
+		if !strings.Contains(out, "--expected CLASS") || strings.Contains(out, "--versus") {
+			t.Errorf("fovea %s --help: want --expected listed and --versus hidden:\n%s", name, out)
 		}
 	}
 	help := mustRun(t, "help")
@@ -1279,4 +1316,11 @@ var goldens = testkit.Goldens{Dir: "../testdata/golden/cli", Failed: "../testdat
 func golden(t *testing.T, name string, got *image.NRGBA) {
 	t.Helper()
 	goldens.Check(t, name, got)
+}
+
+// cropTo copies the part r of img into a picture of its own at the origin.
+func cropTo(img *image.NRGBA, r image.Rectangle) *image.NRGBA {
+	out := image.NewNRGBA(image.Rect(0, 0, r.Dx(), r.Dy()))
+	draw.Draw(out, out.Rect, img, r.Min, draw.Src)
+	return out
 }

@@ -100,14 +100,20 @@ func (c *cli) window(args []string) int {
 	var o gui.Options
 	ortLib := fs.String("ort-lib", "", "ONNX Runtime shared library `FILE` (default: $FOVEA_ORT_LIB, the user cache, system folders)")
 	fs.StringVar(&o.Model, "model", "", "open this ONNX model `FILE` instead of the embedded demo")
+	fs.StringVar(&o.Demo, "demo", "", "open the embedded demo `NAME`: healthy or unhealthy (the checkpoint with dead filters)")
 	fs.StringVar(&o.Image, "image", "", "open this image `FILE` instead of the demo image")
 	fs.StringVar(&o.Probe, "probe", "", "folder `DIR` of probe images for the dead-filter scan")
 	fs.StringVar(&o.View, "view", "", "`VIEW` to show first")
 	fs.StringVar(&o.Theme, "theme", "", "colour theme: light or dark (default: the system's)")
 	fs.StringVar(&o.Data, "data", "", "labelled folder or list `FILE` the scorecard view evaluates at start")
-	fs.StringVar(&o.Expect, "expect", "", "`CLASS` the image should have been (name or index), for the side-by-side heatmaps")
+	fs.StringVar(&o.Expect, "expected", "", "`CLASS` the image should have been (name or index), for the side-by-side heatmaps")
+	fs.StringVar(&o.Expect, "expect", "", "old name of --expected")
 	if err := fs.Parse(args); err != nil {
 		fmt.Fprintf(c.stderr, "fovea: %v; `fovea help` lists the commands and the window's options\n", flagError(err))
+		return exitUsage
+	}
+	if o.Demo != "" && o.Demo != "healthy" && o.Demo != "unhealthy" {
+		fmt.Fprintf(c.stderr, "fovea: --demo %q: use healthy or unhealthy\n", o.Demo)
 		return exitUsage
 	}
 	// One model file may follow the flags: the desktop entry's Exec line
@@ -121,7 +127,7 @@ func (c *cli) window(args []string) int {
 		return exitUsage
 	}
 	if err := core.Start(*ortLib); err != nil {
-		fmt.Fprintln(c.stderr, "fovea:", oneLine(err))
+		fmt.Fprintln(c.stderr, "fovea:", core.Message(err))
 		return exitUsage
 	}
 	o.ORTLib = core.Library()
@@ -147,7 +153,7 @@ func (c *cli) help(args []string) int {
 	fmt.Fprintf(w, `Fovea shows what a trained ONNX image classifier responds to.
 
 Usage:
-  fovea [--model FILE] [--image FILE] [--expect CLASS] [--probe DIR] [--data DIR_OR_LIST] [--view VIEW] [--theme light|dark] [--ort-lib FILE] [MODEL.onnx]
+  fovea [--model FILE | --demo unhealthy] [--image FILE] [--expected CLASS] [--probe DIR] [--data DIR_OR_LIST] [--view VIEW] [--theme light|dark] [--ort-lib FILE] [MODEL.onnx]
         opens the window (needs a display)
   fovea COMMAND [flags]
         does one job without a display and exits
@@ -156,6 +162,9 @@ Commands:
 `)
 	for _, cmd := range commands {
 		fmt.Fprintf(w, "  %-14s %s\n", cmd.name, cmd.summary)
+		if place := windowPlace[cmd.name]; place != "" {
+			fmt.Fprintf(w, "  %-14s (in the window: %s)\n", "", place)
+		}
 	}
 	fmt.Fprintf(w, "  %-14s %s\n", "merge", "combine the parts of `evaluate --shard K/N` into one result")
 	fmt.Fprintf(w, "  %-14s %s\n", "fetch-runtime", "download ONNX Runtime "+runtimeVersion+" into the user cache folder")

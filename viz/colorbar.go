@@ -61,8 +61,14 @@ func ColorBar(w, h int, min, max float64, unit string, cmap func(float64) color.
 	if !horizontal {
 		along = h
 	}
-	marks := barTicks(min, max, clampInt(along/90, 2, 10)) // a tick every 90 pixels or so
-	edge := color.NRGBA{0x8a, 0x90, 0x96, 0xff}            // the bar's outline and ticks
+	// A tick every 90 pixels or so, fewer when the inner labels would not
+	// all fit with a line height of space between them: then every other
+	// one would drop out, unevenly (longer negative labels first).
+	marks := barTicks(min, max, clampInt(along/90, 2, 10))
+	for target := clampInt(along/90, 2, 10) - 1; target >= 1 && !innerFit(marks, along, lineH, horizontal, barText); target-- {
+		marks = barTicks(min, max, target)
+	}
+	edge := color.NRGBA{0x8a, 0x90, 0x96, 0xff} // the bar's outline and ticks
 	const tick = 5
 
 	if horizontal {
@@ -88,7 +94,8 @@ func ColorBar(w, h int, min, max float64, unit string, cmap func(float64) color.
 		place := func(m barMark) {
 			x := pos(m)
 			lw, _ := TextSize(m.label, barText)
-			r := image.Rect(x-lw/2-4, 0, x+lw/2+4, 1)
+			// At least one line height of space between two labels.
+			r := image.Rect(x-lw/2-lineH/2, 0, x+lw/2+lineH/2, 1)
 			for _, d := range drawn {
 				if r.Overlaps(d) {
 					return
@@ -158,7 +165,9 @@ type barMark struct {
 
 // barTicks returns the marks of a bar from min to max: the two ends and,
 // between them, round values ({1, 2, 5}·10^k steps, about target of them).
-// Inner values closer than a fifth of a step to an end are dropped. Every
+// Inner values closer than one step to an end are dropped, so that an end
+// label never sits against a round one ("−0.69 −0.6"); zero, the centre of
+// a diverging bar, is kept unless closer than a quarter step. Every
 // label of one bar has one number format, so that they read as one scale:
 // fixed-point when the bar's magnitude max(|min|, |max|) lies in [1e-3,
 // 1e5), with decimals enough for the step and for 3 significant digits of
@@ -189,7 +198,8 @@ func barTicks(min, max float64, target int) []barMark {
 		if v >= max {
 			break
 		}
-		if v-min < step/5 || max-v < step/5 {
+		zero := math.Abs(v) < step*1e-9 // the centre of a diverging bar: kept unless it touches an end
+		if (v-min < step || max-v < step) && !(zero && v-min >= step/4 && max-v >= step/4) {
 			continue
 		}
 		if math.Abs(v) < step*1e-9 {
@@ -238,4 +248,33 @@ func maxInt(a, b int) int {
 		return a
 	}
 	return b
+}
+
+// innerFit reports whether the inner labels of marks fit along a bar of
+// the given length with at least space pixels between neighbours.
+func innerFit(marks []barMark, along, space int, horizontal bool, st TextStyle) bool {
+	if len(marks) < 4 {
+		return true
+	}
+	length := float64(along)
+	if horizontal { // the bar leaves half an end label free at each side
+		w0, _ := TextSize(marks[0].label, st)
+		w1, _ := TextSize(marks[len(marks)-1].label, st)
+		length -= float64(2 + (w0+w1)/2)
+	} else {
+		length -= float64(3 * space) // the unit above, half a label at each end
+	}
+	prevEnd := math.Inf(-1)
+	for _, m := range marks[1 : len(marks)-1] {
+		size, _ := TextSize(m.label, st)
+		if !horizontal {
+			_, size = TextSize(m.label, st)
+		}
+		c := m.t * length
+		if c-float64(size)/2-float64(space) < prevEnd {
+			return false
+		}
+		prevEnd = c + float64(size)/2
+	}
+	return true
 }

@@ -233,3 +233,26 @@ func lastDigit(label string) float64 {
 	}
 	return unit
 }
+
+// TestBarTicksKeepClearOfEnds: the occlusion bar of the demo's coil-spring
+// image ran −0.69…0.69 with step 0.2 and printed "−0.69 −0.6" side by side.
+// Inner ticks now keep at least one step from each end: −0.6 and 0.6
+// (0.09 from the ends, under a step of 0.2) go, −0.4 … 0.4 stay; with a
+// step of 0.1, −0.6 (0.09 from the end) goes too and −0.5 stays.
+func TestBarTicksKeepClearOfEnds(t *testing.T) {
+	var got []string
+	for _, m := range barTicks(-0.69, 0.69, 7) {
+		got = append(got, m.label)
+	}
+	want := []string{"-0.69", "-0.4", "-0.2", "0", "0.2", "0.4", "0.69"}
+	if strings.Join(got, " ") != strings.Join(want, " ") {
+		t.Errorf("ticks %v, want %v", got, want)
+	}
+	got = got[:0]
+	for _, m := range barTicks(-0.69, 0.69, 14) {
+		got = append(got, m.label)
+	}
+	if got[1] != "-0.5" || got[len(got)-2] != "0.5" {
+		t.Errorf("ticks at step 0.1: %v, want -0.5 and 0.5 next to the ends", got)
+	}
+}

@@ -72,6 +72,31 @@ func MapColor(v, lo, hi float64) color.NRGBA {
 	return Sequential(v / hi)
 }
 
+// ownRange is the range one channel is coloured with when it is scaled on
+// its own inside a layer whose shared range starts at layerLo: the
+// channel's own extent, kept signed (lo < 0, so [MapColor] takes the
+// diverging map) whenever the layer is signed, so that the channel has the
+// same colour map in the grid and over the image whichever scale is chosen.
+// The divisor MapColor then uses is the channel's own largest |value|.
+func ownRange(layerLo float64, s ChannelStats) (lo, hi float64) {
+	lo, hi = math.Min(0, s.Min), math.Max(0, s.Max)
+	if layerLo < 0 && lo == 0 {
+		// A signed layer whose channel has no negative value: a tiny
+		// negative lo selects the diverging map without changing the
+		// divisor max(|lo|, hi) = hi.
+		lo = -math.SmallestNonzeroFloat64
+		if hi == 0 {
+			hi = 1
+		}
+	}
+	return lo, hi
+}
+
+// OwnRange is the range [MapOverlay] and a per-tile [MapGrid] colour
+// channel s with inside a layer whose shared range ([MapRange]) starts at
+// layerLo: the channel's own extent, with the layer's colour map.
+func OwnRange(layerLo float64, s ChannelStats) (lo, hi float64) { return ownRange(layerLo, s) }
+
 // mapMap returns the colour map ColorBar needs for the range.
 func mapMap(lo float64) func(float64) color.NRGBA {
 	if lo < 0 {
@@ -265,9 +290,12 @@ func MapGrid(t modelio.Tensor, layout modelio.Layout, o GridOptions) (*image.NRG
 		by := gap + (i/cols)*(boxH+gap)
 		tx := bx + (boxW-tw)/2
 		r := image.Rect(tx, by, tx+tw, by+th)
+		// One colour map for the whole grid, chosen by the layer's sign
+		// (so that a tile never switches map); with PerTile only the
+		// divisor is the tile's own.
 		l, h := lo, hi
 		if o.PerTile {
-			l, h = math.Min(0, stats[i].Min), math.Max(0, stats[i].Max)
+			l, h = ownRange(lo, stats[i])
 		}
 		for y := range v.h {
 			for x := range v.w {
@@ -460,6 +488,16 @@ func strength(n float64) float64 {
 // model's input size): cells are placed in its pixel coordinates. Upscale
 // the result, not the input, for display. The tensor's first image is used.
 func MapOverlay(base image.Image, t modelio.Tensor, layout modelio.Layout, channel int, l modelio.Layer, opacity float64) (*image.NRGBA, error) {
+	return MapOverlayIn(base, t, layout, channel, l, opacity, 0, 0)
+}
+
+// MapOverlayIn is [MapOverlay] coloured over the range lo..hi (as
+// [MapColor] takes it) instead of the channel's own: pass the layer's
+// shared range ([MapRange] over all channels) so that the overlay of a
+// channel has exactly the colours of its tile in a shared [MapGrid], or
+// [OwnRange] for those of a per-tile grid. lo = hi = 0 means the channel's
+// own range.
+func MapOverlayIn(base image.Image, t modelio.Tensor, layout modelio.Layout, channel int, l modelio.Layer, opacity, lo, hi float64) (*image.NRGBA, error) {
 	v, err := viewTensor(t, layout)
 	if err != nil {
 		return nil, err
@@ -494,7 +532,9 @@ func MapOverlay(base image.Image, t modelio.Tensor, layout modelio.Layout, chann
 	if err != nil {
 		return nil, err
 	}
-	lo, hi := math.Min(0, st.Min), math.Max(0, st.Max)
+	if lo == 0 && hi == 0 {
+		lo, hi = math.Min(0, st.Min), math.Max(0, st.Max)
+	}
 	s := &sampler{
 		cy:  centres(v.h, g.JumpY, g.OffsetY),
 		cx:  centres(v.w, g.JumpX, g.OffsetX),

@@ -334,3 +334,57 @@ func TestMapOverlayErrors(t *testing.T) {
 		})
 	}
 }
+
+// TestMapGridOneMapPerLayer: in a layer with negative values every tile
+// uses the diverging map, with PerTile too, even a tile whose own values
+// are all ≥ 0; and the overlay of a channel at the grid's range has its
+// tile's colour where a cell's value is at full scale (opacity 1, weight 1).
+// Channel 0 = [−2, 1], channel 1 = [0, 4] (one row of two cells each).
+// Expected colours by the definition of each scale (common practice):
+// shared range −2..4: channel 1's 4 is Diverging(4/4); per tile, channel
+// 0's −2 is Diverging(−2/2) and channel 1's 4 is Diverging(4/4), never
+// Sequential.
+func TestMapGridOneMapPerLayer(t *testing.T) {
+	tt := tensor([]int64{1, 2, 1, 2}, -2, 1, 0, 4)
+	for _, per := range []bool{false, true} {
+		img, st, err := MapGrid(tt, "nchw", GridOptions{Zoom: 2, PerTile: per})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if got, want := cellColour(t, img, st[1].Rect, 2, 0, 1), Diverging(1); got != want {
+			t.Errorf("per tile %v: channel 1's peak %v, want the diverging map's end %v", per, got, want)
+		}
+		if got, want := cellColour(t, img, st[1].Rect, 2, 0, 0), Diverging(0); got != want {
+			t.Errorf("per tile %v: channel 1's zero %v, want the diverging map's white %v", per, got, want)
+		}
+		wantNeg := Diverging(-0.5) // shared: −2 / 4
+		if per {
+			wantNeg = Diverging(-1) // its own: −2 / 2
+		}
+		if got := cellColour(t, img, st[0].Rect, 2, 0, 0); got != wantNeg {
+			t.Errorf("per tile %v: channel 0's −2 is %v, want %v", per, got, wantNeg)
+		}
+	}
+	// Overlay of channel 1 at the shared range: the cell at value 4 lies at
+	// x = 1 (centres 0 and 1 for jump 1); weight 1 at |v| = scale.
+	base := image.NewNRGBA(image.Rect(0, 0, 2, 1))
+	fill(base, base.Rect, color.NRGBA{90, 90, 90, 255})
+	_, st, _ := MapGrid(tt, "nchw", GridOptions{})
+	lo, hi := MapRange(st)
+	for _, c := range []struct {
+		lo, hi float64
+		name   string
+	}{{lo, hi, "shared"}} {
+		ov, err := MapOverlayIn(base, tt, "nchw", 1, modelio.Layer{RF: 1, Jump: 1}, 1, c.lo, c.hi)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if got, want := ov.NRGBAAt(1, 0), Diverging(1); got != want {
+			t.Errorf("%s overlay at the peak %v, want its tile's colour %v", c.name, got, want)
+		}
+	}
+	olo, ohi := OwnRange(lo, st[1])
+	if !(olo < 0) || ohi != 4 {
+		t.Errorf("OwnRange of a non-negative channel in a signed layer = %v, %v; want a negative lo (diverging map) and hi 4", olo, ohi)
+	}
+}

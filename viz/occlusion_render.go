@@ -3,21 +3,32 @@ package viz
 import (
 	"fmt"
 	"image"
+	"math"
 	"strconv"
 
 	xdraw "golang.org/x/image/draw"
 )
 
 // HeatOptions control RenderOcclusion. The zero value is usable: automatic
-// zoom, opacity 0.6, a scale shared by the panels, no captions.
+// zoom, a scale shared by the panels, lines at half the scale over the
+// image in colour, no captions.
 type HeatOptions struct {
-	// Opacity of the colours over the image, in [0, 1]; 0 means 0.6.
-	Opacity float64
 	// Scale is the score drawn at the ends of the colour map (±Scale); 0
 	// means the largest |score| of all panels, so that they compare.
 	Scale float64
+	// Level is the score at which the lines over the image are drawn (±Level);
+	// 0 means half the scale.
+	Level float64
+	// Grey draws the image under the lines in grey (BT.601 luma) instead of
+	// in colour. Colour is the default: it can be the very cue that decides
+	// between two classes.
+	Grey bool
 	// Captions writes each panel's class label and probability under it.
 	Captions bool
+	// NoCaution leaves the package's Caution out of the notes under the
+	// picture, for a caller that shows it once beside the picture (the
+	// window does); a picture that is saved or shared keeps it.
+	NoCaution bool
 	// Zoom enlarges the image by this whole factor (nearest neighbour, so
 	// the model's pixels stay visible); 0 picks the smallest factor that
 	// makes the larger side at least 256 pixels.
@@ -39,26 +50,30 @@ var (
 	heatNoteStyle  = TextStyle{Size: 11, Color: inkMuted}
 )
 
-// RenderOcclusion draws occlusion results side by side over the image they
-// were computed on: each panel is base, enlarged, with the scores upsampled
-// bilinearly and coloured by OverlayScores, all panels on one scale, one
-// colour bar in the scores' unit ("drop in probability" or "drop in logit")
-// below them, then the settings and the package's Caution (a heatmap is
-// easy to over-read). Two targets side by side
-// answer "why this class and not that one".
+// RenderOcclusion draws occlusion results side by side, one pair of
+// pictures per result: on the left the heatmap alone, each pixel exactly
+// the colour of its score on the colour bar (HeatScores), on the right the
+// image the model saw, in colour unless Grey, with lines where the score
+// reaches ±Level (ContourScores: solid orange for +Level, dashed blue for
+// −Level). All heatmaps share one scale; one colour bar in the scores' unit
+// ("drop in probability", …) lies below them, then a line saying where the
+// lines are drawn, the settings and the package's Caution (a heatmap is easy
+// to over-read). Two targets side by side answer "why this class and not
+// that one".
 //
 // base must be the image the model saw (prep.Fit's result): occ[i].Width ×
 // occ[i].Height pixels. It panics, naming the problem, when occ is empty,
-// when base's size differs from the results', when the results mix score
-// kinds, sizes or positions that cannot share a picture, or when Opacity is
-// outside [0, 1]: mistakes of the caller, not conditions of the data.
+// when base's size differs from the results', or when the results mix
+// score kinds, sizes or positions that cannot share a picture: mistakes of
+// the caller, not conditions of the data.
 func RenderOcclusion(base image.Image, occ []*Occlusion, o HeatOptions) *image.NRGBA {
 	img, _ := renderOcclusion(base, occ, o)
 	return img
 }
 
-// renderOcclusion is RenderOcclusion returning also where each panel's
-// image lies in the picture.
+// renderOcclusion is RenderOcclusion returning also where each panel lies
+// in the picture: the heatmaps first (one per result), then the images
+// with lines, in the same order.
 func renderOcclusion(base image.Image, occ []*Occlusion, o HeatOptions) (*image.NRGBA, []image.Rectangle) {
 	if len(occ) == 0 {
 		panic("viz: RenderOcclusion: no occlusion results")
@@ -80,16 +95,13 @@ func renderOcclusion(base image.Image, occ []*Occlusion, o HeatOptions) (*image.
 		}
 		grids = append(grids, r.Scores)
 	}
-	opacity := o.Opacity
-	if opacity == 0 {
-		opacity = 0.6
-	}
-	if !(opacity >= 0 && opacity <= 1) {
-		panic(fmt.Sprintf("viz: RenderOcclusion: opacity %v is outside 0..1", o.Opacity))
-	}
 	scale := o.Scale
 	if !(scale > 0) {
 		scale = ScoreScale(grids...)
+	}
+	level := o.Level
+	if !(level > 0) {
+		level = scale / 2
 	}
 	zoom := o.Zoom
 	if zoom <= 0 {
@@ -123,11 +135,18 @@ func renderOcclusion(base image.Image, occ []*Occlusion, o HeatOptions) (*image.
 	if o.Captions {
 		captionH = 6 + labelH + 2 + probH
 	}
-	width := 2*heatMargin + len(occ)*pw + (len(occ)-1)*heatGap
+	// One pair per result: heatmap, a small gap, the image with lines.
+	const pairGap = 6
+	pairW := 2*pw + pairGap
+	width := 2*heatMargin + len(occ)*pairW + (len(occ)-1)*heatGap
 	width = max(width, 2*heatMargin+heatMinBar)
 	inner := width - 2*heatMargin
 	r0 := occ[0]
-	text := fmt.Sprintf("Patch %d px, stride %d px, %s fill. %s", r0.Patch, r0.Stride, r0.Fill, Caution)
+	text := fmt.Sprintf("Left of each pair: the %s, each colour read on the bar. Right: the image the model saw, with lines where it reaches %s (solid) and %s (dashed). Patch %d px, stride %d px, %s fill.",
+		r0.Unit(), levelLabel(level, scale), levelLabel(-level, scale), r0.Patch, r0.Stride, r0.Fill)
+	if !o.NoCaution {
+		text += " " + Caution
+	}
 	for _, r := range occ {
 		// Beside the heatmap it concerns: a saturated probability says
 		// little, and the note says what to score instead.
@@ -140,13 +159,16 @@ func renderOcclusion(base image.Image, occ []*Occlusion, o HeatOptions) (*image.
 	height := heatMargin + ph + captionH + heatGap + heatBarH + 8 + len(notes)*noteH + heatMargin
 	img := mustCanvas("occlusion picture", width, height, Light)
 
-	x0 := heatMargin + (inner-(len(occ)*pw+(len(occ)-1)*heatGap))/2
-	rects := make([]image.Rectangle, len(occ))
+	x0 := heatMargin + (inner-(len(occ)*pairW+(len(occ)-1)*heatGap))/2
+	rects := make([]image.Rectangle, 2*len(occ))
 	for i, r := range occ {
-		panel := OverlayScores(big, r.Scores, scaled(r.Ys), scaled(r.Xs), r.Patch*zoom, scale, opacity)
-		at := image.Pt(x0+i*(pw+heatGap), heatMargin)
-		paste(img, panel, at)
+		ys, xs, p := scaled(r.Ys), scaled(r.Xs), r.Patch*zoom
+		at := image.Pt(x0+i*(pairW+heatGap), heatMargin)
+		paste(img, HeatScores(pw, ph, r.Scores, ys, xs, p, scale), at)
 		rects[i] = image.Rectangle{at, at.Add(image.Pt(pw, ph))}
+		on := at.Add(image.Pt(pw+pairGap, 0))
+		paste(img, ContourScores(big, r.Scores, ys, xs, p, level, max(3, zoom), o.Grey), on)
+		rects[len(occ)+i] = image.Rectangle{on, on.Add(image.Pt(pw, ph))}
 		if o.Captions {
 			label := r.Label
 			if label == "" {
@@ -155,7 +177,7 @@ func renderOcclusion(base image.Image, occ []*Occlusion, o HeatOptions) (*image.
 				label += " (" + strconv.Itoa(r.Target) + ")"
 			}
 			y := heatMargin + ph + 6
-			DrawText(img, at.X, y, fitText(label, pw, heatLabelStyle), heatLabelStyle)
+			DrawText(img, at.X, y, fitText(label, pairW, heatLabelStyle), heatLabelStyle)
 			ps := formatProbability(r.Probability)
 			prob := "p = " + ps
 			if ps[0] == '<' || ps[0] == '>' {
@@ -167,7 +189,7 @@ func renderOcclusion(base image.Image, occ []*Occlusion, o HeatOptions) (*image.
 			case ScoreLogProb:
 				prob += ", log p " + fmtG(r.Base)
 			}
-			DrawText(img, at.X, y+labelH+2, fitText(prob, pw, heatProbStyle), heatProbStyle)
+			DrawText(img, at.X, y+labelH+2, fitText(prob, pairW, heatProbStyle), heatProbStyle)
 		}
 	}
 	y := heatMargin + ph + captionH + heatGap
@@ -178,4 +200,52 @@ func renderOcclusion(base image.Image, occ []*Occlusion, o HeatOptions) (*image.
 		y += noteH
 	}
 	return img, rects
+}
+
+// levelLabel writes a line level in the colour bar's number format.
+func levelLabel(v, scale float64) string {
+	if math.Abs(v) >= 1e5 || math.Abs(v) < 1e-3 {
+		return sciLabel(v, 2)
+	}
+	dec := 2 - int(math.Floor(math.Log10(math.Abs(scale))))
+	return formatFixed(v, max(dec, 0))
+}
+
+// OcclusionPair draws one result the way RenderOcclusion draws each: the
+// heatmap alone (HeatScores at ±scale) and, 6 pixels to its right, base
+// with lines at ±scale/2 (ContourScores, in colour unless grey), both
+// enlarged zoom times (nearest neighbour; zoom < 1 means 1). base must be
+// the image the model saw, r.Width × r.Height pixels; scale ≤ 0 means the
+// result's largest |score|. It panics on the mistakes RenderOcclusion
+// panics on.
+func OcclusionPair(base image.Image, r *Occlusion, scale float64, zoom int, grey bool) *image.NRGBA {
+	if r == nil || base == nil {
+		panic("viz: OcclusionPair: nil result or image")
+	}
+	zoom = max(1, zoom)
+	w, h := base.Bounds().Dx(), base.Bounds().Dy()
+	if r.Width != w || r.Height != h {
+		panic(fmt.Sprintf("viz: OcclusionPair: image is %d×%d but the result was computed on %d×%d", w, h, r.Width, r.Height))
+	}
+	if !(scale > 0) {
+		scale = ScoreScale(r.Scores)
+	}
+	pw, ph := w*zoom, h*zoom
+	big := flatten(base, Light)
+	if zoom > 1 {
+		big = image.NewNRGBA(image.Rect(0, 0, pw, ph))
+		xdraw.NearestNeighbor.Scale(big, big.Rect, base, base.Bounds(), xdraw.Src, nil)
+	}
+	scaled := func(p []int) []int {
+		out := make([]int, len(p))
+		for i, v := range p {
+			out[i] = v * zoom
+		}
+		return out
+	}
+	ys, xs, p := scaled(r.Ys), scaled(r.Xs), r.Patch*zoom
+	out := mustCanvas("occlusion pair", 2*pw+6, ph, Light)
+	paste(out, HeatScores(pw, ph, r.Scores, ys, xs, p, scale), image.Point{})
+	paste(out, ContourScores(big, r.Scores, ys, xs, p, scale/2, max(3, zoom), grey), image.Pt(pw+6, 0))
+	return out
 }

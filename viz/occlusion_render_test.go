@@ -52,15 +52,15 @@ func checkPanel(t *testing.T, what string, img *image.NRGBA, r image.Rectangle, 
 }
 
 func TestRenderOcclusionSharedScale(t *testing.T) {
-	// Two panels with uniform scores 0.5 and 0.25 at full opacity: with the
-	// shared scale (the largest |score|, 0.5) the first is Diverging(1) and
-	// the second Diverging(0.5) everywhere; each colour is the documented
-	// blend (1−a)·image + a·colour with a = 1.
+	// Two results with uniform scores 0.5 and 0.25: with the shared scale
+	// (the largest |score|, 0.5) the first heatmap is Diverging(1) and the
+	// second Diverging(0.5) at every pixel, with nothing of the image mixed
+	// in (the documented HeatScores colour, readable on the bar).
 	base := uniformImage(32, 24, color.NRGBA{90, 120, 150, 255})
 	occ := []*Occlusion{fakeOcclusion(32, 24, 8, 4, 0.5, 2, "hex nut"), fakeOcclusion(32, 24, 8, 4, 0.25, 4, "")}
-	img, rects := renderOcclusion(base, occ, HeatOptions{Opacity: 1, Captions: true})
-	if len(rects) != 2 {
-		t.Fatalf("%d panels", len(rects))
+	img, rects := renderOcclusion(base, occ, HeatOptions{Captions: true})
+	if len(rects) != 4 {
+		t.Fatalf("%d panels, want 2 heatmaps and 2 images", len(rects))
 	}
 	// Zoom: the smallest whole factor bringing the larger side to 256 (256/32 = 8).
 	for i, r := range rects {
@@ -71,63 +71,97 @@ func TestRenderOcclusionSharedScale(t *testing.T) {
 			t.Errorf("panel %d at %v outside the picture %v", i, r, img.Rect)
 		}
 	}
-	if rects[0].Overlaps(rects[1]) || rects[0].Min.Y != rects[1].Min.Y || rects[1].Min.X <= rects[0].Max.X {
-		t.Errorf("panels not side by side: %v %v", rects[0], rects[1])
+	// Left to right: heatmap 0, image 0, heatmap 1, image 1, on one row.
+	order := []image.Rectangle{rects[0], rects[2], rects[1], rects[3]}
+	for i := 1; i < len(order); i++ {
+		if order[i].Min.Y != order[0].Min.Y || order[i].Min.X <= order[i-1].Max.X {
+			t.Errorf("panels not side by side in pairs: %v", order)
+		}
 	}
-	checkPanel(t, "first panel", img, rects[0], Diverging(1))
-	checkPanel(t, "second panel", img, rects[1], Diverging(0.5))
+	checkPanel(t, "first heatmap", img, rects[0], refDiverging(1))
+	checkPanel(t, "second heatmap", img, rects[1], refDiverging(0.5))
 
-	// A fixed scale of 1 makes them Diverging(0.5) at full weight and
-	// Diverging(0.25) at weight smoothstep(2·0.25/1) = 0.5 over the grey
-	// image.
-	img, rects = renderOcclusion(base, occ, HeatOptions{Opacity: 1, Scale: 1})
-	checkPanel(t, "first panel, scale 1", img, rects[0], Diverging(0.5))
-	checkPanel(t, "second panel, scale 1", img, rects[1], overlayPixel(color.NRGBA{90, 120, 150, 255}, 0.25, 1, 1))
+	// A fixed scale of 1 makes them Diverging(0.5) and Diverging(0.25).
+	img, rects = renderOcclusion(base, occ, HeatOptions{Scale: 1})
+	checkPanel(t, "first heatmap, scale 1", img, rects[0], refDiverging(0.5))
+	checkPanel(t, "second heatmap, scale 1", img, rects[1], refDiverging(0.25))
 
 	// Negative scores take the other side of the map.
 	occ[0] = fakeOcclusion(32, 24, 8, 4, -0.5, 2, "")
-	img, rects = renderOcclusion(base, occ, HeatOptions{Opacity: 1})
-	checkPanel(t, "negative panel", img, rects[0], Diverging(-1))
-}
-
-// overlayPixel is the colour OverlayScores documents for an image pixel p
-// under score v: the map's colour from its definition (refDiverging)
-// composited over the grey by Porter–Duff over (refOver), within one 8-bit
-// step in checkPanel: out = (1 − a)·grey + a·Diverging(v/scale), a = opacity ·
-// smoothstep(min(1, 2|v|/scale)), grey the BT.601 luma 0.299 R + 0.587 G +
-// 0.114 B, each channel rounded.
-func overlayPixel(p color.NRGBA, v, scale, opacity float64) color.NRGBA {
-	grey := uint8(math.Round(0.299*float64(p.R) + 0.587*float64(p.G) + 0.114*float64(p.B)))
-	t := math.Min(1, 2*math.Abs(v)/scale)
-	a := opacity * t * t * (3 - 2*t)
-	return refOver(color.NRGBA{grey, grey, grey, 255}, refDiverging(v/scale), a)
+	img, rects = renderOcclusion(base, occ, HeatOptions{})
+	checkPanel(t, "negative heatmap", img, rects[0], refDiverging(-1))
 }
 
 func TestRenderOcclusionImage(t *testing.T) {
-	// Uniform scores at opacity 0.5 over a two-colour image: each pixel
-	// follows the documented blend (overlayPixel), and the enlargement
-	// (zoom 4 on 64×48) keeps the left half left.
-	base := uniformImage(64, 48, color.NRGBA{200, 40, 10, 255})
-	fill(base, image.Rect(32, 0, 64, 48), color.NRGBA{10, 40, 200, 255})
-	for _, v := range []float64{0, 0.1, -0.3} {
-		occ := []*Occlusion{fakeOcclusion(64, 48, 16, 8, v, 0, "")}
-		img, rects := renderOcclusion(base, occ, HeatOptions{Opacity: 0.5, Scale: 0.4})
-		r := rects[0]
-		if r.Dx() != 256 || r.Dy() != 192 {
-			t.Fatalf("panel %v, want 256×192 (zoom 4)", r)
+	// Uniform scores over a two-colour image, scale 0.4 (lines at ±0.2):
+	// the image beside the heatmap keeps its colours (or turns grey, BT.601
+	// luma, with Grey), and the enlargement (zoom 4 on 64×48) keeps the
+	// left half left. A score of 0 or 0.1 draws no line; −0.3 covers the
+	// whole image, a region with no edge inside the picture, so no line
+	// either (a region is left open where it runs off the image).
+	red, blue := color.NRGBA{200, 40, 10, 255}, color.NRGBA{10, 40, 200, 255}
+	base := uniformImage(64, 48, red)
+	fill(base, image.Rect(32, 0, 64, 48), blue)
+	luma := func(c color.NRGBA) color.NRGBA { // 0.299 R + 0.587 G + 0.114 B, rounded (ITU-R BT.601)
+		g := uint8(math.Round(0.299*float64(c.R) + 0.587*float64(c.G) + 0.114*float64(c.B)))
+		return color.NRGBA{g, g, g, 255}
+	}
+	for _, grey := range []bool{false, true} {
+		left, right := red, blue
+		if grey {
+			left, right = luma(red), luma(blue)
 		}
-		left := overlayPixel(color.NRGBA{200, 40, 10, 255}, v, 0.4, 0.5)
-		right := overlayPixel(color.NRGBA{10, 40, 200, 255}, v, 0.4, 0.5)
-		checkPanel(t, fmt.Sprintf("score %g, left half", v), img, image.Rect(r.Min.X, r.Min.Y, r.Min.X+128, r.Max.Y), left)
-		checkPanel(t, fmt.Sprintf("score %g, right half", v), img, image.Rect(r.Min.X+128, r.Min.Y, r.Max.X, r.Max.Y), right)
+		for _, v := range []float64{0, 0.1, -0.3} {
+			occ := []*Occlusion{fakeOcclusion(64, 48, 16, 8, v, 0, "")}
+			img, rects := renderOcclusion(base, occ, HeatOptions{Scale: 0.4, Grey: grey})
+			r := rects[1]
+			if r.Dx() != 256 || r.Dy() != 192 {
+				t.Fatalf("image panel %v, want 256×192 (zoom 4)", r)
+			}
+			in := r
+			checkPanel(t, fmt.Sprintf("grey %v, score %g, left half", grey, v), img, image.Rect(in.Min.X, in.Min.Y, r.Min.X+128, in.Max.Y), left)
+			checkPanel(t, fmt.Sprintf("grey %v, score %g, right half", grey, v), img, image.Rect(r.Min.X+128, in.Min.Y, in.Max.X, in.Max.Y), right)
+		}
 	}
 	occ := []*Occlusion{fakeOcclusion(64, 48, 16, 8, 0.2, 0, "")}
-	img := RenderOcclusion(base, occ, HeatOptions{Opacity: 0.5})
+	img := RenderOcclusion(base, occ, HeatOptions{})
 
 	// The same call draws the same bytes.
-	again := RenderOcclusion(base, occ, HeatOptions{Opacity: 0.5})
+	again := RenderOcclusion(base, occ, HeatOptions{})
 	if !bytes.Equal(img.Pix, again.Pix) || img.Rect != again.Rect {
 		t.Error("two renderings of the same result differ")
+	}
+}
+
+// TestContourScoresLine: a score grid with one cell at 1 and the rest 0
+// (patch 1 at positions 0..4, so each cell is one pixel and the bilinear
+// field between centres is the tent of the middle cell): at level 0.5 the
+// region is the pixels where the tent reaches 0.5, here only the centre
+// pixel (2, 2) (its 4-neighbours are exactly 0). With width 2 the line
+// covers the edge's pixels on both sides: the centre and, at distance 1,
+// its 4-neighbours; at distance 2 ((0, 2) and the like) and √2 the white
+// edge; (0, 0), at √8, keeps the image.
+func TestContourScoresLine(t *testing.T) {
+	grid := make([][]float64, 5)
+	for i := range grid {
+		grid[i] = make([]float64, 5)
+	}
+	grid[2][2] = 1
+	pos := []int{0, 1, 2, 3, 4}
+	base := uniformImage(5, 5, color.NRGBA{90, 90, 90, 255})
+	out := ContourScores(base, grid, pos, pos, 1, 0.5, 2, false)
+	for _, p := range []image.Point{{2, 2}, {1, 2}, {3, 2}, {2, 1}, {2, 3}} {
+		if got := out.NRGBAAt(p.X, p.Y); got != Diverging(1) {
+			t.Errorf("pixel %v: %v, want the solid line %v", p, got, Diverging(1))
+		}
+	}
+	for _, p := range []image.Point{{0, 2}, {2, 0}, {1, 1}, {3, 3}} {
+		if got := out.NRGBAAt(p.X, p.Y); got != (color.NRGBA{255, 255, 255, 255}) {
+			t.Errorf("pixel %v: %v, want the white edge", p, got)
+		}
+	}
+	if got := out.NRGBAAt(0, 0); got != (color.NRGBA{90, 90, 90, 255}) {
+		t.Errorf("far corner %v, want the image unchanged", got)
 	}
 }
 
@@ -171,7 +205,6 @@ func TestRenderOcclusionPanics(t *testing.T) {
 		{"nil image", nil, []*Occlusion{ok}, HeatOptions{}, "nil image"},
 		{"size", uniformImage(31, 32, color.NRGBA{}), []*Occlusion{ok}, HeatOptions{}, "image is 31×32 but result 0 was computed on 32×32"},
 		{"mixed", base, []*Occlusion{ok, logit}, HeatOptions{}, "mix"},
-		{"opacity", base, []*Occlusion{ok}, HeatOptions{Opacity: 1.5}, "opacity 1.5"},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			func() {
@@ -189,7 +222,8 @@ func TestRenderOcclusionPanics(t *testing.T) {
 
 // TestGoldenOcclusion: two targets side by side on goldenBase with
 // goldenScores (positive peak 0.4) and the same grid halved and negated for
-// the second class, captions on, logit and probability in the captions;
+// the second class, captions on, logit and probability in the captions,
+// each heatmap beside the image in colour with lines at half the scale;
 // golden file testdata/golden/occlusion_render.png.
 func TestGoldenOcclusion(t *testing.T) {
 	g, pos := goldenScores()
@@ -203,5 +237,19 @@ func TestGoldenOcclusion(t *testing.T) {
 			second.Scores[i] = append(second.Scores[i], -v/2)
 		}
 	}
-	checkGolden(t, "occlusion_render.png", RenderOcclusion(goldenBase(), []*Occlusion{first, &second}, HeatOptions{Captions: true, Opacity: 0.85}))
+	checkGolden(t, "occlusion_render.png", RenderOcclusion(goldenBase(), []*Occlusion{first, &second}, HeatOptions{Captions: true}))
+}
+
+// TestRenderOcclusionNoCaution: the window shows the caution once beside
+// the picture, so NoCaution leaves it out of the notes; a picture made
+// for saving keeps it. The caution is two lines or more at this width, so
+// the picture without it is shorter.
+func TestRenderOcclusionNoCaution(t *testing.T) {
+	base := uniformImage(32, 32, color.NRGBA{128, 128, 128, 255})
+	occ := []*Occlusion{fakeOcclusion(32, 32, 8, 8, 0.1, 1, "")}
+	with := RenderOcclusion(base, occ, HeatOptions{})
+	without := RenderOcclusion(base, occ, HeatOptions{NoCaution: true})
+	if without.Rect.Dy() >= with.Rect.Dy() {
+		t.Errorf("without the caution %v, with it %v: want shorter", without.Rect, with.Rect)
+	}
 }

@@ -128,7 +128,7 @@ func Report(in ReportInput) *image.NRGBA {
 	settingsTop := cautionTop - 24 - settingsHeight(in.Settings)
 	legendH := 0
 	if in.Legend != nil && !in.Legend.Bounds().Empty() {
-		legendH = min(in.Legend.Bounds().Dy(), 90) + 16
+		legendH = min(in.Legend.Bounds().Dy(), 120) + 16
 	}
 	panelArea := image.Rect(margin, y, W-margin, settingsTop-24-legendH)
 	if len(in.Panels) > 0 {
@@ -139,7 +139,7 @@ func Report(in ReportInput) *image.NRGBA {
 	}
 	if legendH > 0 {
 		lb := in.Legend.Bounds()
-		lw, lh := min(lb.Dx(), inner), min(lb.Dy(), 90)
+		lw, lh := min(lb.Dx(), inner), min(lb.Dy(), 120)
 		r := image.Rect(W/2-lw/2, panelArea.Max.Y+16, W/2-lw/2+lw, panelArea.Max.Y+16+lh)
 		if lw == lb.Dx() && lh == lb.Dy() {
 			paste(img, in.Legend, r.Min)

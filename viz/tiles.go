@@ -79,7 +79,9 @@ const frameRing = 3
 //
 // Flagged filters get a frame in the ring around the tile: solid magenta-red
 // for zero_kernel and dead, dashed amber for duplicate, rare and constant.
-// With Labels, the line under the tile reads "index norm" followed by the
+// With Labels, the line under the tile reads "#index |w|=norm" (the L2 norm
+// of the whole filter, all input channels, even when one is drawn) followed
+// by the
 // flag letters (Z zero kernel, D duplicate, X dead, R rare, C constant).
 func Tiles(k *modelio.Kernels, o TileOptions) (*image.NRGBA, []TileInfo, error) {
 	if err := checkKernels(k); err != nil {
@@ -245,8 +247,10 @@ func symByte(v, s float64) uint8 {
 	return uint8(math.Round(math.Max(-1, math.Min(1, v/s))*127 + 128))
 }
 
+// tileLabel is the line under a tile: "#index |w|=norm" (the filter's L2
+// norm over all its input channels) and the flag letters.
 func tileLabel(m int, norm float64, flags []modelio.Flag) string {
-	s := fmt.Sprintf("%d %s", m, fmtG(norm))
+	s := fmt.Sprintf("#%d |w|=%s", m, fmtG(norm))
 	var letters []string
 	for _, f := range uniqueSorted(flags) {
 		if l, ok := flagLetter[f]; ok {
@@ -281,4 +285,53 @@ func checkKernels(k *modelio.Kernels) error {
 		return fmt.Errorf("viz: %w", err)
 	}
 	return nil
+}
+
+// TileLegend draws the colour bar of a [Tiles] picture drawn with the same
+// kernels and options, w×h pixels (ColorBar's limits apply): the weights
+// from −s to +s, s the largest |weight| drawn (TileOptions.PerFilter: −1 to
+// 1, each filter divided by its own), with the tiles' own colours — for the
+// RGB rendering the grey ramp that a weight equal in the three channels
+// gives (each channel alone runs the same way from dark to its full
+// colour), otherwise the diverging map of the drawn input channel — and a
+// unit that says which input channel is drawn.
+func TileLegend(k *modelio.Kernels, o TileOptions, w, h int) (*image.NRGBA, error) {
+	if err := checkKernels(k); err != nil {
+		return nil, err
+	}
+	rgb := o.Slice == -1 && k.C == 3
+	slice := o.Slice
+	if slice == -1 && k.C != 3 {
+		slice = 0
+	}
+	if slice < -1 || slice >= k.C {
+		return nil, fmt.Errorf("viz: kernels of %s: slice %d is outside 0..%d", kname(k), slice, k.C-1)
+	}
+	s := 0.0
+	for m := range k.M {
+		for c := range k.C {
+			if !rgb && c != slice {
+				continue
+			}
+			for i := range k.KH * k.KW {
+				s = math.Max(s, math.Abs(float64(k.W[(m*k.C+c)*k.KH*k.KW+i])))
+			}
+		}
+	}
+	unit := "weight per colour channel, mid-grey = 0"
+	if !rgb {
+		unit = fmt.Sprintf("weight of input channel %d of %d", slice, k.C)
+	}
+	if o.PerFilter || !(s > 0) {
+		s = 1
+		unit += " ÷ the filter's largest |weight|"
+	}
+	cmap := Diverging
+	if rgb {
+		cmap = func(v float64) color.NRGBA {
+			b := symByte(v, 1)
+			return color.NRGBA{b, b, b, 255}
+		}
+	}
+	return ColorBar(w, h, -s, s, unit, cmap), nil
 }

@@ -254,8 +254,8 @@ func TestTilesLabels(t *testing.T) {
 	if !slices.Equal(a[0], b[0]) || !slices.Equal(a[1], b[1]) {
 		t.Error("labels changed the tile")
 	}
-	if got := tileLabel(7, 0.4567, []modelio.Flag{modelio.FlagDuplicate, modelio.FlagDead, modelio.FlagDuplicate}); got != "7 0.457 XD" {
-		t.Errorf("label %q, want %q", got, "7 0.457 XD")
+	if got := tileLabel(7, 0.4567, []modelio.Flag{modelio.FlagDuplicate, modelio.FlagDead, modelio.FlagDuplicate}); got != "#7 |w|=0.457 XD" {
+		t.Errorf("label %q, want %q", got, "#7 |w|=0.457 XD")
 	}
 }
 

@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"image"
+	"image/draw"
 	"slices"
 	"strings"
 
@@ -279,9 +280,24 @@ func (w *Workspace) Tiles(layer string, o viz.TileOptions, scan *analysis.ScanRe
 	o.BGR = c.BGR
 	img, info, err := viz.Tiles(k, o)
 	if err != nil {
-		return nil, nil, fmt.Errorf("core: %s: filters of %s: %w", w.Model.Name, k.Node, err)
+		return nil, nil, fmt.Errorf("%s: filters of %s: %w", w.Model.Name, k.Node, err)
 	}
-	return img, info, nil
+	// The colour legend under the tiles; the tiles' places move with them.
+	const margin = 8
+	pw, ph := img.Bounds().Dx(), img.Bounds().Dy()
+	barW := max(260, min(pw, 560))
+	bar, err := viz.TileLegend(k, o, barW, legendHeight)
+	if err != nil {
+		return nil, nil, fmt.Errorf("%s: filters of %s: %w", w.Model.Name, k.Node, err)
+	}
+	page := image.NewNRGBA(image.Rect(0, 0, max(pw, barW)+2*margin, ph+legendHeight+3*margin))
+	draw.Draw(page, page.Rect, &image.Uniform{viz.Light}, image.Point{}, draw.Src)
+	draw.Draw(page, image.Rect(margin, margin, margin+pw, margin+ph), img, image.Point{}, draw.Src)
+	draw.Draw(page, image.Rect(margin, 2*margin+ph, margin+barW, 2*margin+ph+legendHeight), bar, image.Point{}, draw.Src)
+	for i := range info {
+		info[i].Rect = info[i].Rect.Add(image.Pt(margin, margin))
+	}
+	return page, info, nil
 }
 
 // ScanFlags returns the scan's flags per channel for the activation layer fed

@@ -525,3 +525,22 @@ func TestOpenModelErrors(t *testing.T) {
 		}
 	}
 }
+
+// TestMessage: what a user reads names the file and the problem in plain
+// words: the internal package prefixes go (at the start, after a space or a
+// parenthesis), a file named twice by wrapping is named once, the message
+// is one line, and a word that merely ends like a prefix ("encore: ") stays.
+// Cases written by hand from messages the packages produce (common practice).
+func TestMessage(t *testing.T) {
+	for _, c := range []struct{ in, want string }{
+		{"prep: /x/a.png: not a PNG, JPEG, GIF, BMP, TIFF or WebP image", "/x/a.png: not a PNG, JPEG, GIF, BMP, TIFF or WebP image"},
+		{"/tmp/a/broken.onnx: modelio: broken.onnx: not an ONNX model", "/tmp/a/broken.onnx: not an ONNX model"},
+		{"activation maps of /conv1: viz: tensor \"x\": shape [2] (rank 1)", "activation maps of /conv1: tensor \"x\": shape [2] (rank 1)"},
+		{"core: m.onnx: filters of c (infer: no kernel)", "m.onnx: filters of c (no kernel)"},
+		{"encore: fine\nsecond line", "encore: fine; second line"},
+	} {
+		if got := Message(errors.New(c.in)); got != c.want {
+			t.Errorf("Message(%q) = %q, want %q", c.in, got, c.want)
+		}
+	}
+}

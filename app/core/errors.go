@@ -3,6 +3,7 @@ package core
 import (
 	"errors"
 	"fmt"
+	"regexp"
 	"strings"
 
 	"fovea/modelio"
@@ -51,4 +52,30 @@ func IsInput(err error) bool {
 	var le *infer.LibraryError
 	var me *modelio.Error
 	return errors.As(err, &ie) || errors.As(err, &le) || errors.As(err, &me)
+}
+
+// internalPrefix matches the package prefixes Fovea's packages put on their
+// messages ("prep: ", "modelio: ", …), which help in logs and tests but say
+// nothing to a user: at the start of the message or after a space or "(".
+var internalPrefix = regexp.MustCompile(`(^|[\s(])(?:core|modelio|infer|prep|viz|analysis|classes): `)
+
+// samePath matches a path followed by its own file name ("/dir/m.onnx:
+// m.onnx: "), which wrapping can produce.
+var samePath = regexp.MustCompile(`([^\s:]*/([^/\s:]+)): ([^/\s:]+): `)
+
+// Message is err's message as a user should read it, in the window and on
+// the command line alike: without the internal package prefixes, a file
+// named once, on one line. The file and the problem stay.
+func Message(err error) string {
+	if err == nil {
+		return ""
+	}
+	msg := internalPrefix.ReplaceAllString(err.Error(), "$1")
+	msg = samePath.ReplaceAllStringFunc(msg, func(m string) string {
+		if g := samePath.FindStringSubmatch(m); g[2] == g[3] {
+			return g[1] + ": "
+		}
+		return m
+	})
+	return strings.Join(strings.Fields(strings.ReplaceAll(msg, "\n", "; ")), " ")
 }

@@ -33,7 +33,10 @@ func (a *Activations) MapLayer(name string) (modelio.Layer, modelio.Tensor, erro
 
 // MapPicture draws the activation-map grid of one layer (viz.MapGrid) with
 // its colour legend under it, on a light page. Each ChannelStats.Rect says
-// where that channel's tile is in the returned picture.
+// where that channel's tile is in the returned picture. The legend says whose scale
+// it is: one shared across the layer's channels (the default), or each
+// tile's own (PerTile), drawn then as a fraction of each tile's largest
+// |value| because no one set of numbers fits every tile.
 func (a *Activations) MapPicture(layer string, o viz.GridOptions) (*image.NRGBA, []viz.ChannelStats, error) {
 	l, t, err := a.MapLayer(layer)
 	if err != nil {
@@ -41,19 +44,24 @@ func (a *Activations) MapPicture(layer string, o viz.GridOptions) (*image.NRGBA,
 	}
 	grid, stats, err := viz.MapGrid(t, MapLayout, o)
 	if err != nil {
-		return nil, nil, fmt.Errorf("core: activation maps of %s: %w", l.Name, err)
+		return nil, nil, fmt.Errorf("activation maps of %s: %w", l.Name, err)
 	}
 	lo, hi := viz.MapRange(stats)
-	cmap := viz.Sequential
-	if lo < 0 {
-		cmap = viz.Diverging
-	}
+	cmap := mapColours(lo)
 	if !(lo < hi) { // every value the same (often all zero): give the legend a range
 		hi = lo + 1
 	}
-	unit := "activation"
+	unit := "activation, scale shared across the layer"
+	if len(stats) == 1 {
+		unit = "activation"
+	}
 	if o.PerTile {
-		unit = "activation (each tile scaled to its own range)"
+		lo, hi = 0, 1
+		unit = "activation ÷ each tile's own peak"
+		if signedLayer(stats) {
+			lo = -1
+			unit = "activation ÷ each tile's own largest |value|"
+		}
 	}
 	// The tiles move with the grid onto the page: Rect says where each is
 	// in the picture returned.
@@ -61,6 +69,23 @@ func (a *Activations) MapPicture(layer string, o viz.GridOptions) (*image.NRGBA,
 		stats[i].Rect = stats[i].Rect.Add(image.Pt(legendMargin, legendMargin))
 	}
 	return withLegend(grid, lo, hi, unit, cmap), stats, nil
+}
+
+// signedLayer reports whether any drawn channel has a negative value: the
+// layer is then drawn with the diverging map.
+func signedLayer(stats []viz.ChannelStats) bool {
+	lo, _ := viz.MapRange(stats)
+	return lo < 0
+}
+
+// mapColours is the colour map of an activation layer whose shared range
+// starts at lo: viz.Sequential for a non-negative layer (after a ReLU),
+// viz.Diverging, white at zero, for a layer with negative values.
+func mapColours(lo float64) func(float64) color.NRGBA {
+	if lo < 0 {
+		return viz.Diverging
+	}
+	return viz.Sequential
 }
 
 // legendHeight is the height of a horizontal colour bar with its labels;
@@ -105,33 +130,51 @@ func Enlarge(img image.Image, factor int) *image.NRGBA {
 }
 
 // OverlayPicture draws one channel of a layer's activation map over the
-// image the model saw (viz.MapOverlay), enlarged by factor (0: to about 256
-// pixels) with nearest-neighbour sampling, with the channel's colour legend
-// under it.
-func (a *Activations) OverlayPicture(layer string, channel int, opacity float64, factor int) (*image.NRGBA, error) {
+// image the model saw (viz.MapOverlayIn), enlarged by factor (0: to about
+// 256 pixels) with nearest-neighbour sampling, with the channel's colour
+// legend under it. The colours are those of the channel's tile in the grid
+// drawn with the same perTile choice: the same colour map (chosen by the
+// whole layer's sign) and the same scale, the layer's shared one or the
+// channel's own; the legend says which.
+func (a *Activations) OverlayPicture(layer string, channel int, opacity float64, factor int, perTile bool) (*image.NRGBA, error) {
 	l, t, err := a.MapLayer(layer)
 	if err != nil {
 		return nil, err
 	}
-	ov, err := viz.MapOverlay(a.Input, t, MapLayout, channel, l, opacity)
+	_, all, err := viz.MapGrid(t, MapLayout, viz.GridOptions{Zoom: 1})
+	if err != nil {
+		return nil, fmt.Errorf("activation map of %s: %w", l.Name, err)
+	}
+	if channel < 0 || channel >= len(all) {
+		return nil, inputf("", "channel %d of %s: the layer has channels 0 to %d", channel, l.Name, len(all)-1)
+	}
+	layerLo, layerHi := viz.MapRange(all)
+	lo, hi := layerLo, layerHi
+	whose := "scale shared across the layer"
+	if perTile {
+		lo, hi = viz.OwnRange(layerLo, all[channel])
+		whose = "this channel's own scale"
+	}
+	if !(lo < hi) && lo == 0 && hi == 0 {
+		hi = 1 // an all-zero layer: any range draws it as zero
+	}
+	ov, err := viz.MapOverlayIn(a.Input, t, MapLayout, channel, l, opacity, lo, hi)
 	if err != nil {
 		return nil, inputErr("", fmt.Errorf("activation map of %s: %w", l.Name, err))
 	}
-	_, stats, err := viz.MapGrid(t, MapLayout, viz.GridOptions{Channels: []int{channel}})
-	if err != nil {
-		return nil, fmt.Errorf("core: activation map of %s: %w", l.Name, err)
+	// The bar: the range as numbers. A signed layer keeps the diverging map
+	// even for a channel whose own values are all ≥ 0 (OwnRange's lo is
+	// then a hair below zero, drawn as 0).
+	cmap := mapColours(layerLo)
+	barLo := lo
+	if barLo > -1e-300 {
+		barLo = 0
 	}
-	// MapOverlay colours with the channel's own range (viz.MapColor).
-	lo, hi := viz.MapRange(stats)
-	cmap := viz.Sequential
-	if lo < 0 {
-		cmap = viz.Diverging
-	}
-	if !(lo < hi) {
-		hi = lo + 1
+	if !(barLo < hi) {
+		hi = barLo + 1
 	}
 	if factor <= 0 {
 		factor = max(1, 256/max(1, ov.Bounds().Dx()))
 	}
-	return withLegend(Enlarge(ov, factor), lo, hi, fmt.Sprintf("activation of channel %d of %s", channel, l.Name), cmap), nil
+	return withLegend(Enlarge(ov, factor), barLo, hi, fmt.Sprintf("channel %d, %s", channel, whose), cmap), nil
 }

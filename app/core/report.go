@@ -28,6 +28,9 @@ type ReportInput struct {
 	// Versus.
 	Occlusions []*viz.Occlusion
 	Date       time.Time // printed on the page; zero = now
+	// Grey draws the image under the heatmap's lines in grey instead of in
+	// colour.
+	Grey bool
 }
 
 // ReportContent is what a report page states, in the form `report --json`
@@ -42,7 +45,7 @@ type ReportContent struct {
 	LabelsSHA256 string          `json:"labels_sha256,omitempty"` // of the label file, when they came from one
 	Preprocess   prep.Config     `json:"preprocess"`
 	Top          []ReportClass   `json:"top"`
-	Expected     *ReportClass    `json:"expected"` // the class it should have been (--versus), or null
+	Expected     *ReportClass    `json:"expected"` // the class it should have been (--expected), or null
 	Occlusion    ReportOcclusion `json:"occlusion"`
 	Heatmaps     []ReportClass   `json:"heatmaps"` // the classes whose heatmaps the page shows, in order
 	Softmax      bool            `json:"softmax_applied"`
@@ -125,7 +128,7 @@ func (w *Workspace) ReportPage(ctx context.Context, in ReportInput, progress fun
 	factor := max(1, 256/max(1, max(cl.Input.Bounds().Dx(), cl.Input.Bounds().Dy())))
 	panels := make([]viz.Panel, len(occ))
 	for i, o := range occ {
-		heat := viz.OverlayScores(cl.Input, o.Scores, o.Ys, o.Xs, o.Patch, scale, 0.6)
+		heat := viz.OcclusionPair(cl.Input, o, scale, factor, in.Grey)
 		role := "class asked for"
 		switch {
 		case o.Target == cl.Top[0].Index:
@@ -133,10 +136,12 @@ func (w *Workspace) ReportPage(ctx context.Context, in ReportInput, progress fun
 		case in.Versus >= 0 && o.Target == in.Versus:
 			role = "expected"
 		}
-		panels[i] = viz.Panel{Image: Enlarge(heat, factor),
+		panels[i] = viz.Panel{Image: heat,
 			Caption: fmt.Sprintf("%s (%s), probability %.1f%%", className(labels, o.Target), role, 100*o.Probability)}
 	}
-	legend := viz.ColorBar(480, 56, -scale, scale, occ[0].Unit(), viz.Diverging)
+	// 100 pixels high: labels of 20 px, about 9.6 pt at the page's 150 dpi,
+	// legible in print.
+	legend := viz.ColorBar(900, 100, -scale, scale, occ[0].Unit(), viz.Diverging)
 
 	expected := ""
 	if in.Versus >= 0 {
@@ -151,11 +156,13 @@ func (w *Workspace) ReportPage(ctx context.Context, in ReportInput, progress fun
 		name = "(unnamed image)"
 	}
 	settings := []string{
+		"model          " + w.Model.Name + "  SHA-256 " + ShortHash(w.Hash),
 		"image          " + name,
 		"preprocessing  " + cfg.String(),
-		"labels         " + labelsFrom,
+		"class names    " + labelsFrom,
 		fmt.Sprintf("occlusion      patch %d px, stride %d px, fill %s, score %s", set.Patch, set.Stride, set.Fill, occ[0].Unit()),
 		"scored         " + occ[0].SourceNote,
+		fmt.Sprintf("lines          on the image where the %s reaches %.2g (solid) or %.2g (dashed)", occ[0].Unit(), scale/2, -scale/2),
 	}
 	for _, o := range occ {
 		if o.Saturated() {
@@ -194,7 +201,7 @@ func (w *Workspace) ReportPage(ctx context.Context, in ReportInput, progress fun
 		Expected:  expected,
 		Panels:    panels,
 		Legend:    legend,
-		ModelName: w.Model.Name,
+		ModelName: w.Model.Name + " (SHA-256 " + ShortHash(w.Hash) + ")",
 		Settings:  settings,
 		Date:      date.Format("2006-01-02"),
 	})
@@ -225,4 +232,15 @@ func softmaxNote(cl *Classification) string {
 		return "the model's output is already a probability distribution"
 	}
 	return "applied by Fovea to the model's output"
+}
+
+// ShortHash is the short form of a model's SHA-256 printed on pages: its
+// first 12 hex digits (48 bits, enough to tell two files named last.onnx
+// apart at a glance; the full digest goes into data, e.g. report --json).
+// A hash shorter than that is returned as it is.
+func ShortHash(h string) string {
+	if len(h) > 12 {
+		return h[:12]
+	}
+	return h
 }

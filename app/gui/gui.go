@@ -30,6 +30,7 @@ package gui
 type Options struct {
 	ORTLib string // the library that was loaded (shown in the about box)
 	Model  string // model to open instead of the embedded demo ("" = demo)
+	Demo   string // with no Model: "unhealthy" opens the demo's unhealthy twin
 	Image  string // image to open instead of the demo image ("" = demo image)
 	Probe  string // folder of probe images: the dead-filter scan runs on it at start
 	View   string // view to open first (one of Views); "" = the one used last

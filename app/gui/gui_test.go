@@ -331,9 +331,24 @@ func checkPrediction(t *testing.T, u *ui, info demoInfo) {
 	if top.Label != want.HealthyPred || math.Abs(top.Probability-want.HealthyProb) > 1e-4+1e-6 {
 		t.Errorf("%s: the window says %s %.5f, PyTorch said %s %.4f", u.imgName, top.Label, top.Probability, want.HealthyPred, want.HealthyProb)
 	}
+	// Each row is the class's label and, beside its bar, the value in text.
 	shown := labelsIn(u.vPredict.rows)
-	if len(shown) != min(topK, len(info.Labels)) || !strings.Contains(shown[0], want.HealthyPred) {
-		t.Errorf("prediction view lists %q, want %d rows starting with %s", shown, topK, want.HealthyPred)
+	if len(shown) != 2*min(topK, len(info.Labels)) || !strings.Contains(shown[0], want.HealthyPred) || shown[1] != percent(top.Probability) {
+		t.Errorf("prediction view lists %q, want %d rows starting with %s and its %s", shown, topK, want.HealthyPred, percent(top.Probability))
+	}
+	// The bar's length is the probability: the fill is that fraction of the
+	// track (of the row's bar, laid out by fractionLayout).
+	for _, o := range test.LaidOutObjects(u.vPredict.rows) {
+		c, ok := o.(*fyne.Container)
+		if !ok || len(c.Objects) != 2 {
+			continue
+		}
+		if fl, ok := c.Layout.(*fractionLayout); ok {
+			track, fill := c.Objects[0].Size().Width, c.Objects[1].Size().Width
+			if track <= 0 || math.Abs(float64(fill/track)-fl.f) > 0.01 {
+				t.Errorf("a bar is filled %v of %v px for probability %v", fill, track, fl.f)
+			}
+		}
 	}
 }
 

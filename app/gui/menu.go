@@ -101,7 +101,7 @@ func (u *ui) stopAll() {
 // readingText explains the pictures and their limits.
 const readingText = `Kernels: each tile is one first-layer filter, drawn at the size it is applied. Mid-grey is zero; with a shared scale, faint tiles are weak filters.
 
-Layer maps: one small picture per channel of the chosen layer's output, brighter where the channel responds more. The receptive field says how much of the image one value of that layer can see.
+Layer maps: one small picture per channel of the chosen layer's output. A layer with no negative value (after a ReLU) runs from dark violet at zero to pale yellow at its strongest response; a layer with negative values (a convolution before its ReLU) is near-white at zero, orange where positive, blue where negative. The legend says whether the scale is shared across the layer or each channel's own; a channel over the image has the same colours and scale as its tile. The receptive field says how much of the image one value of that layer can see.
 
 Occlusion: a grey square slides over the image; each position is coloured by how much hiding it lowered the score of a class. Warm colours: hiding that area hurt the class (the model relied on it). Cool colours: hiding it helped. Both heatmaps share one colour scale.
 

@@ -8,7 +8,8 @@
 # Environment: FOVEA (binary, default: builds bin/fovea), FOVEA_MODEL,
 # FOVEA_IMAGE, FOVEA_PROBE (default: the embedded demo, and for the health
 # view its unhealthy twin scanning the demo's probe images, for the scorecard
-# view the same twin evaluated on them), FOVEA_EXPECT
+# view the same twin evaluated on them; all by name or relative to the
+# repository: the script passes no path of this machine), FOVEA_EXPECTED
 # (the class the occlusion view explains against), SHOT_VIEWS, SHOT_THEMES,
 # SHOT_WAIT (seconds to let a view settle, default 6).
 # Needs Xvfb, ImageMagick (import, convert) and xwininfo.
@@ -51,13 +52,14 @@ for theme in $themes; do
 	for view in $views; do
 		extra=()
 		[ "$view" = health ] && [ -n "${FOVEA_PROBE:-}" ] && extra+=(--probe "$FOVEA_PROBE")
-		# The health view shows the demo's unhealthy twin: it has dead filters.
-		[ "$view" = health ] && [ -z "${FOVEA_MODEL:-}" ] &&
-			extra+=(--model "$root/assets/demo/parts_unhealthy.onnx" --probe "$root/assets/demo/probe")
+		# The health view shows the demo's unhealthy twin, which has dead
+		# filters, scanning the demo's own probe images: no path of this
+		# machine is passed, so none can show in a shot.
+		[ "$view" = health ] && [ -z "${FOVEA_MODEL:-}" ] && extra+=(--demo unhealthy)
 		# The scorecard shows the unhealthy twin's mistakes on the demo's probe images.
 		[ "$view" = scorecard ] && [ -z "${FOVEA_MODEL:-}" ] &&
-			extra+=(--model "$root/assets/demo/parts_unhealthy.onnx" --data assets/demo/probe/labels.csv)
-		[ "$view" = occlusion ] && [ -n "${FOVEA_EXPECT:-}" ] && extra+=(--expect "$FOVEA_EXPECT")
+			extra+=(--demo unhealthy --data assets/demo/probe/labels.csv)
+		[ "$view" = occlusion ] && [ -n "${FOVEA_EXPECTED:-}" ] && extra+=(--expected "$FOVEA_EXPECTED")
 		rm -rf "$home/.config"  # every shot starts from no remembered state
 		"$bin" "${args[@]}" "${extra[@]}" --view "$view" --theme "$theme" >"$home/log" 2>&1 &
 		app=$!

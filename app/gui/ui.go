@@ -6,9 +6,7 @@ import (
 	"image"
 	"os"
 	"path/filepath"
-	"regexp"
 	"runtime"
-	"strings"
 	"sync"
 	"unicode"
 	"unicode/utf8"
@@ -270,7 +268,7 @@ func (u *ui) start() {
 	if u.opts.Model != "" {
 		u.openModelThen(u.opts.Model, after)
 	} else {
-		u.openDemoThen(false, after)
+		u.openDemoThen(u.opts.Demo == "unhealthy", after)
 	}
 }
 
@@ -374,22 +372,10 @@ func (u *ui) rememberDir(path string) {
 	u.prefs.SetString(prefDir, filepath.Dir(path))
 }
 
-var samePath = regexp.MustCompile(`([^\s:]*/([^/\s:]+)): ([^/\s:]+): `)
-
-// plainError is an error's message without the package prefixes ("core: ",
-// "modelio: ", ...) that help in logs but not in a dialog.
+// plainError is an error's message as core.Message gives it (no package
+// prefixes, the file named once), starting with a capital for a dialog.
 func plainError(err error) string {
-	msg := err.Error()
-	for _, p := range []string{"core: ", "modelio: ", "infer: ", "prep: ", "viz: "} {
-		msg = strings.ReplaceAll(msg, p, "")
-	}
-	// "/dir/model.onnx: model.onnx: …" names the file twice.
-	msg = samePath.ReplaceAllStringFunc(msg, func(m string) string {
-		if g := samePath.FindStringSubmatch(m); g[2] == g[3] {
-			return g[1] + ": "
-		}
-		return m
-	})
+	msg := core.Message(err)
 	if msg == "" {
 		return msg
 	}

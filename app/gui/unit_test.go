@@ -127,3 +127,20 @@ func TestPlainError(t *testing.T) {
 		}
 	}
 }
+
+// The probe folder is shown relative to the home folder or by its name,
+// never as a full path of this machine (the full path only on hover).
+func TestHomePath(t *testing.T) {
+	home := t.TempDir()
+	t.Setenv("HOME", home)
+	for _, c := range []struct{ in, want string }{
+		{filepath.Join(home, "probes", "set 1"), "~/probes/set 1"},
+		{home, "~"},
+		{"/nonexistent/checkout/assets/demo/probe", "probe"},
+		{home + "x/elsewhere", "elsewhere"}, // a sibling whose name starts like home's
+	} {
+		if got := homePath(c.in); got != c.want {
+			t.Errorf("homePath(%q) = %q, want %q", c.in, got, c.want)
+		}
+	}
+}

@@ -29,7 +29,7 @@ type healthView struct {
 	content fyne.CanvasObject
 	runner  *runner
 
-	folder     *widget.Label
+	folder     *pathLabel // the probe folder, short (~/… or its name), in full on hover
 	rare       *widget.Entry
 	scanBtn    *widget.Button
 	csvBtn     *widget.Button
@@ -63,7 +63,7 @@ var healthColumns = []struct {
 func newHealthView(u *ui) *healthView {
 	v := &healthView{u: u, sortCol: 2} // fires, ascending: dead filters first
 	v.runner = u.newRunner(true)
-	v.folder = widget.NewLabel("")
+	v.folder = newPathLabel()
 	v.folder.Truncation = fyne.TextTruncateEllipsis
 	choose := widget.NewButtonWithIcon("Folder…", theme.FolderOpenIcon(), u.chooseProbeDir)
 	sick := widget.NewButton("Unhealthy demo", func() { u.openDemo(true) })
@@ -137,7 +137,7 @@ func newHealthView(u *ui) *healthView {
 	bar := container.NewVBox(
 		container.NewBorder(nil, nil, widget.NewLabel("Probe images:"), nil, v.folder),
 		container.NewHBox(choose, sick, widget.NewLabel("   Rare below"),
-			container.NewGridWrap(fyne.NewSize(48, v.rare.MinSize().Height), v.rare), widget.NewLabel("%"), v.scanBtn, v.csvBtn))
+			container.NewGridWrap(fyne.NewSize(48, v.rare.MinSize().Height), v.rare), widget.NewLabel("% of images"), v.scanBtn, v.csvBtn))
 	right := container.NewBorder(v.tilesAbout, nil, nil, nil, v.tiles.box)
 	tip := note("Click a column title to sort; choose a row to see its filters.")
 	tableSide := container.NewBorder(container.NewBorder(nil, nil, v.onlyFlags, nil, tip), nil, nil, nil, v.table)
@@ -231,13 +231,13 @@ func (v *healthView) refresh() {
 	u := v.u
 	switch {
 	case u.scanDir == "" && u.scanDemo:
-		v.folder.SetText("the demo's probe images")
+		v.folder.setPlain("the demo's probe images")
 	case u.scanDir != "":
-		v.folder.SetText(u.scanDir)
+		v.folder.setPath(u.scanDir)
 	case u.ws != nil && u.ws.Demo != "":
-		v.folder.SetText("the demo's probe images (choose a folder to use your own)")
+		v.folder.setPlain("the demo's probe images (choose a folder to use your own)")
 	default:
-		v.folder.SetText("no folder chosen")
+		v.folder.setPlain("no folder chosen")
 	}
 	v.csvBtn.Disable()
 	if r := u.scan; r != nil {
@@ -287,19 +287,19 @@ func (v *healthView) drawTiles() {
 	k, err := u.ws.Kernels(v.conv)
 	if err != nil {
 		v.tiles.set(nil)
-		v.tilesAbout.SetText(err.Error())
+		v.tilesAbout.SetText(plainError(err))
 		return
 	}
 	slice := -1
 	if k.C != 3 && k.C != 1 {
 		slice = 0
 	}
-	a := u.area(fyne.NewSize(0, 200))
+	a := u.area(fyne.NewSize(0, 280)) // 80 of them for the colour legend under the tiles
 	cols, cell := gridFit(k.M, max(k.KH, k.KW), 14, fyne.NewSize(a.Width*0.34, a.Height), 24)
 	img, info, err := u.ws.Tiles(v.conv, viz.TileOptions{Cell: max(2, cell), Columns: cols, Slice: slice}, u.scan)
 	if err != nil {
 		v.tiles.set(nil)
-		v.tilesAbout.SetText(err.Error())
+		v.tilesAbout.SetText(plainError(err))
 		return
 	}
 	v.info = info

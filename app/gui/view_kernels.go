@@ -63,7 +63,8 @@ const (
 	legendOne = "Each weight of the chosen input channel is orange when positive, blue when negative, pale when near zero"
 	legendEnd = ", on one scale for all filters unless each is scaled on its own. " +
 		"Frames: solid red = dead or all-zero weights, dashed amber = rare, constant or near-duplicate. " +
-		"Letters under a tile: X dead, R rare, C constant, Z zero weights, D duplicate."
+		"Under a tile: #filter index, |w| = L2 norm of the whole filter (all input channels, also when one is drawn), " +
+		"then letters: X dead, R rare, C constant, Z zero weights, D duplicate."
 )
 
 func newKernelView(u *ui) *kernelView {
@@ -134,7 +135,7 @@ func (v *kernelView) draw() {
 	k, err := ws.Kernels(v.layer.Selected)
 	if err != nil {
 		v.pic.set(nil)
-		v.about.SetText(err.Error())
+		v.about.SetText(plainError(err))
 		return
 	}
 	// The input-channel choice: RGB for colour first layers, one channel
@@ -173,7 +174,8 @@ func (v *kernelView) draw() {
 	if v.numbers.Checked {
 		extra = 32
 	}
-	cols, cell := gridFit(k.M, max(k.KH, k.KW), extra, v.u.area(fyne.NewSize(16, 170)), 40)
+	// The colour legend under the tiles takes about 80 pixels more.
+	cols, cell := gridFit(k.M, max(k.KH, k.KW), extra, v.u.area(fyne.NewSize(16, 250)), 40)
 	c, _ := ws.Prep()
 	img, info, err := ws.Tiles(v.layer.Selected, viz.TileOptions{
 		Cell: max(2, cell), Columns: cols, PerFilter: v.perFilter.Checked, SortByNorm: v.byNorm.Checked,
@@ -181,7 +183,7 @@ func (v *kernelView) draw() {
 	}, v.u.scan)
 	if err != nil {
 		v.pic.set(nil)
-		v.about.SetText(err.Error())
+		v.about.SetText(plainError(err))
 		return
 	}
 	v.info = info

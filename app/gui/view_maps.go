@@ -149,7 +149,7 @@ func (v *mapsView) draw() {
 	v.about.SetText(about + ".")
 	_, t, err := u.acts.MapLayer(l.Output)
 	if err != nil {
-		v.about.SetText(err.Error())
+		v.about.SetText(plainError(err))
 		return
 	}
 	// The grid gets about 60 % of the width (the overlay the rest) and the
@@ -162,7 +162,7 @@ func (v *mapsView) draw() {
 	}
 	pic, stats, err := u.acts.MapPicture(l.Output, viz.GridOptions{Zoom: zoom, Columns: cols, PerTile: v.perTile.Checked, Labels: true})
 	if err != nil {
-		v.about.SetText(err.Error())
+		v.about.SetText(plainError(err))
 		return
 	}
 	v.grid.set(pic)
@@ -192,10 +192,10 @@ func (v *mapsView) drawOverlay() {
 		v.overlay.set(nil)
 		return
 	}
-	pic, err := u.acts.OverlayPicture(l.Output, ch, 0.7, 0)
+	pic, err := u.acts.OverlayPicture(l.Output, ch, 0.7, 0, v.perTile.Checked)
 	if err != nil {
 		v.overlay.set(nil)
-		v.stats.SetText(err.Error())
+		v.stats.SetText(plainError(err))
 		return
 	}
 	v.overlay.set(pic)

@@ -34,11 +34,15 @@ type occlusionView struct {
 	// is saturated (viz.Occlusion.Saturated); hidden otherwise.
 	switchBtn *widget.Button
 	switchTo  viz.Score
-	pic       *picture
-	verdict   *widget.RichText
-	caution   *widget.Label
+	// grey draws the image beside the heatmap in grey (colour by default).
+	grey    *widget.Check
+	pic     *picture
+	verdict *widget.RichText
+	caution *widget.Label
 
-	classes []int // class index of each expect option after the first ("none")
+	classes []int        // class index of each expect option after the first ("none")
+	fit     *image.NRGBA // the image the shown occlusion was computed on
+	zoom    int          // the enlargement it is drawn at (heatZoom)
 	set     viz.OcclusionSettings
 	expectN int // the expected class of the shown result, -1 none
 	runs    int // occlusions shown so far (tests read it)
@@ -47,7 +51,9 @@ type occlusionView struct {
 // noExpected is the first choice of the expected-class select.
 const noExpected = "(none: predicted class only)"
 
-// cautionText goes under every heatmap: a heatmap is easy to over-read.
+// cautionText goes once under the heatmap, which is drawn without the
+// picture's own copy of it (viz.HeatOptions.NoCaution): a heatmap is easy
+// to over-read. An exported picture carries it itself.
 const cautionText = "Evidence about this model on this image, not proof. The colours show where hiding a patch changed the score, " +
 	"not why the model decided; other settings or images can tell a different story. Do not base safety-critical decisions on it without proper validation."
 
@@ -75,6 +81,7 @@ func newOcclusionView(u *ui) *occlusionView {
 	v.runBtn = widget.NewButtonWithIcon("Run occlusion", theme.MediaPlayIcon(), v.run)
 	v.runBtn.Importance = widget.HighImportance
 	v.exportBtn = widget.NewButtonWithIcon("Export picture…", theme.DocumentSaveIcon(), v.export)
+	v.grey = widget.NewCheck("Grey image", func(bool) { v.redraw() })
 	v.pic = newPicture(fyne.NewSize(360, 240), 2)
 	v.verdict = widget.NewRichText()
 	v.caution = widget.NewLabel(cautionText)
@@ -85,9 +92,9 @@ func newOcclusionView(u *ui) *occlusionView {
 		return container.NewGridWrap(fyne.NewSize(64, e.MinSize().Height), e)
 	}
 	settings := container.NewHBox(
-		widget.NewLabel("Patch"), num(v.patch), widget.NewLabel("px   Step"), num(v.stride), widget.NewLabel("px   Fill"), v.fill,
-		widget.NewLabel("Score"), v.score)
-	question := container.NewBorder(nil, nil, widget.NewLabel("Should have been"), container.NewHBox(v.runBtn, v.exportBtn), v.expect)
+		widget.NewLabel("Patch"), num(v.patch), widget.NewLabel("px   Stride"), num(v.stride), widget.NewLabel("px   Fill"), v.fill,
+		widget.NewLabel("Score"), v.score, v.grey)
+	question := container.NewBorder(nil, nil, widget.NewLabel("Expected class"), container.NewHBox(v.runBtn, v.exportBtn), v.expect)
 	v.content = container.NewBorder(
 		container.NewVBox(settings, question, v.runner.box, v.verdict, container.NewHBox(v.switchBtn)),
 		v.caution, nil, nil, v.pic.box)
@@ -198,7 +205,7 @@ func (v *occlusionView) settings() (viz.OcclusionSettings, error) {
 	patch, err1 := strconv.Atoi(strings.TrimSpace(v.patch.Text))
 	stride, err2 := strconv.Atoi(strings.TrimSpace(v.stride.Text))
 	if err1 != nil || err2 != nil {
-		return viz.OcclusionSettings{}, fmt.Errorf("patch %q and step %q must be whole numbers of pixels", v.patch.Text, v.stride.Text)
+		return viz.OcclusionSettings{}, fmt.Errorf("patch %q and stride %q must be whole numbers of pixels", v.patch.Text, v.stride.Text)
 	}
 	set := viz.OcclusionSettings{Patch: patch, Stride: stride, Fill: viz.Fill(v.fill.Selected), Score: viz.Score(v.score.Selected)}
 	c, _ := v.u.ws.Prep()
@@ -226,14 +233,19 @@ func (v *occlusionView) run() {
 		targets = append(targets, exp)
 	}
 	u.showView(viewOcclusion)
+	c, _ := ws.Prep()
+	v.zoom = heatZoom(u.area(fyne.NewSize(24, 230)), c.Width, c.Height, len(targets))
+	zoom := v.zoom
 	v.runner.launch("Occlusion", "patch positions", ws, func(ctx context.Context, progress func(int, int)) (result, error) {
 		occ, fit, err := ws.Occlude(ctx, img, set, targets, progress)
 		if err != nil {
 			return nil, err
 		}
-		pic := viz.RenderOcclusion(fit, occ, viz.HeatOptions{Captions: true})
+		grey := v.grey.Checked
+		pic := viz.RenderOcclusion(fit, occ, viz.HeatOptions{Captions: true, Grey: grey, NoCaution: true, Zoom: zoom})
 		return func(current bool) {
 			if current {
+				v.fit = fit
 				v.show(occ, pic, set, exp)
 			}
 		}, nil
@@ -284,6 +296,33 @@ func (v *occlusionView) show(occ []*viz.Occlusion, pic *image.NRGBA, set viz.Occ
 	v.verdict.Refresh()
 }
 
+// heatZoom is the largest whole enlargement (1 to 8) at which n pairs of
+// w×h pictures (viz.RenderOcclusion: 12-pixel margins, 6 pixels inside a
+// pair, 16 between pairs, about 190 pixels of captions, colour bar and
+// notes) fit in area, so that the window shows the picture at its own
+// size and its text stays legible rather than being scaled down.
+func heatZoom(area fyne.Size, w, h, n int) int {
+	z := 8
+	for ; z > 1; z-- {
+		width := 24 + n*(2*w*z+6) + (n-1)*16
+		height := h*z + 190
+		if float32(width) <= area.Width && float32(height) <= area.Height {
+			break
+		}
+	}
+	return z
+}
+
+// redraw draws the shown occlusion again (the grey/colour choice changed).
+func (v *occlusionView) redraw() {
+	u := v.u
+	if u.occ == nil || v.fit == nil {
+		return
+	}
+	u.occPic = viz.RenderOcclusion(v.fit, u.occ, viz.HeatOptions{Captions: true, Grey: v.grey.Checked, NoCaution: true, Zoom: v.zoom})
+	v.pic.set(u.occPic)
+}
+
 // switchScore reruns the occlusion with the score a saturation warning
 // suggested.
 func (v *occlusionView) switchScore() {
@@ -314,7 +353,7 @@ func (v *occlusionView) export() {
 	imgName := u.imgName
 	base := strings.TrimSuffix(imgName, filepath.Ext(imgName))
 	u.saveDialog("Export the explanation picture", base+"-explained.png", []string{".png"}, func(path string) {
-		v.writeReport(path, core.ReportInput{Image: img, ImageName: imgName, Versus: exp, Occlusion: set, Occlusions: occ})
+		v.writeReport(path, core.ReportInput{Image: img, ImageName: imgName, Versus: exp, Occlusion: set, Occlusions: occ, Grey: v.grey.Checked})
 	})
 }
 

@@ -1,12 +1,17 @@
 package gui
 
 import (
+	"image/color"
+	"math"
+
 	"fmt"
+	"fyne.io/fyne/v2/canvas"
+	"fyne.io/fyne/v2/theme"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/container"
 	"fyne.io/fyne/v2/layout"
-	"fyne.io/fyne/v2/theme"
+
 	"fyne.io/fyne/v2/widget"
 
 	"fovea/app/core"
@@ -107,11 +112,7 @@ func (v *predictView) refresh() {
 		if i == 0 {
 			l.TextStyle.Bold = true
 		}
-		bar := widget.NewProgressBar()
-		bar.SetValue(p.Probability)
-		prob := p.Probability
-		bar.TextFormatter = func() string { return percent(prob) }
-		v.rows.Add(container.NewGridWithColumns(2, l, bar))
+		v.rows.Add(container.NewGridWithColumns(2, l, probRow(p.Probability)))
 	}
 	if cl.Softmaxed {
 		v.note.SetText("The model outputs probabilities itself.")
@@ -125,3 +126,37 @@ func labelsOf(ws *core.Workspace) []string {
 	l, _ := ws.Labels()
 	return l
 }
+
+// probRow is one probability as a bar and its value: the value stands in
+// text beside the bar, never on it, so that it reads the same on a full
+// and an empty bar; the bar is filled in proportion to the probability
+// (0.2 % fills 0.2 % of it) inside an outlined track, so that its empty
+// part is plainly empty.
+func probRow(p float64) fyne.CanvasObject {
+	track := canvas.NewRectangle(color.Transparent)
+	track.StrokeColor = theme.Color(theme.ColorNameForeground)
+	track.StrokeWidth = 1
+	filled := canvas.NewRectangle(theme.Color(theme.ColorNamePrimary))
+	bar := container.New(&fractionLayout{f: p}, track, filled)
+	value := widget.NewLabel(percent(p))
+	value.Alignment = fyne.TextAlignTrailing
+	value.TextStyle.Monospace = true
+	return container.NewBorder(nil, nil, nil, container.NewGridWrap(fyne.NewSize(72, value.MinSize().Height), value), bar)
+}
+
+// fractionLayout lays out a track (the first object) over the full size,
+// vertically centred at a third of the height, and a fill (the second)
+// over the fraction f of its width.
+type fractionLayout struct{ f float64 }
+
+func (l *fractionLayout) Layout(objs []fyne.CanvasObject, size fyne.Size) {
+	h := size.Height / 2
+	top := (size.Height - h) / 2
+	objs[0].Move(fyne.NewPos(0, top))
+	objs[0].Resize(fyne.NewSize(size.Width, h))
+	f := float32(math.Max(0, math.Min(1, l.f)))
+	objs[1].Move(fyne.NewPos(0, top))
+	objs[1].Resize(fyne.NewSize(size.Width*f, h))
+}
+
+func (l *fractionLayout) MinSize([]fyne.CanvasObject) fyne.Size { return fyne.NewSize(80, 16) }
