@@ -45,17 +45,20 @@
 //
 // It renders all frames from fixed seeds, trains both networks at once with one thread
 // each, and rewrites everything listed above; it is never run at build, run or test time.
-// The last run took 151 s on this project's 2-core machine (up to about 380 s while other
-// work shared it). Two runs into different folders gave byte-identical models, images and
-// truth files.
+// The last run took 1771 s on this project's heavily loaded 2-core machine (151 s for the
+// earlier network on an idle one). Runs give byte-identical images; for the present network
+// two runs gave different trained models (README.md in this folder says more).
 //
 // # What the files say
 //
-// Healthy model: 92.21 % on 1400 held-out rendered frames (not stored), 91.79 % (257/280)
-// on the stored probe images, no dead or rare ReLU channel. Unhealthy model: the same run
-// except that the whole first epoch used learning rate 0.013 instead of 0.002; 83.93 % on
-// the held-out frames, 81.79 % (229/280) on the probe images, 40 dead channels (19 after
-// /conv2/Conv, 9 after /conv3/Conv, 12 after /conv4/Conv) and 2 rare ones. truth_*.json name
+// Network: /conv1/Conv 12 filters 7×7, stride 2, pad 3, then /relu1/Relu with no pooling;
+// three stages of 3×3 convolution, ReLU and 2×2 max pooling (24, 32, 48 filters); one fully
+// connected layer. Healthy model: 93.07 % on 1400 held-out rendered frames (not stored),
+// 91.43 % (256/280) on the stored probe images, one dead ReLU channel (/relu3 #30), no rare
+// one. Unhealthy model: the same run except that the whole first epoch used learning rate
+// 0.016 instead of 0.002; 79.86 % on the held-out frames, 77.14 % (216/280) on the probe
+// images, 39 dead channels (13 after /conv2/Conv, 11 after /conv3/Conv, 15 after
+// /conv4/Conv) and 6 rare ones. truth_*.json name
 // each ReLU by its ONNX node ("/relu2/Relu") and output tensor ("/relu2/Relu_output_0"),
 // with per-channel fire counts over the probe images and the margins that make the verdicts
 // safe to recompute in float32 (README.md in this folder has the full table). The demo image

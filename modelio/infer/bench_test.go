@@ -16,9 +16,10 @@ import (
 const demoModel = "../../assets/demo/parts.onnx"
 
 // partsLikeCNN is a stand-in of the demo's architecture (assets/make_demo.py)
-// for when the demo file is not there: 64×64×3 NCHW; Conv 16 5×5 pad 2,
-// Conv 24, 32 and 32 3×3 pad 1, each followed by Relu and 2×2 MaxPool;
-// Flatten, Gemm 512→64, Relu, Gemm 64→7 (logits). Weights pseudo-random.
+// for when the demo file is not there: 64×64×3 NCHW; Conv 12 7×7 stride 2
+// pad 3 and Relu (no pooling: the stride halves the side); Conv 24, 32 and
+// 32 3×3 pad 1, each followed by Relu and 2×2 MaxPool; Flatten, Gemm
+// 512→64, Relu, Gemm 64→7 (logits). Weights pseudo-random.
 func partsLikeCNN() *onnxpb.GraphProto {
 	g := &onnxpb.GraphProto{
 		Name:   "partslike",
@@ -26,17 +27,20 @@ func partsLikeCNN() *onnxpb.GraphProto {
 		Output: []*onnxpb.ValueInfoProto{vi("logits", onnxpb.TensorProto_FLOAT, "N", 7)},
 	}
 	in, c := "image", int64(3)
-	for i, st := range []struct{ m, k int64 }{{16, 5}, {24, 3}, {32, 3}, {32, 3}} {
+	for i, st := range []struct{ m, k, stride int64 }{{12, 7, 2}, {24, 3, 1}, {32, 3, 1}, {32, 3, 1}} {
 		s := strconv.Itoa(i + 1)
 		g.Initializer = append(g.Initializer,
 			f32("w"+s, []int64{st.m, c, st.k, st.k}, randn(uint64(2*i+1), int(st.m*c*st.k*st.k), float32(1.5/math.Sqrt(float64(c*st.k*st.k))))),
 			f32("b"+s, []int64{st.m}, randn(uint64(2*i+2), int(st.m), 0.1)))
 		p := st.k / 2
 		g.Node = append(g.Node,
-			node("Conv", "conv"+s, []string{in, "w" + s, "b" + s}, []string{"c" + s}, ints("pads", p, p, p, p), ints("kernel_shape", st.k, st.k)),
-			node("Relu", "relu"+s, []string{"c" + s}, []string{"r" + s}),
-			node("MaxPool", "pool"+s, []string{"r" + s}, []string{"p" + s}, ints("kernel_shape", 2, 2), ints("strides", 2, 2)))
-		in, c = "p"+s, st.m
+			node("Conv", "conv"+s, []string{in, "w" + s, "b" + s}, []string{"c" + s}, ints("pads", p, p, p, p), ints("kernel_shape", st.k, st.k), ints("strides", st.stride, st.stride)),
+			node("Relu", "relu"+s, []string{"c" + s}, []string{"r" + s}))
+		in, c = "r"+s, st.m
+		if st.stride == 1 {
+			g.Node = append(g.Node, node("MaxPool", "pool"+s, []string{in}, []string{"p" + s}, ints("kernel_shape", 2, 2), ints("strides", 2, 2)))
+			in = "p" + s
+		}
 	}
 	g.Initializer = append(g.Initializer,
 		f32("wh", []int64{64, 512}, randn(11, 64*512, 0.06)), f32("bh", []int64{64}, randn(12, 64, 0.1)),

@@ -269,10 +269,22 @@ func VGG16(classes int) *Net {
 
 // Parts is a stand-in of the demo classifier (assets/make_demo.py,
 // PartsNet) for when assets/demo/parts.onnx is not there: a 64×64 input,
-// convolutions of 16 filters 5×5 then 24, 32 and 32 filters 3×3, each
-// followed by ReLU and 2×2 max pooling, then fully connected 512 → 64 → 7.
+// a first convolution of 12 filters 7×7 with stride 2 and padding 3 and a
+// ReLU (no pooling: the stride halves the side), then convolutions of 24,
+// 32 and 32 filters 3×3, each followed by ReLU and 2×2 max pooling, then
+// fully connected 512 → 64 → 7.
 func Parts() *Net {
-	return VGG("parts", 64, []Block{{1, 16, 5}, {1, 24, 3}, {1, 32, 3}, {1, 32, 3}}, []int{64}, 7)
+	n := New("parts", 64)
+	x := n.Relu(n.Conv("image", 3, 12, 7, 2, 3, true))
+	c := 12
+	for _, w := range []int{24, 32, 32} {
+		x = n.MaxPool(n.Relu(n.Conv(x, c, w, 3, 1, 1, true)), 2, 2, 0)
+		c = w
+	}
+	x = n.Flatten(x)
+	x = n.Relu(n.Gemm(x, c*4*4, 64))
+	n.Output(n.Gemm(x, 64, 7), 7)
+	return n
 }
 
 // ResNet18 is the 18-layer residual network of He, Zhang, Ren & Sun, "Deep

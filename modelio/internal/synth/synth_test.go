@@ -34,10 +34,10 @@ func TestParams(t *testing.T) {
 		// Simonyan & Zisserman 2015, Table 2: 138 million; exact figure of
 		// torchvision's vgg16 (from memory).
 		{"vgg16", VGG16(1000), 138_357_544, 0, "Simonyan & Zisserman 2015, Table 2 (138 M); torchvision vgg16, from memory"},
-		// PartsNet in assets/make_demo.py, counted by hand layer by layer
-		// (weights + biases): 3·16·25+16, 16·24·9+24, 24·32·9+32,
+		// Parts, the stand-in of PartsNet in assets/make_demo.py, counted by hand layer by layer
+		// (weights + biases): 3·12·49+12, 12·24·9+24, 24·32·9+32,
 		// 32·32·9+32, 512·64+64, 64·7+7.
-		{"parts", Parts(), 1216 + 3480 + 6944 + 9248 + 32832 + 455, 0, "assets/make_demo.py PartsNet, hand count"},
+		{"parts", Parts(), 1776 + 2616 + 6944 + 9248 + 32832 + 455, 0, "assets/make_demo.py PartsNet, hand count"},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			if tc.net.Params != tc.params {
