@@ -15,8 +15,9 @@ func ExampleOpen() {
 		return
 	}
 	// The input as package assets documents it (float32 [batch, 3, 64, 64],
-	// NCHW); the first Conv has 16·3·5·5 weights + 16 biases = 1216
-	// parameters (by hand) and pads to keep 64×64.
+	// NCHW); the first Conv has 12·3·7·7 weights + 12 biases = 1776
+	// parameters (by hand), and its stride 2 with padding 3 halves 64×64 to
+	// 32×32 ((64 + 2·3 − 7) / 2 + 1 = 32, rounded down).
 	fmt.Println(m.Image.Name, m.Image.Layout, m.Image.Channels, m.Image.Height, m.Image.Width)
 	first := m.Layers[0]
 	fmt.Println(first.Op, first.WHD(), first.Params)
@@ -30,7 +31,7 @@ func ExampleOpen() {
 
 	// Output:
 	// image nchw 3 64 64
-	// Conv 64×64×16 1216
+	// Conv 32×32×12 1776
 	// 4 ReLU layers
-	// 16 filters of 3 channels, 5 × 5
+	// 12 filters of 3 channels, 7 × 7
 }
