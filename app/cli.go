@@ -45,7 +45,7 @@ var windowPlace = map[string]string{
 
 // commands in the order `fovea help` lists them.
 var commands = []*command{
-	layersCommand, classifyCommand, filtersCommand, mapsCommand, occludeCommand, scanCommand, reportCommand, evaluateCommand,
+	layersCommand, classifyCommand, filtersCommand, mapsCommand, occludeCommand, scanCommand, reportCommand, evaluateCommand, compareCommand,
 }
 
 func findCommand(name string) *command {
