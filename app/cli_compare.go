@@ -28,7 +28,8 @@ channels dead or rare in the candidate only (newly dead), the reverse
 
 The candidate is run with the reference's preprocessing. With
 --max-newly-dead N the exit status is 3 when more than N channels are newly
-dead, so a training pipeline can stop a worse checkpoint.`,
+dead, so a training pipeline can stop a worse checkpoint. --out FILE draws the
+comparison on one page (both files named with their SHA-256) to hand on.`,
 	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
 		against := fs.String("against", "", "the candidate ONNX model `FILE`")
 		againstDemo := fs.String("against-demo", "", "use the embedded demo `NAME` (healthy or unhealthy) as the candidate")
@@ -36,6 +37,7 @@ dead, so a training pipeline can stop a worse checkpoint.`,
 		asJSON := fs.Bool("json", false, "print the comparison as JSON")
 		match := fs.String("match", "index", "how filters are paired: `HOW` index (filter i with filter i) or greedy (most similar first)")
 		maxDead := fs.Int("max-newly-dead", -1, "exit with status 3 when more than `N` channels are newly dead (default: no limit)")
+		out := fs.String("out", "", "also draw the one-page picture of the comparison into `FILE` (PNG; - for stdout)")
 		top := fs.Int("top", 10, "list the `N` most changed filters and firing rates in the text output")
 		return func(j *job) int {
 			if (*against == "") == (*againstDemo == "") {
@@ -92,6 +94,19 @@ dead, so a training pipeline can stop a worse checkpoint.`,
 				return j.fail(err)
 			}
 			labels, _ := j.ws.Labels()
+			if *out != "" {
+				cfg, _ := j.ws.Prep()
+				page, err := c.ComparePage(labels, cfg.BGR)
+				if err != nil {
+					return j.fail(err)
+				}
+				if code := j.writePNG(*out, page); code != exitOK {
+					return code
+				}
+				if *out == "-" {
+					return exitOK
+				}
+			}
 			if *asJSON {
 				if code := j.writeJSON(c.JSON(labels)); code != exitOK {
 					return code

@@ -1,8 +1,11 @@
 package main
 
 import (
+	"crypto/sha256"
+	"encoding/hex"
 	"encoding/json"
 	"image"
+	"image/png"
 	"math"
 	"os"
 	"path/filepath"
@@ -201,6 +204,22 @@ func TestCLIComparePlanted(t *testing.T) {
 	}
 	if !slices.Equal(dead, onnxbuild.PairKilled) || len(c.Revived) != 0 {
 		t.Errorf("newly dead %v, want %v; revived %v", dead, onnxbuild.PairKilled, c.Revived)
+	}
+	for _, x := range []struct{ path, got string }{{a, c.A.SHA256}, {b, c.B.SHA256}} {
+		data, _ := os.ReadFile(x.path)
+		if sum := sha256.Sum256(data); hex.EncodeToString(sum[:]) != x.got {
+			t.Errorf("%s: sha256 %s, the file's is %x", x.path, x.got, sum)
+		}
+	}
+	page := filepath.Join(t.TempDir(), "page.png")
+	mustRun(t, append([]string{"compare", "--model", a, "--against", b, "--probe", probe, "--out", page}, pairPrep...)...)
+	f, err := os.Open(page)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	if pic, err := png.Decode(f); err != nil || pic.Bounds().Dx() < 1000 {
+		t.Errorf("--out: %v", err)
 	}
 	if c.Accuracy != nil || c.McNemarP != nil {
 		t.Error("no --data: accuracy and p must be null")
