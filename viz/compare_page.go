@@ -105,7 +105,7 @@ type ComparePage struct {
 	Title    string
 	A, B     string // "a: parts.onnx  sha256 …"
 	Pairs    *image.NRGBA
-	PairNote string   // what the pair grid shows and on which scale
+	PairNote string // what the pair grid shows and on which scale
 	Sections []PageSection
 	Caution  string
 }
