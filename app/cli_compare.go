@@ -11,7 +11,7 @@ import (
 
 var compareCommand = &command{
 	name:    "compare",
-	args:    "--against FILE [--probe DIR] [--json] [--out page.png] [--max-newly-dead N]",
+	args:    "--against FILE [--probe DIR] [--data DIR_OR_LIST] [--json] [--out page.png] [--max-newly-dead N] [--max-accuracy-drop X]",
 	summary: "compare a candidate model (--against) with the reference (--model)",
 	about: `Compares two models: the reference (--model, or --demo) and a candidate
 (--against FILE, or --against-demo NAME). The layer tables are aligned by layer
@@ -26,14 +26,24 @@ probe images by default) both models are scanned over the same images: the
 channels dead or rare in the candidate only (newly dead), the reverse
 (revived), and every change of firing rate.
 
-The candidate is run with the reference's preprocessing. With
+With --data (a labelled folder or list, as fovea evaluate reads it; the
+demo's labelled probe images by default) both models answer the same images:
+both accuracies with their 95% Wilson intervals, the images that went from
+right to wrong and back, and McNemar's exact test (McNemar 1947) of whether
+the accuracies differ beyond chance on such images.
+
+The candidate is run with the reference's preprocessing when the
+architectures are the same. With
 --max-newly-dead N the exit status is 3 when more than N channels are newly
-dead, so a training pipeline can stop a worse checkpoint. --out FILE draws the
+dead, and with --max-accuracy-drop X when b's accuracy is lower by more than
+X, so a training pipeline can stop a worse checkpoint. --out FILE draws the
 comparison on one page (both files named with their SHA-256) to hand on.`,
 	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
 		against := fs.String("against", "", "the candidate ONNX model `FILE`")
 		againstDemo := fs.String("against-demo", "", "use the embedded demo `NAME` (healthy or unhealthy) as the candidate")
 		probe := fs.String("probe", "", "folder `DIR` of probe images both models are scanned over (default for the demo: its own probe images)")
+		data := fs.String("data", "", "labelled `DIR_OR_LIST` both models answer (as fovea evaluate reads it; default for the demo: its labelled probe images)")
+		maxDrop := fs.Float64("max-accuracy-drop", -1, "exit with status 3 when b's accuracy is lower than a's by more than `X` (a fraction: 0.02 = 2 points; needs labelled images)")
 		asJSON := fs.Bool("json", false, "print the comparison as JSON")
 		match := fs.String("match", "index", "how filters are paired: `HOW` index (filter i with filter i) or greedy (most similar first)")
 		maxDead := fs.Int("max-newly-dead", -1, "exit with status 3 when more than `N` channels are newly dead (default: no limit)")
@@ -76,6 +86,22 @@ comparison on one page (both files named with their SHA-256) to hand on.`,
 					return j.fail(err)
 				}
 			}
+			switch {
+			case *data != "":
+				if in.Data, err = j.ws.OpenLabelled(*data); err != nil {
+					return j.fail(err)
+				}
+			case j.ws.Demo != "":
+				if in.Data, err = j.ws.DemoLabelled(); err != nil {
+					return j.fail(err)
+				}
+			}
+			if *maxDrop != -1 && !(*maxDrop >= 0 && *maxDrop <= 1) {
+				return j.usageErr("--max-accuracy-drop %g: give a fraction from 0 to 1", *maxDrop)
+			}
+			if *maxDrop >= 0 && in.Data == nil {
+				return j.usageErr("--max-accuracy-drop needs labelled images (--data DIR_OR_LIST)")
+			}
 			if *maxDead >= 0 && len(in.Probe) == 0 {
 				return j.usageErr("--max-newly-dead needs probe images (--probe DIR)")
 			}
@@ -117,6 +143,14 @@ comparison on one page (both files named with their SHA-256) to hand on.`,
 			if *maxDead >= 0 && c.Health != nil && len(c.Health.NewlyDead) > *maxDead {
 				fmt.Fprintf(j.stderr, "fovea compare: %d newly dead channels, more than --max-newly-dead %d\n", len(c.Health.NewlyDead), *maxDead)
 				return exitGate
+			}
+			if p := c.Predictions; *maxDrop >= 0 && p != nil && p.Images > 0 {
+				drop := float64(p.CorrectA-p.CorrectB) / float64(p.Images)
+				if drop > *maxDrop {
+					fmt.Fprintf(j.stderr, "fovea compare: accuracy dropped by %.4g (%d → %d of %d right), more than --max-accuracy-drop %g\n",
+						drop, p.CorrectA, p.CorrectB, p.Images, *maxDrop)
+					return exitGate
+				}
 			}
 			return exitOK
 		}

@@ -4,6 +4,7 @@ import (
 	"crypto/sha256"
 	"encoding/hex"
 	"encoding/json"
+	"fmt"
 	"image"
 	"image/png"
 	"math"
@@ -230,6 +231,49 @@ func TestCLIComparePlanted(t *testing.T) {
 	}
 }
 
+// The planted pair on a labelled folder: both accuracies, exactly the
+// planted flips, McNemar's p for 2 against 1 discordant images (1: from
+// the definition, 2·(C(3,0)+C(3,1))/2³ = 1 capped at 1), and the
+// accuracy gate.
+func TestCLIComparePlantedPredictions(t *testing.T) {
+	a, b, _, data := pairFiles(t)
+	args := append([]string{"compare", "--model", a, "--against", b, "--data", data, "--json"}, pairPrep...)
+	c := decodeCompare(t, mustRun(t, args...))
+	if c.Accuracy == nil || math.Abs(c.Accuracy.A-5.0/6) > 1e-12 || math.Abs(c.Accuracy.B-4.0/6) > 1e-12 {
+		t.Fatalf("accuracy %+v, want 5/6 and 4/6", c.Accuracy)
+	}
+	var got []string
+	for _, f := range c.Flipped {
+		got = append(got, f.File+":"+f.True+":"+f.A+":"+f.B)
+	}
+	var want []string
+	for i, fl := range onnxbuild.PairFlip {
+		if fl == "" {
+			continue
+		}
+		tr := onnxbuild.PairTruth[i]
+		pa, pb := tr, 1-tr // worse: a right, b wrong
+		if fl == "better" {
+			pa, pb = 1-tr, tr
+		}
+		want = append(want, fmt.Sprintf("%d/img%d.png:class %d:class %d:class %d", tr, i, tr, pa, pb))
+	}
+	slices.Sort(want)
+	if !slices.Equal(got, want) {
+		t.Errorf("flipped %v\nwant %v", got, want)
+	}
+	if c.McNemarP == nil || *c.McNemarP != 1 {
+		t.Errorf("mcnemar_p %v, want 1", c.McNemarP)
+	}
+	gate := append([]string{"compare", "--model", a, "--against", b, "--data", data}, pairPrep...)
+	if _, _, code := runCLI(t, append(gate, "--max-accuracy-drop", "0.2")...); code != exitOK {
+		t.Errorf("drop 1/6 under 0.2: exit %d", code)
+	}
+	if _, errs, code := runCLI(t, append(gate, "--max-accuracy-drop", "0.1")...); code != exitGate || !strings.Contains(errs, "accuracy dropped") {
+		t.Errorf("drop 1/6 over 0.1: exit %d (%s), want 3", code, errs)
+	}
+}
+
 func TestCLICompareUsage(t *testing.T) {
 	for _, c := range []struct {
 		args []string
@@ -239,6 +283,8 @@ func TestCLICompareUsage(t *testing.T) {
 		{[]string{"compare", "--against-demo", "unhealthy", "--match", "best"}, "--match"},
 		{[]string{"compare", "--against", "/nonexistent/cand.onnx"}, "cand.onnx"},
 		{[]string{"compare", "--against-demo", "sick"}, "sick"},
+		{[]string{"compare", "--against-demo", "unhealthy", "--max-accuracy-drop", "2"}, "fraction"},
+		{[]string{"compare", "--against-demo", "unhealthy", "--data", "/nonexistent/labelled"}, "labelled"},
 	} {
 		_, errs, code := runCLI(t, c.args...)
 		if code != exitUsage || !strings.Contains(errs, c.want) {

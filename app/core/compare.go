@@ -13,6 +13,9 @@ import (
 // how filters are paired and the scan's options.
 type CompareInput struct {
 	Probe []string
+	// Data are labelled images both models answer (nil: no prediction part);
+	// read them with a's class names (Workspace.OpenLabelled).
+	Data  *analysis.Labelled
 	Match analysis.Matching // "" = analysis.MatchIndex
 	Scan  analysis.ScanOptions
 }
@@ -39,6 +42,7 @@ type Comparison struct {
 	Health         *analysis.HealthDiff
 	ScanA, ScanB   *analysis.ScanReport
 	Predictions    *analysis.PredictionDiff
+	EvalA, EvalB   *analysis.Evaluation
 	// Notes say why a part is missing and what the reader should keep in mind.
 	Notes []string
 }
@@ -56,39 +60,105 @@ func Compare(ctx context.Context, a, b *Workspace, in CompareInput, progress fun
 	}
 	c := &Comparison{A: a.ID(), B: b.ID(), TotalA: a.Model.Total, TotalB: b.Model.Total, Match: in.Match}
 	c.Layers, c.Same = analysis.AlignLayers(a.Model, b.Model)
-	if !c.Same {
-		c.Notes = append(c.Notes, "the architectures differ (see the layer table): filters and channel health are compared only between identical architectures")
-		return c, nil
-	}
-	var err error
-	c.Filters, c.FilterSkipped, err = analysis.CompareFilters(a.Model, b.Model, in.Match)
-	if err != nil {
-		return nil, &InputError{Err: err}
-	}
-	cfg, _ := a.Prep()
-	if err := b.SetPrep(cfg); err != nil {
-		return nil, fmt.Errorf("core: %s: the reference's preprocessing does not fit: %w", b.Name(), err)
-	}
-	if len(in.Probe) == 0 {
-		c.Notes = append(c.Notes, "no probe images: channel health not compared")
-		return c, nil
-	}
 	stage := func(name string) func(done, total int) {
 		if progress == nil {
 			return nil
 		}
 		return func(done, total int) { progress(name, done, total) }
 	}
-	if c.ScanA, err = a.Scan(ctx, in.Probe, in.Scan, stage("scanning a")); err != nil {
+	if c.Same {
+		// The same input: b sees exactly the pictures a sees.
+		cfg, _ := a.Prep()
+		if err := b.SetPrep(cfg); err != nil {
+			return nil, fmt.Errorf("core: %s: the reference's preprocessing does not fit: %w", b.Name(), err)
+		}
+		if err := c.compareSame(ctx, a, b, in, stage); err != nil {
+			return nil, err
+		}
+	} else {
+		c.Notes = append(c.Notes, "the architectures differ (see the layer table): filters and channel health are compared only between identical architectures; b keeps its own preprocessing")
+	}
+	if in.Data == nil {
+		c.Notes = append(c.Notes, "no labelled images: predictions not compared")
+		return c, nil
+	}
+	var err error
+	if c.EvalA, err = a.Evaluate(ctx, in.Data, analysis.EvalOptions{}, stage("evaluating a")); err != nil {
 		return nil, err
 	}
-	if c.ScanB, err = b.Scan(ctx, in.Probe, in.Scan, stage("scanning b")); err != nil {
+	if c.EvalB, err = b.Evaluate(ctx, in.Data, analysis.EvalOptions{}, stage("evaluating b")); err != nil {
 		return nil, err
 	}
-	if c.Health, err = analysis.CompareHealth(c.ScanA, c.ScanB); err != nil {
-		return nil, err
+	ansA, ansB := answers(c.EvalA), answers(c.EvalB)
+	if both, dropped := common(ansA, ansB); dropped > 0 {
+		ansA, ansB = both(ansA), both(ansB)
+		c.Notes = append(c.Notes, fmt.Sprintf("%d labelled images were answered by one model only (skipped by the other) and are left out of the comparison", dropped))
+	}
+	if c.Predictions, err = analysis.ComparePredictions(ansA, ansB); err != nil {
+		return nil, &InputError{Err: err}
+	}
+	if c.EvalA.Images == 0 {
+		c.Notes = append(c.Notes, "none of the labelled images could be evaluated")
 	}
 	return c, nil
+}
+
+// answers turns an evaluation's rows into the answers ComparePredictions pairs.
+func answers(e *analysis.Evaluation) []analysis.Answer {
+	out := make([]analysis.Answer, len(e.Rows))
+	for i, r := range e.Rows {
+		out[i] = analysis.Answer{File: r.File, True: r.True, Predicted: r.Predicted}
+	}
+	return out
+}
+
+// common returns a filter keeping the files both a and b answered, and how
+// many answers it drops.
+func common(a, b []analysis.Answer) (func([]analysis.Answer) []analysis.Answer, int) {
+	n := map[string]int{}
+	for _, x := range a {
+		n[x.File]++
+	}
+	for _, x := range b {
+		n[x.File]++
+	}
+	dropped := 0
+	for _, k := range n {
+		if k != 2 {
+			dropped++
+		}
+	}
+	return func(s []analysis.Answer) []analysis.Answer {
+		var out []analysis.Answer
+		for _, x := range s {
+			if n[x.File] == 2 {
+				out = append(out, x)
+			}
+		}
+		return out
+	}, dropped
+}
+
+// compareSame compares filters and, with probe images, channel health of
+// two models of the same architecture.
+func (c *Comparison) compareSame(ctx context.Context, a, b *Workspace, in CompareInput, stage func(string) func(int, int)) error {
+	var err error
+	c.Filters, c.FilterSkipped, err = analysis.CompareFilters(a.Model, b.Model, in.Match)
+	if err != nil {
+		return &InputError{Err: err}
+	}
+	if len(in.Probe) == 0 {
+		c.Notes = append(c.Notes, "no probe images: channel health not compared")
+		return nil
+	}
+	if c.ScanA, err = a.Scan(ctx, in.Probe, in.Scan, stage("scanning a")); err != nil {
+		return err
+	}
+	if c.ScanB, err = b.Scan(ctx, in.Probe, in.Scan, stage("scanning b")); err != nil {
+		return err
+	}
+	c.Health, err = analysis.CompareHealth(c.ScanA, c.ScanB)
+	return err
 }
 
 // CompareJSON is the JSON form of a comparison: the command line's
