@@ -120,6 +120,19 @@ func TestCLICompareDemoPairAgainstPyTorch(t *testing.T) {
 	if !c.Same || c.A.Model != "parts.onnx" || c.B.Model != "parts_unhealthy.onnx" || len(c.A.SHA256) != 64 || c.A.SHA256 == c.B.SHA256 {
 		t.Errorf("header: %+v %+v same %v", c.A, c.B, c.Same)
 	}
+	// Both accuracies are what fovea evaluate reports for each model alone.
+	for _, x := range []struct {
+		demo string
+		got  float64
+	}{{"healthy", c.Accuracy.A}, {"unhealthy", c.Accuracy.B}} {
+		var e struct{ Accuracy float64 }
+		if err := json.Unmarshal([]byte(mustRun(t, "evaluate", "--demo", x.demo, "--json")), &e); err != nil {
+			t.Fatal(err)
+		}
+		if e.Accuracy != x.got || e.Accuracy == 0 {
+			t.Errorf("%s: compare says accuracy %g, evaluate %g", x.demo, x.got, e.Accuracy)
+		}
+	}
 	// The gate: exactly len(wantDead) newly dead channels.
 	n := strconv.Itoa(len(wantDead))
 	if _, _, code := runCLI(t, "compare", "--demo", "healthy", "--against-demo", "unhealthy", "--max-newly-dead", n); code != exitOK {
