@@ -4,6 +4,7 @@ import (
 	"flag"
 	"fmt"
 	"strconv"
+	"strings"
 
 	"fovea/app/core"
 	"fovea/viz/analysis"
@@ -38,7 +39,7 @@ architectures are the same. With
 dead, and with --max-accuracy-drop X when b's accuracy is lower by more than
 X, so a training pipeline can stop a worse checkpoint. --out FILE draws the
 comparison on one page (both files named with their SHA-256) to hand on.`,
-	setup: func(fs *flag.FlagSet, cf *common) func(*job) int {
+	setup: func(fs *flag.FlagSet, cf *common) func(*invocation) int {
 		against := fs.String("against", "", "the candidate ONNX model `FILE`")
 		againstDemo := fs.String("against-demo", "", "use the embedded demo `NAME` (healthy or unhealthy) as the candidate")
 		probe := fs.String("probe", "", "folder `DIR` of probe images both models are scanned over (default for the demo: its own probe images)")
@@ -49,7 +50,7 @@ comparison on one page (both files named with their SHA-256) to hand on.`,
 		maxDead := fs.Int("max-newly-dead", -1, "exit with status 3 when more than `N` channels are newly dead (default: no limit)")
 		out := fs.String("out", "", "also draw the one-page picture of the comparison into `FILE` (PNG; - for stdout)")
 		top := fs.Int("top", 10, "list the `N` most changed filters and firing rates in the text output")
-		return func(j *job) int {
+		return func(j *invocation) int {
 			if (*against == "") == (*againstDemo == "") {
 				return j.usageErr("give the candidate with --against FILE or --against-demo NAME (one of them)")
 			}
@@ -75,14 +76,14 @@ comparison on one page (both files named with their SHA-256) to hand on.`,
 			}
 			defer b.Close()
 			in := core.CompareInput{Match: m}
-			dir := *probe
-			if dir == "" && j.ws.Demo != "" {
-				if dir, err = core.DemoProbeDir(); err != nil {
+			switch {
+			case *probe != "":
+				if in.Probe, err = core.ProbeFiles(*probe); err != nil {
 					return j.fail(err)
 				}
-			}
-			if dir != "" {
-				if in.Probe, err = core.ProbeFiles(dir); err != nil {
+			case j.ws.Demo != "":
+				// The demo's own probe images, read from the embedded files.
+				if in.Scan.FS, in.Probe, err = core.DemoProbes(); err != nil {
 					return j.fail(err)
 				}
 			}
@@ -159,7 +160,7 @@ comparison on one page (both files named with their SHA-256) to hand on.`,
 
 // writeComparison prints the comparison as text: the two files, the
 // changed layers, the most changed filters, the health changes.
-func writeComparison(j *job, c *core.Comparison, labels []string, top int) {
+func writeComparison(j *invocation, c *core.Comparison, labels []string, top int) {
 	w := j.stdout
 	fmt.Fprintf(w, "a (reference): %s  sha256 %s\n", c.A.Model, c.A.SHA256)
 	fmt.Fprintf(w, "b (candidate): %s  sha256 %s\n\n", c.B.Model, c.B.SHA256)
@@ -192,7 +193,7 @@ func writeComparison(j *job, c *core.Comparison, labels []string, top int) {
 		if r.NameB != "" {
 			name += " / " + r.NameB
 		}
-		diff := fmt.Sprint(r.Differs)
+		diff := strings.Join(r.Differs, ", ")
 		if r.By == "position" {
 			diff += " (paired by position)"
 		}
@@ -285,7 +286,7 @@ func writeComparison(j *job, c *core.Comparison, labels []string, top int) {
 
 // writePredictionText prints the prediction part: both accuracies with
 // their intervals, the flipped images and McNemar's p-value.
-func writePredictionText(j *job, c *core.Comparison, labels []string) {
+func writePredictionText(j *invocation, c *core.Comparison, labels []string) {
 	p := c.Predictions
 	if p == nil {
 		return

@@ -120,6 +120,43 @@ func TestCLICompareDemoPairAgainstPyTorch(t *testing.T) {
 	if !c.Same || c.A.Model != "parts.onnx" || c.B.Model != "parts_unhealthy.onnx" || len(c.A.SHA256) != 64 || c.A.SHA256 == c.B.SHA256 {
 		t.Errorf("header: %+v %+v same %v", c.A, c.B, c.Same)
 	}
+	// The flipped images are those PyTorch's predictions of the two
+	// checkpoints (assets/demo/demo.json, probe.predictions, written by the
+	// demo's generator) get right under one and wrong under the other.
+	var demo struct {
+		Probe struct {
+			Predictions []struct {
+				File                      string
+				Label, Healthy, Unhealthy int
+			}
+		}
+	}
+	raw, err := os.ReadFile(filepath.Join("..", "assets", "demo", "demo.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := json.Unmarshal(raw, &demo); err != nil {
+		t.Fatal(err)
+	}
+	var wantFlip, gotFlip []string
+	for _, p := range demo.Probe.Predictions {
+		if (p.Healthy == p.Label) != (p.Unhealthy == p.Label) {
+			wantFlip = append(wantFlip, p.File)
+		}
+	}
+	for _, f := range c.Flipped {
+		gotFlip = append(gotFlip, filepath.Base(f.File))
+	}
+	slices.Sort(wantFlip)
+	slices.Sort(gotFlip)
+	if len(wantFlip) == 0 || !slices.Equal(gotFlip, wantFlip) {
+		t.Errorf("flipped %v\nPyTorch %v", gotFlip, wantFlip)
+	}
+	// McNemar's p for the demo's discordant counts, as SciPy computed it
+	// (testdata/compare/mcnemar_scipy.json holds the case 35 against 7).
+	if c.McNemarP == nil || math.Abs(*c.McNemarP-1.5097200957825409e-05) > 1e-15 {
+		t.Errorf("mcnemar_p %v, SciPy's binomtest(7, 42) 1.5097200957825409e-05", c.McNemarP)
+	}
 	// Both accuracies are what fovea evaluate reports for each model alone.
 	for _, x := range []struct {
 		demo string
@@ -284,6 +321,24 @@ func TestCLIComparePlantedPredictions(t *testing.T) {
 	}
 	if _, errs, code := runCLI(t, append(gate, "--max-accuracy-drop", "0.1")...); code != exitGate || !strings.Contains(errs, "accuracy dropped") {
 		t.Errorf("drop 1/6 over 0.1: exit %d (%s), want 3", code, errs)
+	}
+}
+
+// Different architectures: only the layer table and the predictions are
+// compared, and the output says why.
+func TestCLICompareOtherArchitecture(t *testing.T) {
+	a, _, _, _ := pairFiles(t)
+	out := mustRun(t, "compare", "--demo", "healthy", "--against", a, "--json")
+	var raw map[string]json.RawMessage
+	if err := json.Unmarshal([]byte(out), &raw); err != nil {
+		t.Fatal(err)
+	}
+	c := decodeCompare(t, out)
+	if c.Same || len(c.Filters) != 0 || string(raw["newly_dead"]) != "null" || c.Accuracy == nil {
+		t.Errorf("same %v, %d filters, newly_dead %s, accuracy %v", c.Same, len(c.Filters), raw["newly_dead"], c.Accuracy)
+	}
+	if !strings.Contains(string(raw["notes"]), "architectures differ") {
+		t.Errorf("notes %s do not say why", raw["notes"])
 	}
 }
 

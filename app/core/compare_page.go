@@ -1,6 +1,7 @@
 package core
 
 import (
+	"context"
 	"fmt"
 	"image"
 	"math"
@@ -134,4 +135,42 @@ func channelList(what string, list []analysis.ChannelRef) []string {
 	}
 	flush()
 	return lines
+}
+
+// CompareOcclusion measures occlusion sensitivity for class target on img in
+// both models, with the same settings, and draws the two results side by
+// side on one shared scale (viz.RenderOcclusion scales all panels by the
+// largest |score| of both): where hiding a patch hurts a but not b. Both
+// models must see the same picture (the same preprocessing), else the
+// panels would not line up.
+func CompareOcclusion(ctx context.Context, a, b *Workspace, img image.Image, target int,
+	progress func(done, total int)) (*image.NRGBA, []*viz.Occlusion, error) {
+	ca, _ := a.Prep()
+	cb, _ := b.Prep()
+	if ca != cb {
+		return nil, nil, inputf(b.Name(), "the two models prepare images differently (%s against %s): their occlusion maps would not line up", ca, cb)
+	}
+	set := DefaultOcclusion(ca.Width, ca.Height)
+	half := func(off int) func(done, total int) {
+		if progress == nil {
+			return nil
+		}
+		return func(done, total int) { progress(off+done, 2*total) }
+	}
+	occA, fit, err := a.Occlude(ctx, img, set, []int{target}, half(0))
+	if err != nil {
+		return nil, nil, err
+	}
+	occB, _, err := b.Occlude(ctx, img, set, []int{target}, func(done, total int) {
+		if p := half(total); p != nil {
+			p(done, total)
+		}
+	})
+	if err != nil {
+		return nil, nil, err
+	}
+	occA[0].Label = "a " + a.Name() + ": " + occA[0].Label
+	occB[0].Label = "b " + b.Name() + ": " + occB[0].Label
+	occ := []*viz.Occlusion{occA[0], occB[0]}
+	return viz.RenderOcclusion(fit, occ, viz.HeatOptions{Captions: true}), occ, nil
 }

@@ -290,7 +290,7 @@ func (u *ui) loadModel(what string, open func(context.Context) (*core.Workspace,
 func (u *ui) setWorkspace(ws *core.Workspace) {
 	old := u.ws
 	u.ws = ws
-	for _, r := range []*runner{u.imageRunner, u.vOcc.runner, u.vHealth.runner, u.fileRunner, u.vScore.runner, u.vScore.thumbs} {
+	for _, r := range []*runner{u.imageRunner, u.vOcc.runner, u.vHealth.runner, u.fileRunner, u.vScore.runner, u.vScore.thumbs, u.vPair.runner, u.vPair.occRunner, u.vPair.thumbRunner} {
 		if r.cur != nil && r.cur.ws == old {
 			r.cancel()
 		}
@@ -315,6 +315,7 @@ func (u *ui) setWorkspace(ws *core.Workspace) {
 	u.vOcc.modelChanged()
 	u.vHealth.refresh()
 	u.vScore.modelChanged()
+	u.vPair.modelChanged()
 	u.status.SetText(fmt.Sprintf("Opened %s: %d layers, %s parameters", ws.Name(), len(ws.Model.Layers), core.Compact.Count(ws.Model.Total.Params)))
 	if u.img != nil {
 		u.analyze()

@@ -54,6 +54,7 @@ var Views = []struct{ Name, Title string }{
 	{viewOcclusion, "Occlusion"},
 	{viewHealth, "Filter health"},
 	{viewScorecard, "Scorecard"},
+	{viewPair, "Checkpoint pair"},
 }
 
 const (
@@ -64,6 +65,7 @@ const (
 	viewOcclusion = "occlusion"
 	viewHealth    = "health"
 	viewScorecard = "scorecard"
+	viewPair      = "pair"
 )
 
 // Run opens the window and blocks until it is closed. It returns the process

@@ -43,6 +43,7 @@ func (u *ui) menu() *fyne.MainMenu {
 		item("Open image…", keyOpenImage, u.chooseImage),
 		item("Open label file…", nil, u.chooseLabels),
 		item("Choose probe folder…", nil, u.chooseProbeDir),
+		item("Compare with another model…", nil, u.vPair.choose),
 		recent,
 		fyne.NewMenuItemSeparator(),
 		item("Back to the demo", keyDemo, func() { u.openDemo(false) }),

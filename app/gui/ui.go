@@ -89,6 +89,7 @@ type ui struct {
 	vOcc        *occlusionView
 	vHealth     *healthView
 	vScore      *scorecardView
+	vPair       *pairView
 	errShown    int // errors shown so far (tests read it)
 }
 
@@ -177,11 +178,12 @@ func newUI(a fyne.App, w fyne.Window, o Options) *ui {
 	u.vOcc = newOcclusionView(u)
 	u.vHealth = newHealthView(u)
 	u.vScore = newScorecardView(u)
+	u.vPair = newPairView(u)
 
 	contents := map[string]fyne.CanvasObject{
 		viewModel: u.vModel.content, viewKernels: u.vKernels.content, viewPredict: u.vPredict.content,
 		viewMaps: u.vMaps.content, viewOcclusion: u.vOcc.content, viewHealth: u.vHealth.content,
-		viewScorecard: u.vScore.content,
+		viewScorecard: u.vScore.content, viewPair: u.vPair.content,
 	}
 	u.tabs = container.NewAppTabs()
 	u.tabByView = map[string]*container.TabItem{}

@@ -14,6 +14,7 @@ import (
 	"fovea/modelio/infer"
 	"fovea/modelio/onnxbuild"
 	"fovea/modelio/prep"
+	"fovea/modelio/testkit"
 )
 
 // McNemar's exact p-value against SciPy: testdata/compare/mcnemar_scipy.json
@@ -207,7 +208,7 @@ func TestCompareGreedyPermutation(t *testing.T) {
 // probe pictures report exactly channels 2 and 3 as newly dead and nothing
 // revived; the answers flip exactly on the planted images.
 func TestComparePlantedRun(t *testing.T) {
-	initRuntime(t)
+	testkit.NeedRuntime(t)
 	a, b := pairModels(t)
 	dir := t.TempDir()
 	var files []string
@@ -314,5 +315,46 @@ func TestComparePredictionsErrors(t *testing.T) {
 		if _, err := ComparePredictions(a, b); err == nil {
 			t.Errorf("%s: no error", name)
 		}
+	}
+}
+
+// Alignment by hand-made layer tables: a renamed layer of the same op and
+// shape pairs by position; a changed width marks shape, params and MACs; a
+// layer of one model only is reported as such (common practice: what a
+// reader diffing two tables by eye would pair).
+func TestAlignLayersByHand(t *testing.T) {
+	sh := func(d ...int64) modelio.Shape {
+		var s modelio.Shape
+		for _, v := range d {
+			s = append(s, modelio.Dim{Size: v})
+		}
+		return s
+	}
+	a := &modelio.Model{Layers: []modelio.Layer{
+		{Name: "conv1", Op: "Conv", Shape: sh(1, 8, 4, 4), Params: 224, MACs: 3456},
+		{Name: "act", Op: "Relu", Shape: sh(1, 8, 4, 4)},
+		{Name: "fc", Op: "Gemm", Shape: sh(1, 2), Params: 258, MACs: 256},
+	}}
+	b := &modelio.Model{Layers: []modelio.Layer{
+		{Name: "conv1", Op: "Conv", Shape: sh(1, 16, 4, 4), Params: 448, MACs: 6912},
+		{Name: "relu_0", Op: "Relu", Shape: sh(1, 8, 4, 4)},
+		{Name: "fc", Op: "Gemm", Shape: sh(1, 2), Params: 258, MACs: 256},
+		{Name: "prob", Op: "Softmax", Shape: sh(1, 2)},
+	}}
+	rows, same := AlignLayers(a, b)
+	if same || len(rows) != 4 {
+		t.Fatalf("same %v, %d rows: %+v", same, len(rows), rows)
+	}
+	if r := rows[0]; !r.Changed || !slices.Equal(r.Differs, []string{"shape", "params", "macs"}) {
+		t.Errorf("conv1: %+v", r)
+	}
+	if r := rows[1]; r.By != "position" || r.NameB != "relu_0" || r.Changed {
+		t.Errorf("renamed relu: %+v", r)
+	}
+	if r := rows[2]; r.Changed || r.By != "name" {
+		t.Errorf("fc: %+v", r)
+	}
+	if r := rows[3]; r.A != nil || r.B == nil || !slices.Equal(r.Differs, []string{"only in b"}) {
+		t.Errorf("softmax: %+v", r)
 	}
 }
