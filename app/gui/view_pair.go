@@ -26,8 +26,8 @@ import (
 // from a flipped image draws the occlusion maps of both models for the true
 // class side by side on one scale.
 type pairView struct {
-	u       *ui
-	content fyne.CanvasObject
+	u           *ui
+	content     fyne.CanvasObject
 	runner      *runner // the comparison
 	occRunner   *runner // the side-by-side occlusion
 	thumbRunner *runner // loading the flipped images' thumbnails
