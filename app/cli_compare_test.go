@@ -344,19 +344,22 @@ func TestCLICompareOtherArchitecture(t *testing.T) {
 
 func TestCLICompareUsage(t *testing.T) {
 	for _, c := range []struct {
+		name string
 		args []string
 		want string
 	}{
-		{[]string{"compare"}, "--against"},
-		{[]string{"compare", "--against-demo", "unhealthy", "--match", "best"}, "--match"},
-		{[]string{"compare", "--against", "/nonexistent/cand.onnx"}, "cand.onnx"},
-		{[]string{"compare", "--against-demo", "sick"}, "sick"},
-		{[]string{"compare", "--against-demo", "unhealthy", "--max-accuracy-drop", "2"}, "fraction"},
-		{[]string{"compare", "--against-demo", "unhealthy", "--data", "/nonexistent/labelled"}, "labelled"},
+		{"no candidate", []string{"compare"}, "--against"},
+		{"unknown matching", []string{"compare", "--against-demo", "unhealthy", "--match", "best"}, "--match"},
+		{"missing file", []string{"compare", "--against", "/nonexistent/cand.onnx"}, "cand.onnx"},
+		{"unknown demo", []string{"compare", "--against-demo", "sick"}, "sick"},
+		{"drop not a fraction", []string{"compare", "--against-demo", "unhealthy", "--max-accuracy-drop", "2"}, "fraction"},
+		{"missing data", []string{"compare", "--against-demo", "unhealthy", "--data", "/nonexistent/labelled"}, "labelled"},
 	} {
-		_, errs, code := runCLI(t, c.args...)
-		if code != exitUsage || !strings.Contains(errs, c.want) {
-			t.Errorf("%v: exit %d, stderr %q; want 2 naming %q", c.args, code, errs, c.want)
-		}
+		t.Run(c.name, func(t *testing.T) {
+			_, errs, code := runCLI(t, c.args...)
+			if code != exitUsage || !strings.Contains(errs, c.want) {
+				t.Errorf("%v: exit %d, stderr %q; want 2 naming %q", c.args, code, errs, c.want)
+			}
+		})
 	}
 }

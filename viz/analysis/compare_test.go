@@ -87,16 +87,18 @@ func TestCosinePlanted(t *testing.T) {
 		{"scaled", scaled, 1},
 		{"other", other, math.NaN()},
 	} {
-		got, ok := Cosine(x, c.y)
-		if !ok {
-			t.Fatalf("%s: undefined", c.name)
-		}
-		if r := ref(x, c.y); math.Abs(got-r) > 1e-12 {
-			t.Errorf("%s: cosine %g, direct %g", c.name, got, r)
-		}
-		if !math.IsNaN(c.want) && math.Abs(got-c.want) > 1e-12 {
-			t.Errorf("%s: cosine %g, want %g", c.name, got, c.want)
-		}
+		t.Run(c.name, func(t *testing.T) {
+			got, ok := Cosine(x, c.y)
+			if !ok {
+				t.Fatal("undefined")
+			}
+			if r := ref(x, c.y); math.Abs(got-r) > 1e-12 {
+				t.Errorf("cosine %g, direct %g", got, r)
+			}
+			if !math.IsNaN(c.want) && math.Abs(got-c.want) > 1e-12 {
+				t.Errorf("cosine %g, want %g", got, c.want)
+			}
+		})
 	}
 	// (1·0.5 − 2·1 − 0.5 + 6 + 0 + 0) / (√15.25 · √22.25), by hand.
 	if got, _ := Cosine(x, other); math.Abs(got-4/math.Sqrt(15.25*22.25)) > 1e-12 {
@@ -312,9 +314,11 @@ func TestComparePredictionsErrors(t *testing.T) {
 		"truth":     {{"x", 0, 0}, {"y", 0, 1}},
 		"duplicate": {{"x", 0, 0}, {"x", 0, 0}},
 	} {
-		if _, err := ComparePredictions(a, b); err == nil {
-			t.Errorf("%s: no error", name)
-		}
+		t.Run(name, func(t *testing.T) {
+			if _, err := ComparePredictions(a, b); err == nil {
+				t.Error("no error")
+			}
+		})
 	}
 }
 

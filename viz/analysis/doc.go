@@ -15,6 +15,12 @@
 //     the mistakes and the least sure right answers; shards of the sorted
 //     entries (Labelled.Shard) merge exactly (Merge), as scans do
 //     (ScanPart, MergeScan).
+//   - Comparing two models (compare.go, compare_run.go): layer tables
+//     aligned (AlignLayers), kernels compared filter by filter by cosine
+//     similarity and norm ratio (CompareFilters, paired by index or greedily
+//     by similarity), two scans compared (CompareHealth: newly dead,
+//     revived), paired answers with McNemar's exact test
+//     (ComparePredictions, McNemarExact).
 //
 // The package sits above the drawing package in the dependency order: it may
 // use viz's data types, and viz never imports it, so drawing needs no model
