@@ -25,7 +25,7 @@ TEST_DEBS := $(RUN_DEBS) libonnx-testdata desktop-file-validate:desktop-file-uti
 # check-export: Debian's PyTorch and onnx for /usr/bin/python3 (about 1 GB).
 EXPORT_DEBS := python3-torch python3-onnx python3-numpy python3-pil
 # refdata: the same plus torchvision (its PIL transforms are the reference).
-REFDATA_DEBS := $(EXPORT_DEBS) python3-torchvision
+REFDATA_DEBS := $(EXPORT_DEBS) python3-torchvision python3-scipy
 # Go release named in go.mod; an older or missing go gets it from the Go module proxy.
 GO_WANT   := $(shell sed -n 's/^go \([0-9.]*\)$$/\1/p' go.mod)
 GOCACHE_TOOLS := $(HOME)/.cache/fovea/go-$(GO_WANT)
@@ -249,9 +249,11 @@ check-export: deps-export build ort
 # tests read (`make test` never runs Python): torchvision's resize/crop
 # pictures, tensors and top-5 probabilities (modelio/prep/testdata/torchvision)
 # and the kernels of real exports read by onnx's numpy_helper
-# (modelio/testdata/onnxref). Each run writes the same bytes; git diff shows
+# (modelio/testdata/onnxref), and SciPy's exact McNemar p-values
+# (testdata/compare). Each run writes the same bytes; git diff shows
 # any change.
 refdata:
 	@$(call install_debs,$(REFDATA_DEBS))
 	/usr/bin/python3 modelio/prep/testdata/torchvision/gen_torchvision.py
 	/usr/bin/python3 modelio/testdata/onnxref/gen_kernels.py
+	/usr/bin/python3 testdata/compare/make_mcnemar.py
