@@ -47,6 +47,7 @@ type compareOut struct {
 	Accuracy *struct{ A, B float64 }
 	Flipped  []struct {
 		File, True, A, B string
+		Worse            bool `json:"right_to_wrong"`
 	}
 	McNemarP *float64 `json:"mcnemar_p"`
 }
@@ -152,10 +153,41 @@ func TestCLICompareDemoPairAgainstPyTorch(t *testing.T) {
 	if len(wantFlip) == 0 || !slices.Equal(gotFlip, wantFlip) {
 		t.Errorf("flipped %v\nPyTorch %v", gotFlip, wantFlip)
 	}
-	// McNemar's p for the demo's discordant counts, as SciPy computed it
-	// (testdata/compare/mcnemar_scipy.json holds the case 35 against 7).
-	if c.McNemarP == nil || math.Abs(*c.McNemarP-1.5097200957825409e-05) > 1e-15 {
-		t.Errorf("mcnemar_p %v, SciPy's binomtest(7, 42) 1.5097200957825409e-05", c.McNemarP)
+	// McNemar's p for the demo's discordant counts (checked above against
+	// PyTorch's predictions), as SciPy computed it: the case is one of those
+	// in testdata/compare/mcnemar_scipy.json.
+	var worse, better int
+	for _, f := range c.Flipped {
+		if f.Worse {
+			worse++
+		} else {
+			better++
+		}
+	}
+	refData, err := os.ReadFile(filepath.Join("..", "testdata", "compare", "mcnemar_scipy.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var ref struct {
+		Cases []struct {
+			B, C int
+			P    float64
+		}
+	}
+	if err := json.Unmarshal(refData, &ref); err != nil {
+		t.Fatal(err)
+	}
+	found := false
+	for _, r := range ref.Cases {
+		if (r.B == better && r.C == worse) || (r.B == worse && r.C == better) {
+			found = true
+			if c.McNemarP == nil || math.Abs(*c.McNemarP-r.P) > 1e-12*r.P {
+				t.Errorf("mcnemar_p %v, SciPy's binomtest(%d, %d) %g", c.McNemarP, r.B, r.B+r.C, r.P)
+			}
+		}
+	}
+	if !found {
+		t.Errorf("no SciPy reference for %d against %d discordant images: add the case to testdata/compare/make_mcnemar.py", worse, better)
 	}
 	// Both accuracies are what fovea evaluate reports for each model alone.
 	for _, x := range []struct {
