@@ -28,6 +28,9 @@ type PatchGridOptions struct {
 	Columns int
 	// Title, when not empty, is written above the grid.
 	Title string
+	// NoNote leaves out the caution under the grid (for a window that
+	// shows it once beside several grids).
+	NoNote bool
 }
 
 // patchBox is the colour of the receptive-field box on the thumbnails:
@@ -71,7 +74,13 @@ func PatchGrid(cells []PatchCell, o PatchGridOptions) (*image.NRGBA, error) {
 	caution := "Evidence about this model on these probe images, not a description of what the channel means."
 	w := pad*2 + cols*cellW + (cols-1)*gap
 	lines := wrapText(caution, w-2*pad, small)
-	h := pad*2 + titleH + rows*cellH + (rows-1)*gap + gap + len(lines)*lh
+	if o.NoNote {
+		lines = nil
+	}
+	h := pad*2 + titleH + rows*cellH + (rows-1)*gap + len(lines)*lh
+	if len(lines) > 0 {
+		h += gap
+	}
 	img, err := newCanvas("patch grid", w, h, Light)
 	if err != nil {
 		return nil, err

@@ -67,6 +67,9 @@ type ScanReport struct {
 	// order of every ChannelScan.PerClass.
 	Classes []string    `json:"classes,omitempty"`
 	Layers  []ScanLayer `json:"layers"`
+	// FS is ScanOptions.FS: where the files named in the report (the
+	// strongest images) are opened; nil for paths of the operating system.
+	FS fs.FS `json:"-"`
 	// Stages says where the scan's time went (for --verbose); it is not
 	// part of the result and differs from run to run.
 	Stages Stages    `json:"-"`
@@ -537,6 +540,7 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 	// What a scan part does not carry (the strongest images, the class
 	// rates, why a channel is dead): added here, from the accumulators.
 	out.Classes = xt.classes
+	out.FS = o.FS
 	for li, a := range accs {
 		l := &out.Layers[li]
 		l.Layer, l.MapH, l.MapW = a.layer, a.mapH, a.mapW
