@@ -108,11 +108,14 @@ type ChannelScan struct {
 	Max   float64        `json:"max"`
 	Mean  float64        `json:"mean"`
 	Flags []modelio.Flag `json:"flags"`
-	// Why a channel is dead or rare (see strongest.go): the bias of the
-	// Conv feeding the activation directly (absent with a normalisation
-	// between, or no Conv), and the largest value the activation's input
-	// reached on the probes (absent when the session did not capture it,
-	// PreActivationCapture).
+	// Why a channel is dead or rare (see strongest_scan.go): the bias of
+	// the Conv feeding the activation directly (absent with a
+	// normalisation between, or no Conv), and the largest value the
+	// activation's input reached on the probes: measured for a channel that
+	// never fired, equal to Max for one that did after an activation that
+	// passes positive values unchanged (Relu, LeakyRelu, ...), absent
+	// otherwise and when the session did not capture the input
+	// (PreActivationCapture).
 	Bias             *float64 `json:"bias,omitempty"`
 	MaxPreActivation *float64 `json:"max_preactivation,omitempty"`
 	// PerClass is the firing per probe class (ScanOptions.Labels), in the

@@ -44,6 +44,12 @@ func preActivation(m *modelio.Model, l modelio.Layer) (string, bool) {
 	return in, true
 }
 
+// identityAbove0 are the activations that pass positive inputs unchanged,
+// so that a channel's largest input, once it fired, is its largest output
+// (ONNX operator definitions: Relu, LeakyRelu, PRelu, Elu, Celu are x for
+// x > 0; ThresholdedRelu is x above its threshold, which is positive).
+var identityAbove0 = map[string]bool{"Relu": true, "LeakyRelu": true, "PRelu": true, "Elu": true, "Celu": true, "ThresholdedRelu": true}
+
 // batchInfo is what the statistics of a batch need besides its maps.
 type batchInfo struct {
 	n     int
@@ -59,20 +65,20 @@ type classAcc struct {
 
 // extras are a layer's accumulators beyond the firing statistics.
 type extras struct {
-	k       int    // strongest images kept per channel (0: none)
-	classes int    // number of probe classes (0: unlabelled)
-	pre     string // the captured input of the activation, "" when none
-	preRelu bool   // the activation is a Relu: where it fired its maximum is the input's
-	direct  bool   // the feeding Conv's output is the activation's input (no normalisation between)
-	tops    []topHeap
-	cls     [][]classAcc // [channel][class]
-	preMax  []float64
-	preSeen bool
-	mapH    int
-	mapW    int
-	bi      batchInfo      // the batch being added
-	preT    modelio.Tensor // its pre-activation maps
-	havePre bool
+	k        int    // strongest images kept per channel (0: none)
+	classes  int    // number of probe classes (0: unlabelled)
+	pre      string // the captured input of the activation, "" when none
+	identity bool   // the activation passes positive values unchanged: where it fired, its input's maximum is its own
+	direct   bool   // the feeding Conv's output is the activation's input (no normalisation between)
+	tops     []topHeap
+	cls      [][]classAcc // [channel][class]
+	preMax   []float64
+	preSeen  bool
+	mapH     int
+	mapW     int
+	bi       batchInfo      // the batch being added
+	preT     modelio.Tensor // its pre-activation maps
+	havePre  bool
 }
 
 // sizeExtras makes the accumulators for c channels (first batch).
@@ -140,15 +146,13 @@ func (a *layerAcc) addExtras(img, ch int, m []float32, mx float32, sum float64) 
 			c.mean += sum / float64(len(m))
 		}
 	}
-	if a.havePre {
-		var pm float32
-		if a.preRelu && mx > 0 {
-			pm = mx // Relu is the identity above 0
-		} else {
-			sp := len(m)
-			c := len(a.channels)
-			pm, _ = mapStats(a.preT.Data[(img*c+ch)*sp : (img*c+ch+1)*sp])
-		}
+	// The input's maximum is read only while the channel has not fired:
+	// once it has, the maximum is above zero and the channel is not dead,
+	// and a healthy network costs no second pass over its maps.
+	if a.havePre && a.channels[ch].fires == 0 {
+		sp := len(m)
+		c := len(a.channels)
+		pm, _ := mapStats(a.preT.Data[(img*c+ch)*sp : (img*c+ch+1)*sp])
 		if float64(pm) > a.preMax[ch] || pm != pm {
 			a.preMax[ch] = float64(pm)
 		}
@@ -194,7 +198,7 @@ func setupExtras(m *modelio.Model, accs []*layerAcc, o ScanOptions) (*scanExtras
 		}
 		if in, ok := preActivation(m, a.layer); ok {
 			a.pre = in
-			a.preRelu = a.layer.Op == "Relu"
+			a.identity = identityAbove0[a.layer.Op]
 		}
 	}
 	return xt, nil
@@ -244,8 +248,13 @@ func (xt *scanExtras) finish(a *layerAcc, ch int, cs *ChannelScan, bias []float3
 			cs.SelectiveFor, cs.Selectivity = xt.classes[best], sel
 		}
 	}
-	if a.preSeen && finite(a.preMax[ch]) {
+	switch {
+	case !a.preSeen:
+	case a.channels[ch].fires == 0 && finite(a.preMax[ch]):
 		v := a.preMax[ch]
+		cs.MaxPreActivation = &v
+	case a.channels[ch].fires > 0 && a.identity && finite(a.channels[ch].max):
+		v := a.channels[ch].max
 		cs.MaxPreActivation = &v
 	}
 	if a.direct && ch < len(bias) {
