@@ -63,7 +63,7 @@ the sorted probe files is scanned and the counts are printed as JSON;
 			var files []string
 			var err error
 			if *probe != "" {
-				files, opt.Labels, err = core.ProbeSet(*probe)
+				files, opt.Labels, err = j.ws.ProbeSet(*probe)
 			} else if j.ws.Demo == "" {
 				return j.usageErr("--probe DIR is required for your own model")
 			} else {

@@ -63,7 +63,7 @@ description of what a channel means.`,
 			var files []string
 			var err error
 			if *probe != "" {
-				files, opt.Labels, err = core.ProbeSet(*probe)
+				files, opt.Labels, err = j.ws.ProbeSet(*probe)
 			} else if j.ws.Demo == "" {
 				return j.usageErr("--probe DIR is required for your own model")
 			} else {

@@ -85,7 +85,7 @@ func TestCLITop(t *testing.T) {
 		decodeJSON(t, mustRun(t, "maps", "--model", d.model, "--image", f, "--layer", layer, "--out", filepath.Join(t.TempDir(), "m.png"), "--json"), &m)
 		for _, ch := range chans {
 			c := m.Channels[ch]
-			byChan[ch] = append(byChan[ch], one{f, c.Max, c.Fires > 0})
+			byChan[ch] = append(byChan[ch], one{f, c.Max, c.ActiveFraction > 0})
 		}
 	}
 	for i, ch := range chans {

@@ -362,7 +362,7 @@ func (v *healthView) run() {
 		if demo {
 			o.FS, files, err = core.DemoProbes() // read from the embedded files
 		} else {
-			files, o.Labels, err = core.ProbeSet(dir)
+			files, o.Labels, err = ws.ProbeSet(dir)
 		}
 		if err != nil {
 			return nil, err

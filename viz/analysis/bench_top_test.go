@@ -10,6 +10,7 @@ import (
 
 	"fovea/modelio/infer"
 	"fovea/modelio/prep"
+	"fovea/modelio/testkit"
 )
 
 // BenchmarkTopRatio reports the throughput of a scan that also keeps each
@@ -19,7 +20,7 @@ import (
 // the same tensors captured, in the same run: goal at least 0.75, on the
 // ResNet-18-sized network over 224×224 PNG probes.
 func BenchmarkTopRatio(b *testing.B) {
-	benchORT(b)
+	testkit.NeedRuntime(b)
 	for _, bc := range benchCases(b) {
 		if bc.name != "resnet18" {
 			continue

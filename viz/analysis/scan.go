@@ -547,12 +547,8 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 	for li, a := range accs {
 		l := &out.Layers[li]
 		l.Layer, l.MapH, l.MapW = a.layer, a.mapH, a.mapW
-		var bias []float32
-		if kf, ok := kernels[a.conv]; ok && kf.m == len(a.channels) {
-			bias = kf.bias
-		}
 		for i := range l.Channels {
-			xt.finish(a, i, &l.Channels[i], bias, c.Height, c.Width)
+			xt.finish(a, i, &l.Channels[i], c.Height, c.Width)
 		}
 	}
 	out.Stages = rep.Stages

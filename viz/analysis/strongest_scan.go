@@ -224,9 +224,9 @@ func (xt *scanExtras) batch(n int, files []string) batchInfo {
 }
 
 // finish fills channel ch's extras into cs: the strongest images with
-// their boxes for an inH×inW input, the class rates, the pre-activation
-// maximum and, when the Conv feeds the activation directly, its bias.
-func (xt *scanExtras) finish(a *layerAcc, ch int, cs *ChannelScan, bias []float32, inH, inW int) {
+// their boxes for an inH×inW input and the class rates. (The bias and the
+// input's maximum travel in the scan part: see why.)
+func (xt *scanExtras) finish(a *layerAcc, ch int, cs *ChannelScan, inH, inW int) {
 	if a.k > 0 {
 		for _, e := range a.tops[ch].sorted() {
 			y, x := e.pos/a.mapW, e.pos%a.mapW
@@ -248,19 +248,27 @@ func (xt *scanExtras) finish(a *layerAcc, ch int, cs *ChannelScan, bias []float3
 			cs.SelectiveFor, cs.Selectivity = xt.classes[best], sel
 		}
 	}
+}
+
+// why returns channel ch's bias (when its Conv feeds the activation
+// directly) and the maximum of the activation's input: measured while the
+// channel never fired, its peak once it fired after an activation that
+// passes positive values unchanged, else nil.
+func (a *layerAcc) why(ch int, kernels map[int]convFlags) (bias, pre *jfloat) {
+	if kf, ok := kernels[a.conv]; ok && kf.m == len(a.channels) && a.direct && ch < len(kf.bias) {
+		v := jfloat(kf.bias[ch])
+		bias = &v
+	}
 	switch {
 	case !a.preSeen:
-	case a.channels[ch].fires == 0 && finite(a.preMax[ch]):
-		v := a.preMax[ch]
-		cs.MaxPreActivation = &v
-	case a.channels[ch].fires > 0 && a.identity && finite(a.channels[ch].max):
-		v := a.channels[ch].max
-		cs.MaxPreActivation = &v
+	case a.channels[ch].fires == 0:
+		v := jfloat(a.preMax[ch])
+		pre = &v
+	case a.identity:
+		v := jfloat(a.channels[ch].max)
+		pre = &v
 	}
-	if a.direct && ch < len(bias) {
-		v := float64(bias[ch])
-		cs.Bias = &v
-	}
+	return bias, pre
 }
 
 // convBias returns the bias of the Conv at index i of m.Layers (its third
