@@ -28,6 +28,9 @@ type PatchGridOptions struct {
 	Columns int
 	// Title, when not empty, is written above the grid.
 	Title string
+	// Background is the page colour (the text takes the ink that reads on
+	// it); the zero value means [Light].
+	Background color.NRGBA
 	// NoNote leaves out the caution under the grid (for a window that
 	// shows it once beside several grids).
 	NoNote bool
@@ -81,7 +84,17 @@ func PatchGrid(cells []PatchCell, o PatchGridOptions) (*image.NRGBA, error) {
 	if len(lines) > 0 {
 		h += gap
 	}
-	img, err := newCanvas("patch grid", w, h, Light)
+	bg := o.Background
+	if bg == (color.NRGBA{}) {
+		bg = Light
+	}
+	ink := inkFor(bg)
+	muted := inkMuted
+	if ink == inkLight {
+		muted = color.NRGBA{0xa8, 0xad, 0xb3, 0xff}
+	}
+	bold.Color = ink
+	img, err := newCanvas("patch grid", w, h, bg)
 	if err != nil {
 		return nil, err
 	}
@@ -95,7 +108,7 @@ func PatchGrid(cells []PatchCell, o PatchGridOptions) (*image.NRGBA, error) {
 		x := pad + (i%cols)*(cellW+gap)
 		y := pad + titleH + (i/cols)*(cellH+gap)
 		patch := image.Rect(x, y, x+tile, y+tile)
-		fill(img, patch, color.NRGBA{0xee, 0xef, 0xf1, 0xff})
+		fill(img, patch, outlineFor(bg))
 		if c.Image != nil {
 			box := c.Box.Intersect(c.Image.Bounds())
 			if box.Empty() {
@@ -116,11 +129,11 @@ func PatchGrid(cells []PatchCell, o PatchGridOptions) (*image.NRGBA, error) {
 			}
 		}
 		DrawText(img, x+tile+gap/2, y+thumb+4, fitText(fmtG(c.Value), thumb+gap, bold), bold)
-		DrawText(img, x, y+tile+4, fitText(c.Caption, cellW, small), TextStyle{Size: 11, Color: inkMuted})
+		DrawText(img, x, y+tile+4, fitText(c.Caption, cellW, small), TextStyle{Size: 11, Color: muted})
 	}
 	y := pad + titleH + rows*cellH + (rows-1)*gap + gap
 	for _, l := range lines {
-		DrawText(img, pad, y, l, TextStyle{Size: 11, Color: inkMuted})
+		DrawText(img, pad, y, l, TextStyle{Size: 11, Color: muted})
 		y += lh
 	}
 	return img, nil

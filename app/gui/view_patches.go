@@ -5,6 +5,7 @@ import (
 	"context"
 	"fmt"
 	"image"
+	"image/color"
 	"path"
 	"path/filepath"
 	"slices"
@@ -265,6 +266,8 @@ func (v *patchesView) showChannel(ch int) {
 	l, c, ws := v.cur, v.cur.Channels[ch], u.ws
 	v.about.SetText(channelStory(l, c, u.scan))
 	top, fsys := c.Top, u.scan.FS
+	r, g, b, _ := theme.Color(theme.ColorNameBackground).RGBA()
+	bg := color.NRGBA{uint8(r >> 8), uint8(g >> 8), uint8(b >> 8), 0xff}
 	v.runner.launch("Loading the patches of channel "+strconv.Itoa(ch), "", ws, func(ctx context.Context, _ func(int, int)) (result, error) {
 		cells, err := ws.PatchCells(top, "", fsys)
 		if err != nil {
@@ -275,7 +278,7 @@ func (v *patchesView) showChannel(ch int) {
 			if ctx.Err() != nil {
 				return nil, ctx.Err()
 			}
-			pic, err := viz.PatchGrid([]viz.PatchCell{cell}, viz.PatchGridOptions{Tile: patchTile, Columns: 1, NoNote: true})
+			pic, err := viz.PatchGrid([]viz.PatchCell{cell}, viz.PatchGridOptions{Tile: patchTile, Columns: 1, NoNote: true, Background: bg})
 			if err != nil {
 				return nil, err
 			}
