@@ -142,19 +142,19 @@ func newHealthView(u *ui) *healthView {
 	v.tilesAbout = widget.NewLabel("")
 	v.tilesAbout.Wrapping = fyne.TextWrapWord
 
-	bar := container.NewVBox(
-		container.NewBorder(nil, nil, widget.NewLabel("Probe images:"), nil, v.folder),
-		container.NewHBox(choose, sick, widget.NewLabel("   Rare below"),
-			container.NewGridWrap(fyne.NewSize(48, v.rare.MinSize().Height), v.rare), widget.NewLabel("% of images"), v.scanBtn, v.csvBtn))
-	right := container.NewBorder(v.tilesAbout, nil, nil, nil, v.tiles.box)
-	tip := note("Click a column title to sort; choose a row to see its filters.")
 	v.patchBtn = widget.NewButtonWithIcon("Strongest patches", theme.ZoomInIcon(), func() {
 		if r := v.selected; r >= 0 && r < len(v.rows) {
 			u.showPatches(v.rows[r].Layer, v.rows[r].Index)
 		}
 	})
 	v.patchBtn.Disable()
-	tableSide := container.NewBorder(container.NewBorder(nil, nil, v.onlyFlags, v.patchBtn, tip), nil, nil, nil, v.table)
+	bar := container.NewVBox(
+		container.NewBorder(nil, nil, widget.NewLabel("Probe images:"), nil, v.folder),
+		container.NewHBox(choose, sick, widget.NewLabel("   Rare below"),
+			container.NewGridWrap(fyne.NewSize(48, v.rare.MinSize().Height), v.rare), widget.NewLabel("% of images"), v.scanBtn, v.csvBtn, v.patchBtn))
+	right := container.NewBorder(v.tilesAbout, nil, nil, nil, v.tiles.box)
+	tip := note("Click a column title to sort; choose a row to see its filters.")
+	tableSide := container.NewBorder(container.NewBorder(nil, nil, v.onlyFlags, nil, tip), nil, nil, nil, v.table)
 	split := container.NewHSplit(tableSide, right)
 	split.SetOffset(0.64)
 	v.content = container.NewBorder(container.NewVBox(bar, v.runner.box, v.summary), nil, nil, nil, split)
