@@ -2,6 +2,7 @@ package main
 
 import (
 	"cmp"
+	"math"
 	"os"
 	"path/filepath"
 	"slices"
@@ -124,6 +125,55 @@ func TestCLITop(t *testing.T) {
 			}
 		}
 	}
+	// scan --json on the same labelled folder, with the unhealthy
+	// checkpoint: every dead channel says how far below zero its input
+	// stayed (≤ 0), every channel that fired after a Relu has its peak there
+	// (> 0), and the per-class counts add up to the overall firing (the
+	// images of the classes are all the images; a direct identity).
+	var scan struct {
+		Images int `json:"images"`
+		Layers []struct {
+			Name     string `json:"name"`
+			Channels []struct {
+				Index    int      `json:"index"`
+				Fires    float64  `json:"fires"`
+				Flags    []string `json:"flags"`
+				MaxPre   *float64 `json:"max_preactivation"`
+				PerClass []struct {
+					Images int     `json:"images"`
+					Fires  float64 `json:"fires"`
+				} `json:"per_class"`
+			} `json:"channels"`
+		} `json:"layers"`
+	}
+	decodeJSON(t, mustRun(t, "scan", "--model", d.unhealthy, "--probe", dir, "--json"), &scan)
+	deadSeen := 0
+	for _, l := range scan.Layers {
+		for _, c := range l.Channels {
+			dead := slices.Contains(c.Flags, "dead")
+			switch {
+			case c.MaxPre == nil:
+				t.Errorf("%s channel %d: no max_preactivation", l.Name, c.Index)
+			case dead && *c.MaxPre > 0, !dead && *c.MaxPre <= 0:
+				t.Errorf("%s channel %d: dead %v, max_preactivation %g", l.Name, c.Index, dead, *c.MaxPre)
+			}
+			if dead {
+				deadSeen++
+			}
+			n, fired := 0, 0.0
+			for _, pc := range c.PerClass {
+				n += pc.Images
+				fired += pc.Fires * float64(pc.Images)
+			}
+			if len(c.PerClass) != len(per) || n != scan.Images || math.Abs(fired-c.Fires*float64(scan.Images)) > 1e-9 {
+				t.Errorf("%s channel %d: per-class %d images, %g fired; overall %d, %g", l.Name, c.Index, n, fired, scan.Images, c.Fires*float64(scan.Images))
+			}
+		}
+	}
+	if deadSeen == 0 {
+		t.Error("the unhealthy checkpoint shows no dead channel on these probes: the check above could not fail")
+	}
+
 	// Bad input: a layer the scan does not cover, a channel out of range.
 	if _, errs, code := runCLI(t, "top", "--model", d.model, "--probe", dir, "--layer", "/pool1/MaxPool"); code != exitUsage || !strings.Contains(errs, "/relu1/Relu") {
 		t.Errorf("a pooling layer: exit %d, %s", code, errs)
