@@ -21,16 +21,16 @@ const nameMax = 210
 
 // cellWidth is the width a table label needs to show s whole.
 func cellWidth(s string, bold bool) float32 {
-	return fyne.MeasureText(s, theme.TextSize(), fyne.TextStyle{Bold: bold}).Width + 2*theme.InnerPadding() + 4
+	return fyne.MeasureText(s, theme.TextSize(), fyne.TextStyle{Bold: bold}).Width + 2*theme.InnerPadding()
 }
 
 // fitColumns sets the table's column widths for rows: each column as wide
-// as its widest value or title (at least the default width), the name
-// column at most nameMax.
+// as its widest value or title, the name column at most nameMax (the
+// default widths hold until a model is open).
 func (p *layerPanel) fitColumns() {
 	p.widths = make([]float32, len(layerColumns))
 	for c, col := range layerColumns {
-		w := max(col.width, cellWidth(col.title, true))
+		w := cellWidth(col.title, true)
 		for r := range p.rows {
 			w = max(w, cellWidth(p.cell(r, c), false))
 		}
