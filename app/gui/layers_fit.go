@@ -21,7 +21,7 @@ const nameMax = 210
 
 // cellWidth is the width a table label needs to show s whole.
 func cellWidth(s string, bold bool) float32 {
-	return fyne.MeasureText(s, theme.TextSize(), fyne.TextStyle{Bold: bold}).Width + 2*theme.InnerPadding()
+	return fyne.MeasureText(s, theme.TextSize(), fyne.TextStyle{Bold: bold}).Width + 2*theme.InnerPadding() + 4
 }
 
 // fitColumns sets the table's column widths for rows: each column as wide
