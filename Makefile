@@ -65,7 +65,7 @@ bench: deps-test build ort
 	status=0; \
 	{ r=0; $(GO) test -p 1 -count 1 -run '^$$' -bench '^BenchmarkCaptureRatio$$' -benchtime 2s ./modelio/infer || r=1; \
 	  FOVEA_BENCH_MODELS="$$dir" $(GO) test -p 1 -count 1 -timeout 30m -run '^$$' -benchtime 10x \
-	    -bench '^Benchmark(OcclusionRatio|IncrementalRatio|ScanRatio|ScanCores|EvaluateRatio|CaptureRatioResNet18|OpenRatio)$$' ./viz/analysis ./modelio/infer ./modelio || r=1; \
+	    -bench '^Benchmark(OcclusionRatio|IncrementalRatio|ScanRatio|TopRatio|ScanCores|EvaluateRatio|CaptureRatioResNet18|OpenRatio)$$' ./viz/analysis ./modelio/infer ./modelio || r=1; \
 	  exit $$r; } 2>&1 | tee /tmp/fovea-bench.txt || status=$$?; \
 	echo; $(GO) run ./modelio/internal/synth/synthbench table /tmp/fovea-bench.txt || status=1; \
 	exit $$status

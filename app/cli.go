@@ -40,12 +40,13 @@ var windowPlace = map[string]string{
 	"maps":     "the Layer maps tab",
 	"occlude":  "the Occlusion tab",
 	"scan":     "the Filter health tab",
+	"top":      "the Strongest patches tab",
 	"report":   "the Occlusion tab's Export picture…",
 }
 
 // commands in the order `fovea help` lists them.
 var commands = []*command{
-	layersCommand, classifyCommand, filtersCommand, mapsCommand, occludeCommand, scanCommand, reportCommand, evaluateCommand, compareCommand,
+	layersCommand, classifyCommand, filtersCommand, mapsCommand, occludeCommand, scanCommand, topCommand, reportCommand, evaluateCommand, compareCommand,
 }
 
 func findCommand(name string) *command {

@@ -21,6 +21,12 @@ of each ReLU-like activation layer, on what fraction of the images it fired
 (any value above zero), its largest and its mean value. Flags: dead (never fired),
 rare (fired on fewer than --rare-percent % of the images, 1 by default), constant (one value everywhere),
 zero_kernel and duplicate (from the weights of the convolution feeding it).
+--json adds, per channel, the bias of a convolution feeding the activation
+directly and the largest value the activation's input reached
+(max_preactivation: how far below zero a dead channel stays). A probe folder of
+class subfolders adds per_class (firing and mean per class) and the class the
+channel is most selective for, with the selectivity index of Morcos et al. 2018:
+(best class mean − mean of the other classes' means) / (their sum), 0 to 1.
 
 With --max-dead N the exit status is 3 when more than N channels are dead, so a
 training pipeline can stop a bad run. With --shard K/N only the K-th of N slices of
@@ -57,7 +63,7 @@ the sorted probe files is scanned and the counts are printed as JSON;
 			var files []string
 			var err error
 			if *probe != "" {
-				files, err = core.ProbeFiles(*probe)
+				files, opt.Labels, err = j.ws.ProbeSet(*probe)
 			} else if j.ws.Demo == "" {
 				return j.usageErr("--probe DIR is required for your own model")
 			} else {

@@ -55,6 +55,7 @@ var Views = []struct{ Name, Title string }{
 	{viewHealth, "Filter health"},
 	{viewScorecard, "Scorecard"},
 	{viewPair, "Checkpoint pair"},
+	{viewPatches, "Strongest patches"},
 }
 
 const (
@@ -66,6 +67,7 @@ const (
 	viewHealth    = "health"
 	viewScorecard = "scorecard"
 	viewPair      = "pair"
+	viewPatches   = "patches"
 )
 
 // Run opens the window and blocks until it is closed. It returns the process

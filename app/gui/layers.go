@@ -36,7 +36,8 @@ type layerPanel struct {
 	totals  *widget.Label
 	content fyne.CanvasObject
 	rows    []modelio.Layer
-	quiet   bool // selection changed by the window, not the user
+	quiet   bool      // selection changed by the window, not the user
+	widths  []float32 // the column widths in force (fitColumns)
 }
 
 func newLayerPanel(u *ui) *layerPanel {
@@ -50,7 +51,11 @@ func newLayerPanel(u *ui) *layerPanel {
 		},
 		func(id widget.TableCellID, o fyne.CanvasObject) {
 			l := o.(*widget.Label)
-			l.SetText(p.cell(id.Row, id.Col))
+			text := p.cell(id.Row, id.Col)
+			if id.Col == 0 {
+				text = middleEllipsis(text, nameMax)
+			}
+			l.SetText(text)
 			if layerColumns[id.Col].num {
 				l.Alignment = fyne.TextAlignTrailing
 			} else {
@@ -127,6 +132,7 @@ func (p *layerPanel) refresh() {
 		p.totals.SetText(fmt.Sprintf("%d layers · %s parameters · %s MACs per image · %s of outputs per image · RF in pixels of the input",
 			len(p.rows), core.Compact.Count(t.Params), core.Compact.Count(t.MACs), core.Compact.Bytes(t.Bytes)))
 	}
+	p.fitColumns()
 	p.quiet = true
 	p.table.UnselectAll()
 	p.quiet = false

@@ -21,7 +21,7 @@ export LANG=C.UTF-8 LC_ALL=C.UTF-8 LANGUAGE=en
 root=$(cd "$(dirname "$0")/../.." && pwd)
 out=$(realpath -m "${1:-$root/assets/screenshots}")
 cd "$root" # the scorecard shot names its list relative to the repository
-views=${SHOT_VIEWS:-"model kernels predict maps occlusion health scorecard"}
+views=${SHOT_VIEWS:-"model kernels predict maps occlusion health scorecard patches"}
 themes=${SHOT_THEMES:-"light dark"}
 wait=${SHOT_WAIT:-6}
 for tool in Xvfb import convert xwininfo; do

@@ -90,6 +90,7 @@ type ui struct {
 	vHealth     *healthView
 	vScore      *scorecardView
 	vPair       *pairView
+	vPatches    *patchesView
 	errShown    int // errors shown so far (tests read it)
 }
 
@@ -179,11 +180,13 @@ func newUI(a fyne.App, w fyne.Window, o Options) *ui {
 	u.vHealth = newHealthView(u)
 	u.vScore = newScorecardView(u)
 	u.vPair = newPairView(u)
+	u.vPatches = newPatchesView(u)
 
 	contents := map[string]fyne.CanvasObject{
 		viewModel: u.vModel.content, viewKernels: u.vKernels.content, viewPredict: u.vPredict.content,
 		viewMaps: u.vMaps.content, viewOcclusion: u.vOcc.content, viewHealth: u.vHealth.content,
 		viewScorecard: u.vScore.content, viewPair: u.vPair.content,
+		viewPatches: u.vPatches.content,
 	}
 	u.tabs = container.NewAppTabs()
 	u.tabByView = map[string]*container.TabItem{}
@@ -256,7 +259,7 @@ func (u *ui) start() {
 		case u.opts.Probe != "":
 			u.setProbeDir(u.opts.Probe)
 			u.vHealth.run()
-		case u.opts.View == viewHealth && u.ws != nil && u.ws.Demo != "":
+		case (u.opts.View == viewHealth || u.opts.View == viewPatches) && u.ws != nil && u.ws.Demo != "":
 			u.vHealth.run() // asked for on the command line: show the demo's scan
 		}
 		switch {

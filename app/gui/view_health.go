@@ -42,8 +42,12 @@ type healthView struct {
 	rows    []analysis.ScanRow // as shown: filtered and sorted
 	sortCol int                // column sorted by; -1 = scan order
 	desc    bool
-	conv    string         // convolution whose tiles are shown
-	info    []viz.TileInfo // those tiles (tests read them)
+	conv    string // convolution whose tiles are shown
+	// selected is the row chosen in the table (-1: none); patchBtn opens
+	// its strongest patches.
+	selected int
+	patchBtn *widget.Button
+	info     []viz.TileInfo // those tiles (tests read them)
 }
 
 // healthColumns are the scan table's columns.
@@ -61,7 +65,7 @@ var healthColumns = []struct {
 }
 
 func newHealthView(u *ui) *healthView {
-	v := &healthView{u: u, sortCol: 2} // fires, ascending: dead filters first
+	v := &healthView{u: u, sortCol: 2, selected: -1} // fires, ascending: dead filters first
 	v.runner = u.newRunner(true)
 	v.folder = newPathLabel()
 	v.folder.Truncation = fyne.TextTruncateEllipsis
@@ -125,6 +129,10 @@ func newHealthView(u *ui) *healthView {
 		v.table.SetColumnWidth(i, c.width)
 	}
 	v.table.OnSelected = func(id widget.TableCellID) {
+		v.selected = id.Row
+		if id.Row >= 0 && id.Row < len(v.rows) {
+			v.patchBtn.Enable()
+		}
 		if id.Row >= 0 && id.Row < len(v.rows) && v.rows[id.Row].Conv != "" {
 			v.conv = v.rows[id.Row].Conv
 			v.drawTiles()
@@ -134,10 +142,16 @@ func newHealthView(u *ui) *healthView {
 	v.tilesAbout = widget.NewLabel("")
 	v.tilesAbout.Wrapping = fyne.TextWrapWord
 
+	v.patchBtn = widget.NewButtonWithIcon("Strongest patches", theme.ZoomInIcon(), func() {
+		if r := v.selected; r >= 0 && r < len(v.rows) {
+			u.showPatches(v.rows[r].Layer, v.rows[r].Index)
+		}
+	})
+	v.patchBtn.Disable()
 	bar := container.NewVBox(
 		container.NewBorder(nil, nil, widget.NewLabel("Probe images:"), nil, v.folder),
 		container.NewHBox(choose, sick, widget.NewLabel("   Rare below"),
-			container.NewGridWrap(fyne.NewSize(48, v.rare.MinSize().Height), v.rare), widget.NewLabel("% of images"), v.scanBtn, v.csvBtn))
+			container.NewGridWrap(fyne.NewSize(48, v.rare.MinSize().Height), v.rare), widget.NewLabel("% of images"), v.scanBtn, v.csvBtn, v.patchBtn))
 	right := container.NewBorder(v.tilesAbout, nil, nil, nil, v.tiles.box)
 	tip := note("Click a column title to sort; choose a row to see its filters.")
 	tableSide := container.NewBorder(container.NewBorder(nil, nil, v.onlyFlags, nil, tip), nil, nil, nil, v.table)
@@ -207,6 +221,8 @@ func (v *healthView) fill() {
 		})
 	}
 	v.table.UnselectAll()
+	v.selected = -1
+	v.patchBtn.Disable()
 	v.table.Refresh()
 }
 
@@ -336,7 +352,9 @@ func (v *healthView) run() {
 		u.showError("Scanning", fmt.Errorf("choose a folder of probe images first"))
 		return
 	}
-	u.showView(viewHealth)
+	if u.tabs.Selected() != u.tabByView[viewPatches] {
+		u.showView(viewHealth)
+	}
 	v.runner.launch("Scan", "images", ws, func(ctx context.Context, progress func(int, int)) (result, error) {
 		o := analysis.ScanOptions{Rare: rare / 100, SkipUnreadable: true}
 		var files []string
@@ -344,7 +362,7 @@ func (v *healthView) run() {
 		if demo {
 			o.FS, files, err = core.DemoProbes() // read from the embedded files
 		} else {
-			files, err = core.ProbeFiles(dir)
+			files, o.Labels, err = ws.ProbeSet(dir)
 		}
 		if err != nil {
 			return nil, err
@@ -361,6 +379,7 @@ func (v *healthView) run() {
 				u.scan = rep
 				v.refresh()
 				u.vKernels.draw()
+				u.vPatches.refresh()
 			}
 		}, nil
 	})

@@ -57,7 +57,14 @@ func newMapsView(u *ui) *mapsView {
 	v.overlay = newPicture(fyne.NewSize(200, 200), 2)
 	v.stats = widget.NewLabel("")
 	v.stats.Wrapping = fyne.TextWrapWord
-	right := container.NewBorder(container.NewHBox(widget.NewLabel("Over the image:"), v.channel), nil, nil, nil, v.overlay.box)
+	patches := widget.NewButton("Strongest patches", func() {
+		l, ok := v.current()
+		ch, err := strconv.Atoi(strings.TrimPrefix(v.channel.Selected, "channel "))
+		if ok && err == nil {
+			u.showPatches(l.Name, ch)
+		}
+	})
+	right := container.NewBorder(container.NewHBox(widget.NewLabel("Over the image:"), v.channel, patches), nil, nil, nil, v.overlay.box)
 	split := container.NewHSplit(v.grid.box, right)
 	split.SetOffset(0.62)
 	v.content = container.NewBorder(

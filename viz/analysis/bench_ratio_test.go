@@ -281,7 +281,9 @@ func scanRatioWith(b *testing.B, bc benchCase, format string, threads int) {
 		b.Fatal(err)
 	}
 	defer s.Close()
-	bound, err := infer.NewSession(m, infer.Options{Capture: ScanCapture(m), Threads: threads})
+	// The bound captures the same tensors as the scan: the maps and the
+	// activations' inputs (PreActivationCapture).
+	bound, err := infer.NewSession(m, infer.Options{Capture: opt.Capture, Threads: threads})
 	if err != nil {
 		b.Fatal(err)
 	}

@@ -44,6 +44,14 @@ type ScanOptions struct {
 	// paths inside it (the embedded demo's probe images, for example).
 	// nil means the names are paths of the operating system's files.
 	FS fs.FS
+	// TopK is the number of strongest probe images kept per channel
+	// (ChannelScan.Top); 0 means DefaultTopK, below 0 none.
+	TopK int
+	// Labels, when not nil, gives the class of each probe file (by the
+	// name in the file list); the report then has each channel's firing
+	// per class (ChannelScan.PerClass). Files without an entry count in
+	// no class.
+	Labels map[string]string
 }
 
 // ScanReport is the result of a dead-filter scan. Its JSON form is the one
@@ -52,10 +60,16 @@ type ScanOptions struct {
 //	{"images": 200, "layers": [{"name": "relu1", "channels": [{"index": 0,
 //	  "fires": 1, "max": 3.2, "mean": 0.41, "flags": []}, ...]}, ...]}
 type ScanReport struct {
-	Images  int         `json:"images"`            // probe images that went through the model
-	Skipped []string    `json:"skipped,omitempty"` // unreadable files passed over (ScanOptions.SkipUnreadable)
-	Rare    float64     `json:"rare"`              // the rare threshold in force
+	Images  int      `json:"images"`            // probe images that went through the model
+	Skipped []string `json:"skipped,omitempty"` // unreadable files passed over (ScanOptions.SkipUnreadable)
+	Rare    float64  `json:"rare"`              // the rare threshold in force
+	// Classes are the probe classes (ScanOptions.Labels), sorted, in the
+	// order of every ChannelScan.PerClass.
+	Classes []string    `json:"classes,omitempty"`
 	Layers  []ScanLayer `json:"layers"`
+	// FS is ScanOptions.FS: where the files named in the report (the
+	// strongest images) are opened; nil for paths of the operating system.
+	FS fs.FS `json:"-"`
 	// Stages says where the scan's time went (for --verbose); it is not
 	// part of the result and differs from run to run.
 	Stages Stages    `json:"-"`
@@ -68,6 +82,10 @@ type ScanLayer struct {
 	Output   string        `json:"output"`         // its output tensor
 	Conv     string        `json:"conv,omitempty"` // the Conv whose kernels feed it, when there is one
 	Channels []ChannelScan `json:"channels"`
+	// Layer is the layer's row of the model's table (its geometry gives the
+	// patches' boxes); MapH, MapW the size of its maps (1×1 for vectors).
+	Layer      modelio.Layer `json:"-"`
+	MapH, MapW int           `json:"-"`
 }
 
 // ChannelScan is the scan of one channel: Fires is the fraction of images on
@@ -90,6 +108,24 @@ type ChannelScan struct {
 	Max   float64        `json:"max"`
 	Mean  float64        `json:"mean"`
 	Flags []modelio.Flag `json:"flags"`
+	// Why a channel is dead or rare (see strongest_scan.go): the bias of
+	// the Conv feeding the activation directly (absent with a
+	// normalisation between, or no Conv), and the largest value the
+	// activation's input reached on the probes: measured for a channel that
+	// never fired, equal to Max for one that did after an activation that
+	// passes positive values unchanged (Relu, LeakyRelu, ...), absent
+	// otherwise and when the session did not capture the input
+	// (PreActivationCapture).
+	Bias             *float64 `json:"bias,omitempty"`
+	MaxPreActivation *float64 `json:"max_preactivation,omitempty"`
+	// PerClass is the firing per probe class (ScanOptions.Labels), in the
+	// order of ScanReport.Classes; SelectiveFor and Selectivity the class
+	// with the highest mean value and the Selectivity index.
+	PerClass     []ClassRate `json:"per_class,omitempty"`
+	SelectiveFor string      `json:"selective_for,omitempty"`
+	Selectivity  float64     `json:"selectivity,omitempty"`
+	// Top are the strongest probe images, best first (ScanOptions.TopK).
+	Top []Patch `json:"-"`
 }
 
 // ScanCapture returns the tensor names a session must capture
@@ -116,6 +152,7 @@ type layerAcc struct {
 	channels []channelAcc
 	spatial  int // positions per channel map, fixed by the first batch
 	values   int // values seen per channel
+	extras       // strongest images, per-class firing, pre-activations
 }
 
 // check validates the maps of a batch of n images against the layer and,
@@ -139,6 +176,7 @@ func (a *layerAcc) check(t modelio.Tensor, n int) (c, sp int, err error) {
 			a.channels[i] = channelAcc{max: math.Inf(-1), first: t.Data[i*sp]}
 		}
 		a.spatial = sp
+		a.sizeExtras(c)
 	} else if c != len(a.channels) || sp != a.spatial {
 		return 0, 0, fmt.Errorf("viz: scan: activation %q changed shape between batches (%v)", a.layer.Output, t.Shape)
 	}
@@ -163,6 +201,7 @@ func (a *layerAcc) addChannels(t modelio.Tensor, n, lo, hi int) {
 				acc.max = float64(mx)
 			}
 			acc.sum.add(sum)
+			a.addExtras(img, ch, m, mx, sum)
 			if !acc.varies {
 				// Only channels that have looked constant so far are
 				// compared value by value; most stop at the first value.
@@ -198,10 +237,20 @@ type statPart struct {
 // statistics on up to parts goroutines, each taking whole channels (see
 // addChannels), so the result does not depend on parts.
 func addParallel(accs []*layerAcc, maps map[string]modelio.Tensor, n, parts int) error {
+	return addBatch(accs, maps, batchInfo{n: n}, parts)
+}
+
+// addBatch is addParallel with the files and classes of the batch, for the
+// strongest images and the per-class firing.
+func addBatch(accs []*layerAcc, maps map[string]modelio.Tensor, bi batchInfo, parts int) error {
+	n := bi.n
 	total := 0
 	for _, a := range accs {
 		c, sp, err := a.check(maps[a.layer.Output], n)
 		if err != nil {
+			return err
+		}
+		if err := a.startBatch(maps, bi); err != nil {
 			return err
 		}
 		total += c * sp
@@ -250,6 +299,7 @@ func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
 type convFlags struct {
 	m     int
 	flags map[int][]modelio.Flag
+	bias  []float32 // nil when the Conv has none
 }
 
 // kernelFlags returns the kernel flags of every Conv feeding a scanned layer, by
@@ -269,7 +319,7 @@ func kernelFlags(ctx context.Context, m *modelio.Model, accs []*layerAcc) map[in
 		}
 		// Kept with the model (modelio.Model.KernelFlags): a rescan reads them back.
 		if flags, filters, err := m.KernelFlags(m.Layers[a.conv].Name); err == nil {
-			out[a.conv] = convFlags{m: filters, flags: flags}
+			out[a.conv] = convFlags{m: filters, flags: flags, bias: convBias(m, a.conv)}
 		}
 	}
 	return out
@@ -279,6 +329,7 @@ func kernelFlags(ctx context.Context, m *modelio.Model, accs []*layerAcc) map[in
 type statJob struct {
 	res *infer.Result
 	n   int
+	bi  batchInfo
 }
 
 // accumulate adds the maps of each job to the layers' statistics and hands
@@ -298,7 +349,7 @@ func accumulate(ctx context.Context, accs []*layerAcc, parts int, jobs <-chan st
 			return
 		}
 		t0 := time.Now()
-		if err := addParallel(accs, j.res.Maps, j.n, parts); err != nil {
+		if err := addBatch(accs, j.res.Maps, j.bi, parts); err != nil {
 			errc <- err
 			return
 		}
@@ -358,6 +409,10 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 	if len(accs) == 0 {
 		return nil, fmt.Errorf("viz: scan: %s has no ReLU-like activation layer to scan", m.Name)
 	}
+	xt, err := setupExtras(m, accs, o)
+	if err != nil {
+		return nil, err
+	}
 	if err := ctx.Err(); err != nil {
 		return nil, err
 	}
@@ -401,7 +456,7 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 		kernels = kernelFlags(ctx2, m, accs)
 	}()
 
-	rep := &ScanReport{Rare: rare}
+	rep := &ScanReport{Rare: rare, Classes: xt.classes}
 	st := &rep.Stages
 	st.Workers = feed.Workers()
 	if progress != nil {
@@ -447,7 +502,7 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 				}
 			}
 			select {
-			case jobs <- statJob{res: res, n: b.N}:
+			case jobs <- statJob{res: res, n: b.N, bi: xt.batch(b.N, b.Files)}:
 			case err := <-statErr:
 				return fail(err)
 			case <-ctx.Done():
@@ -485,6 +540,17 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 	if err != nil {
 		return nil, err
 	}
+	// What a scan part does not carry (the strongest images, the class
+	// rates, why a channel is dead): added here, from the accumulators.
+	out.Classes = xt.classes
+	out.FS = o.FS
+	for li, a := range accs {
+		l := &out.Layers[li]
+		l.Layer, l.MapH, l.MapW = a.layer, a.mapH, a.mapW
+		for i := range l.Channels {
+			xt.finish(a, i, &l.Channels[i], c.Height, c.Width)
+		}
+	}
 	out.Stages = rep.Stages
 	out.Stages.Wall = time.Since(start)
 	return out, nil
@@ -507,7 +573,7 @@ const spinMACsPerPixel = 10000
 // dims are the per-image input dimensions for a model whose input size is
 // symbolic (infer.Options.Dims), else nil.
 func ScanSession(m *modelio.Model, dims []int64) infer.Options {
-	opt := infer.Options{Capture: ScanCapture(m), Dims: dims}
+	opt := infer.Options{Capture: append(ScanCapture(m), PreActivationCapture(m)...), Dims: dims}
 	var pixels int64
 	switch im := m.Image; {
 	case im == nil:

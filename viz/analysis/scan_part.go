@@ -131,6 +131,11 @@ type PartChannel struct {
 	Sum    exactSum `json:"sum"`
 	First  jfloat   `json:"first"`
 	Varies bool     `json:"varies"`
+	// Bias and MaxPre are ChannelScan.Bias and MaxPreActivation of the
+	// part; parts merge them by taking the larger MaxPre (exact: see
+	// mergePre) and the one Bias.
+	Bias   *jfloat `json:"bias,omitempty"`
+	MaxPre *jfloat `json:"max_preactivation,omitempty"`
 }
 
 // Part returns the counts the report was made from (nil for a report not
@@ -164,6 +169,7 @@ func scanPart(m *modelio.Model, accs []*layerAcc, kernels map[int]convFlags, ima
 		}
 		for _, ch := range a.channels {
 			pc := PartChannel{Fires: ch.fires, Max: jfloat(ch.max), First: jfloat(ch.first), Varies: ch.varies}
+			pc.Bias, pc.MaxPre = a.why(len(l.Channels), kernels)
 			pc.Sum.addSum(&ch.sum)
 			l.Channels = append(l.Channels, pc)
 		}
@@ -202,6 +208,14 @@ func (p *ScanPart) Report() (*ScanReport, error) {
 				cs.Flags = append(cs.Flags[:0], FlagNotFinite)
 			}
 			cs.Flags = append(cs.Flags, pl.KernelFlags[i]...)
+			if ch.Bias != nil {
+				v := float64(*ch.Bias)
+				cs.Bias = &v
+			}
+			if ch.MaxPre != nil && finite(float64(*ch.MaxPre)) {
+				v := float64(*ch.MaxPre)
+				cs.MaxPreActivation = &v
+			}
 			l.Channels = append(l.Channels, cs)
 		}
 		rep.Layers = append(rep.Layers, l)
@@ -239,7 +253,7 @@ func MergeScan(parts []*ScanPart) (*ScanPart, error) {
 			}
 			if len(dst.Channels) == 0 {
 				for _, ch := range src.Channels {
-					c := PartChannel{Fires: ch.Fires, Max: ch.Max, First: ch.First, Varies: ch.Varies}
+					c := PartChannel{Fires: ch.Fires, Max: ch.Max, First: ch.First, Varies: ch.Varies, Bias: ch.Bias, MaxPre: ch.MaxPre}
 					c.Sum.addSum(&ch.Sum)
 					dst.Channels = append(dst.Channels, c)
 				}
@@ -260,6 +274,10 @@ func MergeScan(parts []*ScanPart) (*ScanPart, error) {
 					}
 				}
 				a.Sum.addSum(&b.Sum)
+				a.MaxPre = mergePre(a.MaxPre, b.MaxPre)
+				if a.Bias == nil {
+					a.Bias = b.Bias
+				}
 				// Constant over both only if each was and they share the value
 				// (NaN never equals itself, as in the scan's own comparison).
 				a.Varies = a.Varies || b.Varies || float32(a.First) != float32(b.First)
@@ -267,4 +285,20 @@ func MergeScan(parts []*ScanPart) (*ScanPart, error) {
 		}
 	}
 	return out, nil
+}
+
+// mergePre merges two parts' MaxPre. A part reports the input's maximum of
+// a channel that never fired in it (≤ 0), its peak (> 0) when it fired after
+// an activation that passes positive values unchanged, and nothing when it
+// fired after another one. The larger of two values is the merged one (a
+// peak above 0 beats every never-fired maximum); a part without a value
+// fired where the value is unknown, so the merge has none either.
+func mergePre(a, b *jfloat) *jfloat {
+	if a == nil || b == nil {
+		return nil
+	}
+	if float64(*b) > float64(*a) {
+		return b
+	}
+	return a
 }

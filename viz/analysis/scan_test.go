@@ -434,10 +434,11 @@ func TestScanNotFinite(t *testing.T) {
 
 // ScanSession lets the runtime's workers sleep for a model light per pixel
 // and spin for a heavy one (the thresholds are this project's measurements,
-// see spinMACsPerPixel), and always captures the maps the scan reads.
+// see spinMACsPerPixel), and always captures the maps the scan reads and
+// the activations' inputs that may be captured (PreActivationCapture).
 func TestScanSessionOptions(t *testing.T) {
 	light := scanModel(t)
-	if o := ScanSession(light, nil); !o.NoSpin || !slices.Equal(o.Capture, ScanCapture(light)) {
+	if o := ScanSession(light, nil); !o.NoSpin || !slices.Equal(o.Capture, append(ScanCapture(light), PreActivationCapture(light)...)) {
 		t.Errorf("light model (%d MACs for %d×%d pixels): %+v", light.Total.MACs, light.Image.Width, light.Image.Height, o)
 	}
 	b := onnxbuild.New(13, onnxbuild.Zeros)

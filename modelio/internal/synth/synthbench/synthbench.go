@@ -194,6 +194,7 @@ func rows(demo string) []row {
 		}},
 		{"scan throughput / plain inference throughput with activations", demo, "BenchmarkScanRatio/demo", "scan/plain", 0.8, false, perImage},
 		{"scan throughput / plain inference throughput with activations", "ResNet-18 224×224", "BenchmarkScanRatio/resnet18", "scan/plain", 0.8, false, perImage},
+		{"scan with strongest patches and per-class firing / plain inference, same captures", "ResNet-18 224×224, PNG", "BenchmarkTopRatio/resnet18", "top/plain", 0.75, false, perImage},
 	}
 	// The scan at 1, 2 and all cores (BenchmarkScanCores): GOMAXPROCS, the
 	// runtime's threads and the CPU affinity limited together.
