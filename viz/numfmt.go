@@ -21,20 +21,10 @@ func formatFixed(v float64, decimals int) string {
 
 // trimExp formats v in short scientific notation: "1.2e-4", "3e+06" -> "3e6".
 func trimExp(v float64) string {
-	s := strconv.FormatFloat(v, 'e', 1, 64)
-	mant, exp, _ := strings.Cut(s, "e")
-	if strings.Contains(mant, ".") {
-		mant = strings.TrimRight(strings.TrimRight(mant, "0"), ".")
+	if v == 0 {
+		return "0e0"
 	}
-	sign := ""
-	if exp[0] == '-' {
-		sign = "-"
-	}
-	exp = strings.TrimLeft(exp[1:], "0")
-	if exp == "" {
-		exp = "0"
-	}
-	return mant + "e" + sign + exp
+	return sciLabel(v, 1)
 }
 
 // niceStep returns a step of the form {1, 2, 5}·10^k close to span/target,

@@ -90,14 +90,7 @@ func Load(path string) (image.Image, error) {
 		return nil, fmt.Errorf("prep: %w", err) // *PathError already names the file
 	}
 	defer f.Close()
-	st, err := f.Stat()
-	if err != nil {
-		return nil, fmt.Errorf("prep: %w", err)
-	}
-	if st.IsDir() {
-		return nil, &FileError{File: path, Class: ErrFormat, Detail: "is a folder"}
-	}
-	return decode(f, st.Size(), path, MaxPixels)
+	return loadOpen(f, path)
 }
 
 // LoadFS is [Load] for the file name inside fsys (an io/fs path: forward slashes, no
@@ -110,6 +103,13 @@ func LoadFS(fsys fs.FS, name string) (image.Image, error) {
 		return nil, fmt.Errorf("prep: %w", err) // *PathError already names the file
 	}
 	defer f.Close()
+	return loadOpen(f, name)
+}
+
+// loadOpen is the part of [Load] and [LoadFS] after opening: refuse folders,
+// decode through io.ReaderAt when the file offers it (an *os.File does), else
+// read it into memory within a bound.
+func loadOpen(f fs.File, name string) (image.Image, error) {
 	st, err := f.Stat()
 	if err != nil {
 		return nil, fmt.Errorf("prep: %w", err)
