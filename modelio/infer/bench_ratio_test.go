@@ -10,8 +10,6 @@ import (
 	"os"
 	"path/filepath"
 	"slices"
-	"strconv"
-	"strings"
 	"testing"
 	"time"
 
@@ -78,13 +76,13 @@ func BenchmarkCaptureRatioResNet18(b *testing.B) {
 	runAll()
 	reps := max(1, int(math.Ceil(float64(500*time.Millisecond)/float64(time.Since(t0)))))
 	var cpuPlain, cpuAll time.Duration
-	_, cpuOK := processCPU()
+	_, cpuOK := testkit.ProcessCPU()
 	timed := func(f func(), cpu *time.Duration) time.Duration {
-		c0, _ := processCPU()
+		c0, _ := testkit.ProcessCPU()
 		s := time.Now()
 		f()
 		d := time.Since(s)
-		c1, _ := processCPU()
+		c1, _ := testkit.ProcessCPU()
 		*cpu += c1 - c0
 		return d
 	}
@@ -126,27 +124,4 @@ func BenchmarkCaptureRatioResNet18(b *testing.B) {
 	}
 	b.ReportMetric(float64(len(ratios)), "pairs")
 	b.ReportMetric(tp.Seconds()*1000/float64(len(ratios)), "plain-ms/run")
-}
-
-// processCPU returns the CPU time (user + system) this process has used,
-// all threads together (ONNX Runtime's included), from /proc/self/stat
-// (proc(5): fields 14 and 15, in ticks of 1/100 s on Linux); ok is false
-// where there is no such file. Unlike the wall-clock time, it hardly grows
-// when other programs compete for the cores.
-func processCPU() (d time.Duration, ok bool) {
-	data, err := os.ReadFile("/proc/self/stat")
-	if err != nil {
-		return 0, false
-	}
-	s := string(data)
-	f := strings.Fields(s[strings.LastIndexByte(s, ')')+1:]) // the name may hold spaces
-	if len(f) < 13 {
-		return 0, false
-	}
-	ut, err1 := strconv.ParseInt(f[11], 10, 64)
-	st, err2 := strconv.ParseInt(f[12], 10, 64)
-	if err1 != nil || err2 != nil {
-		return 0, false
-	}
-	return time.Duration(ut+st) * 10 * time.Millisecond, true
 }

@@ -26,8 +26,6 @@ import (
 	"os"
 	"path/filepath"
 	"slices"
-	"strconv"
-	"strings"
 	"testing"
 	"time"
 
@@ -120,7 +118,7 @@ func benchOpen(b *testing.B, path string) (*modelio.Model, prep.Config) {
 type pairs struct {
 	bound, measured time.Duration // totals
 	ratios          []float64     // measured/bound of each pair
-	// CPU time of all pairs (processCPU); cpuOK is false when unknown.
+	// CPU time of all pairs (testkit.ProcessCPU); cpuOK is false when unknown.
 	cpuBound, cpuMeasured time.Duration
 	cpuOK                 bool
 }
@@ -155,13 +153,13 @@ func interleave(b *testing.B, bound, measured func()) pairs {
 	measured()
 	reps := max(1, int(math.Ceil(float64(benchMinPair)/float64(time.Since(t0)))))
 	var p pairs
-	_, p.cpuOK = processCPU()
+	_, p.cpuOK = testkit.ProcessCPU()
 	timed := func(f func(), cpu *time.Duration) time.Duration {
-		c0, _ := processCPU()
+		c0, _ := testkit.ProcessCPU()
 		s := time.Now()
 		f()
 		d := time.Since(s)
-		c1, _ := processCPU()
+		c1, _ := testkit.ProcessCPU()
 		*cpu += c1 - c0
 		return d
 	}
@@ -338,29 +336,6 @@ func scanRatioWith(b *testing.B, bc benchCase, format string, threads int) {
 	}{{"decode-share", stages.Decode}, {"prepare-share", stages.Prepare}, {"run-share", stages.Run}, {"summarise-share", stages.Summarise}, {"wait-share", stages.Wait}} {
 		b.ReportMetric(st.d.Seconds()/stages.Wall.Seconds(), st.unit)
 	}
-}
-
-// processCPU returns the CPU time (user + system) this process has used,
-// all threads together (ONNX Runtime's included), from /proc/self/stat
-// (proc(5): fields 14 and 15, in ticks of 1/100 s on Linux); ok is false
-// where there is no such file. Unlike the wall-clock time, it hardly grows
-// when other programs compete for the cores.
-func processCPU() (d time.Duration, ok bool) {
-	data, err := os.ReadFile("/proc/self/stat")
-	if err != nil {
-		return 0, false
-	}
-	s := string(data)
-	f := strings.Fields(s[strings.LastIndexByte(s, ')')+1:]) // the name may hold spaces
-	if len(f) < 13 {
-		return 0, false
-	}
-	ut, err1 := strconv.ParseInt(f[11], 10, 64)
-	st, err2 := strconv.ParseInt(f[12], 10, 64)
-	if err1 != nil || err2 != nil {
-		return 0, false
-	}
-	return time.Duration(ut+st) * 10 * time.Millisecond, true
 }
 
 // BenchmarkIncrementalRatio reports incremental occlusion's time over that
