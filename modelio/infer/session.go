@@ -85,6 +85,7 @@ type Session struct {
 	dims     []int64         // per-image dimensions of the image input
 	imageLen int             // values per image
 	fixed    int             // fixed batch size, 0 when symbolic
+	threads  int             // the runtime's threads inside one operator
 	batch    int             // preferred chunk size
 
 	names    []string       // what the runtime returns: model outputs, then captures
@@ -198,6 +199,7 @@ func NewSession(m *modelio.Model, opt Options) (*Session, error) {
 	if threads <= 0 {
 		threads = runtime.NumCPU()
 	}
+	s.threads = threads
 	for _, step := range []func() error{
 		func() error { return so.SetIntraOpNumThreads(threads) },
 		func() error { return so.SetInterOpNumThreads(1) },
@@ -406,6 +408,11 @@ func (s *Session) BatchSize() int {
 	}
 	return s.batch
 }
+
+// Threads is the number of threads the runtime uses inside one operator
+// (Options.Threads, or one per core): an analysis that also keeps Go
+// goroutines busy asks whether the runtime leaves it any core.
+func (s *Session) Threads() int { return s.threads }
 
 // ImageDims returns the per-image dimensions Run expects (without the
 // batch), in the model's layout, or an error saying why Run cannot feed this

@@ -70,6 +70,9 @@ type FeedOptions struct {
 	// SkipUnreadable: a file that cannot be read is listed in
 	// Batch.Skipped and left out. By default Next returns its error.
 	SkipUnreadable bool
+	// gate, when not nil, keeps the workers from decoding while the model
+	// runs (coreGate).
+	gate *coreGate
 }
 
 // Batch is a batch of prepared images.
@@ -190,15 +193,17 @@ func (f *Feed) work(jobs <-chan feedJob) {
 		case <-f.ctx.Done():
 			return
 		}
-		t0 := time.Now()
-		img, err := f.load(f.names[j.p.first+j.slot])
-		t1 := time.Now()
-		f.decode.Add(int64(t1.Sub(t0)))
-		if err == nil {
-			f.cfg.TensorFromImage(prep.Fit(img, f.cfg), j.p.b.Data[j.slot*f.size:(j.slot+1)*f.size])
-			f.prepare.Add(int64(time.Since(t1)))
-		}
-		j.p.errs[j.slot] = err
+		f.opt.gate.work(func() {
+			t0 := time.Now()
+			img, err := f.load(f.names[j.p.first+j.slot])
+			t1 := time.Now()
+			f.decode.Add(int64(t1.Sub(t0)))
+			if err == nil {
+				f.cfg.TensorFromImage(prep.Fit(img, f.cfg), j.p.b.Data[j.slot*f.size:(j.slot+1)*f.size])
+				f.prepare.Add(int64(time.Since(t1)))
+			}
+			j.p.errs[j.slot] = err
+		})
 		if j.p.left.Add(-1) == 0 {
 			close(j.p.ready)
 		}

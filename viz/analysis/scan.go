@@ -7,6 +7,7 @@ import (
 	"io"
 	"io/fs"
 	"math"
+	"runtime"
 	"slices"
 	"sync"
 	"sync/atomic"
@@ -336,7 +337,7 @@ type statJob struct {
 // the result back for the next run, adding the time it took to *busy. It
 // stops at the end of jobs, at the first error (sent on errc) or when ctx is
 // cancelled.
-func accumulate(ctx context.Context, accs []*layerAcc, parts int, jobs <-chan statJob, results chan<- *infer.Result, errc chan<- error, busy *time.Duration) {
+func accumulate(ctx context.Context, accs []*layerAcc, parts int, gate *coreGate, jobs <-chan statJob, results chan<- *infer.Result, errc chan<- error, busy *time.Duration) {
 	for {
 		var j statJob
 		var ok bool
@@ -348,12 +349,16 @@ func accumulate(ctx context.Context, accs []*layerAcc, parts int, jobs <-chan st
 		case <-ctx.Done():
 			return
 		}
-		t0 := time.Now()
-		if err := addBatch(accs, j.res.Maps, j.bi, parts); err != nil {
+		var err error
+		gate.work(func() {
+			t0 := time.Now()
+			err = addBatch(accs, j.res.Maps, j.bi, parts)
+			*busy += time.Since(t0)
+		})
+		if err != nil {
 			errc <- err
 			return
 		}
-		*busy += time.Since(t0)
 		results <- j.res // never blocks: at most two results circulate
 	}
 }
@@ -424,10 +429,19 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 	size := c.Len()
 	bs := max(1, min(s.BatchSize(), len(files)))
 	ctx2, cancel := context.WithCancel(ctx)
-	feed := NewFeed(ctx2, files, c, FeedOptions{FS: o.FS, Batch: bs, Workers: o.Workers, SkipUnreadable: o.SkipUnreadable})
+	// When the runtime's threads take every core, the model and the Go
+	// work take turns (coreGate), and one result circulates: the
+	// statistics of a batch are gathered before the next run starts.
+	var gate *coreGate
+	circulating := 2
+	if s.Threads() >= runtime.GOMAXPROCS(0) {
+		gate, circulating = &coreGate{}, 1
+	}
+	feed := NewFeed(ctx2, files, c, FeedOptions{FS: o.FS, Batch: bs, Workers: o.Workers, SkipUnreadable: o.SkipUnreadable, gate: gate})
 	results := make(chan *infer.Result, 2)
-	results <- nil // RunInto allocates the first two
-	results <- nil
+	for range circulating {
+		results <- nil // RunInto allocates them
+	}
 	jobs := make(chan statJob, 1)
 	statErr := make(chan error, 1)
 	statsDone := make(chan struct{})
@@ -443,7 +457,7 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 	go func() {
 		defer wg.Done()
 		defer close(statsDone)
-		accumulate(ctx2, accs, statParts(feed.Workers()), jobs, results, statErr, &summarise)
+		accumulate(ctx2, accs, statParts(feed.Workers()), gate, jobs, results, statErr, &summarise)
 	}()
 	// The kernel flags depend on the weights only; on large convolutions
 	// the pairwise comparison takes a while, so it runs beside the images.
@@ -491,7 +505,8 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 				return nil, ctx.Err()
 			}
 			t1 := time.Now()
-			res, err := s.RunInto(ctx, b.Data[:b.N*size], b.N, dst)
+			var res *infer.Result
+			gate.run(func() { res, err = s.RunInto(ctx, b.Data[:b.N*size], b.N, dst) })
 			st.Run += time.Since(t1)
 			if err != nil {
 				return fail(fmt.Errorf("viz: scan: %w", err))
