@@ -46,6 +46,8 @@ type Decoder struct {
 	run []int   // its IDAT chunks: offset, length, ...
 	tw  *tensorWriter
 
+	goInflate bool // inflate with compress/zlib even where C zlib is linked (tests)
+
 	decode, prepare time.Duration
 }
 

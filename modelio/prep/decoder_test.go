@@ -10,10 +10,12 @@ import (
 	"image/color"
 	"image/color/palette"
 	"image/png"
+	"maps"
 	"math"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 	"testing/fstest"
@@ -43,6 +45,9 @@ type pngSpec struct {
 	before, after       [][]byte
 	rng                 *rand.Rand
 	samples             []byte // unfiltered rows without filter bytes; nil: random
+	// stream makes the zlib stream of the filtered rows; nil: compress/zlib's
+	// default level.
+	stream func(raw []byte) []byte
 }
 
 // samplesPerPixel is the number of samples a pixel of a PNG colour type has (PNG
@@ -115,10 +120,11 @@ func (s pngSpec) build() []byte {
 		}
 		prev = cur
 	}
-	var z bytes.Buffer
-	zw := zlib.NewWriter(&z)
-	zw.Write(raw)
-	zw.Close()
+	stream := s.stream
+	if stream == nil {
+		stream = zlibLevel(zlib.DefaultCompression)
+	}
+	data := stream(raw)
 	out := []byte(pngSignature)
 	ihdr := make([]byte, 13)
 	binary.BigEndian.PutUint32(ihdr[0:], uint32(s.w))
@@ -134,7 +140,6 @@ func (s pngSpec) build() []byte {
 	if s.trns != nil {
 		out = append(out, pngChunk("tRNS", s.trns)...)
 	}
-	data := z.Bytes()
 	split := s.idatSplit
 	if split <= 0 {
 		split = len(data)
@@ -150,19 +155,68 @@ func (s pngSpec) build() []byte {
 	return append(out, pngChunk("IEND", nil)...)
 }
 
+// zlibLevel compresses with compress/zlib at a level.
+func zlibLevel(level int) func([]byte) []byte {
+	return func(raw []byte) []byte {
+		var z bytes.Buffer
+		zw, err := zlib.NewWriterLevel(&z, level)
+		if err != nil {
+			panic(err)
+		}
+		zw.Write(raw)
+		zw.Close()
+		return z.Bytes()
+	}
+}
+
+// zlibStreams are zlib streams (RFC 1950) that image/png may or may not accept,
+// each a function of the filtered rows.
+var zlibStreams = map[string]func([]byte) []byte{
+	"stored":   zlibLevel(zlib.NoCompression),
+	"huffman":  zlibLevel(zlib.HuffmanOnly),
+	"best":     zlibLevel(zlib.BestCompression),
+	"trailing": func(raw []byte) []byte { return append(zlibLevel(1)(raw), "xyz"...) },
+	"bad-adler": func(raw []byte) []byte {
+		z := zlibLevel(1)(raw)
+		z[len(z)-1] ^= 1
+		return z
+	},
+	"short": func(raw []byte) []byte { return zlibLevel(1)(raw[:len(raw)-1]) },
+	"long":  func(raw []byte) []byte { return zlibLevel(1)(append(bytes.Clone(raw), 0)) },
+	"no-adler": func(raw []byte) []byte {
+		z := zlibLevel(1)(raw)
+		return z[:len(z)-4]
+	},
+	// FDICT set (RFC 1950, 2.2) with the dictionary id 1, the Adler-32 of an
+	// empty dictionary, which compress/zlib accepts without a dictionary.
+	"fdict": func(raw []byte) []byte {
+		z := zlibLevel(1)(raw)
+		flg := byte(0x20)
+		flg += byte(31 - (0x78*256+int(flg))%31)
+		head := []byte{0x78, flg, 0, 0, 0, 1}
+		return append(head, z[2:]...)
+	},
+	"bad-header": func(raw []byte) []byte {
+		z := zlibLevel(1)(raw)
+		z[1]++
+		return z
+	},
+}
+
 // diffCase is one file for the differential tests, and whether the fast PNG
 // path must take it at the file's own size.
 type diffCase struct {
-	name string
-	data []byte
-	fast bool
+	name  string
+	data  []byte
+	fast  bool
+	maybe bool // either path may take it: only the values are checked
 }
 
 // diffPNGs are PNGs of every kind image/png reads, at odd sizes.
 func diffPNGs(t testing.TB) []diffCase {
 	rng := rand.New(rand.NewPCG(1, 2))
 	var cases []diffCase
-	add := func(name string, data []byte, fast bool) { cases = append(cases, diffCase{name, data, fast}) }
+	add := func(name string, data []byte, fast bool) { cases = append(cases, diffCase{name: name, data: data, fast: fast}) }
 	enc := func(img image.Image) []byte { return encPNG(t, img) }
 	randomize := func(pix []byte) {
 		for i := range pix {
@@ -238,6 +292,11 @@ func diffPNGs(t testing.TB) []diffCase {
 		add("rgb8-plte-split-"+tag, pngSpec{w: w, h: h, depth: 8, colour: pngRGB, rng: rng, plte: make([]byte, 12), idatSplit: 7,
 			before: [][]byte{pngChunk("aaAa", []byte("before IHDR"))},
 			after:  [][]byte{pngChunk("tEXt", []byte("k\x00v")), pngChunk("IDAT", []byte("ignored"))}}.build(), true)
+		for _, name := range slices.Sorted(maps.Keys(zlibStreams)) {
+			good := name == "stored" || name == "huffman" || name == "best"
+			data := pngSpec{w: w, h: h, depth: 8, colour: pngRGB, rng: rng, stream: zlibStreams[name], idatSplit: 1 + rng.IntN(40)}.build()
+			cases = append(cases, diffCase{name: "rgb8-zlib-" + name + "-" + tag, data: data, fast: good, maybe: !good})
+		}
 		add("rgb8-interlaced-"+tag, pngSpec{w: w, h: h, depth: 8, colour: pngRGB, rng: rng, interlace: 1}.build(), false)
 	}
 	return cases
@@ -330,19 +389,35 @@ func checkSame(t testing.TB, d *Decoder, data []byte, name string, c Config, max
 	return fast
 }
 
+// inflaters are the Decoder's two ways to inflate: the C zlib library (where
+// the build has cgo) and compress/zlib. Each Decoder of the tests is checked
+// with both.
+func inflaters() []*Decoder {
+	ds := []*Decoder{{goInflate: true}}
+	if haveCZlib {
+		ds = append(ds, &Decoder{})
+	}
+	return ds
+}
+
 func TestDecoderMatchesReference(t *testing.T) {
-	d := new(Decoder) // one for all: state carried from file to file must not leak
-	for _, tc := range diffPNGs(t) {
-		cfg, err := png.DecodeConfig(bytes.NewReader(tc.data))
-		if err != nil {
-			t.Fatalf("%s: %v", tc.name, err)
-		}
-		for i, c := range diffConfigs(cfg.Width, cfg.Height) {
-			fast := checkSame(t, d, tc.data, tc.name, c, MaxPixels)
-			if i == 0 && fast != tc.fast {
-				t.Errorf("%s at its own size: fast path %v, want %v", tc.name, fast, tc.fast)
+	cases := diffPNGs(t)
+	// One Decoder for all files: state carried from file to file must not leak.
+	for _, d := range inflaters() {
+		t.Run(fmt.Sprintf("goInflate=%v", d.goInflate), func(t *testing.T) {
+			for _, tc := range cases {
+				cfg, err := png.DecodeConfig(bytes.NewReader(tc.data))
+				if err != nil {
+					t.Fatalf("%s: %v", tc.name, err)
+				}
+				for i, c := range diffConfigs(cfg.Width, cfg.Height) {
+					fast := checkSame(t, d, tc.data, tc.name, c, MaxPixels)
+					if i == 0 && !tc.maybe && fast != tc.fast {
+						t.Errorf("%s at its own size: fast path %v, want %v", tc.name, fast, tc.fast)
+					}
+				}
 			}
-		}
+		})
 	}
 }
 
@@ -460,7 +535,6 @@ func TestDecoderErrors(t *testing.T) {
 	dir := t.TempDir()
 	c := Default()
 	c.Width, c.Height = 8, 8
-	d := new(Decoder)
 	for _, tc := range []struct {
 		name  string
 		data  []byte
@@ -480,9 +554,12 @@ func TestDecoderErrors(t *testing.T) {
 			t.Fatal(err)
 		}
 		_, wantErr := Load(p)
-		err := d.LoadInto(p, c, make([]float32, c.Len()))
-		if err == nil || wantErr == nil || err.Error() != wantErr.Error() {
-			t.Fatalf("%s: Decoder error %v, Load error %v", tc.name, err, wantErr)
+		var err error
+		for _, d := range inflaters() {
+			err = d.LoadInto(p, c, make([]float32, c.Len()))
+			if err == nil || wantErr == nil || err.Error() != wantErr.Error() {
+				t.Fatalf("%s (goInflate %v): Decoder error %v, Load error %v", tc.name, d.goInflate, err, wantErr)
+			}
 		}
 		var fe *FileError
 		if !errors.As(err, &fe) || !errors.Is(err, tc.class) || !strings.HasPrefix(err.Error(), "prep: "+p+": ") {

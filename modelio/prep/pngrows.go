@@ -225,7 +225,8 @@ func (p *pngRows) header(b []byte, c Config, maxPixels int) bool {
 	return int64(p.rowSize)*int64(p.h) <= decoderMaxRaw
 }
 
-// inflate inflates the IDAT run of data into d.raw and unfilters it, with the
+// inflate inflates the IDAT run of data into d.raw (through the C zlib library
+// where the build has cgo, else compress/zlib) and unfilters it, with the
 // checks image/png makes: enough pixel data, the zlib checksum, no data left
 // over (image/png's "too much pixel data"; it passes when the stream ends at
 // the end of one of the run's chunks), and valid filter types.
@@ -241,39 +242,20 @@ func (d *Decoder) inflate(data []byte, p *pngRows) bool {
 		}
 		stream = d.idat
 	}
-	d.br.Reset(stream)
-	if d.zr == nil {
-		zr, err := zlib.NewReader(&d.br)
-		if err != nil {
-			return false
-		}
-		d.zr = zr
-	} else if err := d.zr.(zlib.Resetter).Reset(&d.br, nil); err != nil {
-		return false
-	}
 	size := p.rowSize * p.h
-	if cap(d.raw) < size {
-		d.raw = make([]byte, size)
+	if cap(d.raw) < size+1 { // one spare byte for inflateC
+		d.raw = make([]byte, size+1)
 	}
 	raw := d.raw[:size]
-	if _, err := io.ReadFull(d.zr, raw); err != nil {
+	inflate := d.inflateGo
+	if haveCZlib && !d.goInflate {
+		inflate = inflateC
+	}
+	used, ok := inflate(stream, raw)
+	if !ok {
 		return false
 	}
-	// image/png reads once more to verify the zlib checksum, and gives up
-	// after 100 empty reads.
-	var one [1]byte
-	n, err := 0, error(nil)
-	for i := 0; n == 0 && err == nil; i++ {
-		if i == 100 {
-			return false
-		}
-		n, err = d.zr.Read(one[:])
-	}
-	if n != 0 || err != io.EOF {
-		return false
-	}
-	used, end := len(stream)-d.br.Len(), 0
-	atEnd := false
+	end, atEnd := 0, false
 	for i := 1; i < len(run); i += 2 {
 		end += run[i]
 		atEnd = atEnd || used == end
@@ -282,6 +264,38 @@ func (d *Decoder) inflate(data []byte, p *pngRows) bool {
 		return false
 	}
 	return unfilter(raw, p.rowSize, p.bpp, d.zeroRow(p.rowSize-1))
+}
+
+// inflateGo is inflateC in Go: compress/zlib, with image/png's check that the
+// stream ends, its checksum correct, right after the rows.
+func (d *Decoder) inflateGo(stream, raw []byte) (used int, ok bool) {
+	d.br.Reset(stream)
+	if d.zr == nil {
+		zr, err := zlib.NewReader(&d.br)
+		if err != nil {
+			return 0, false
+		}
+		d.zr = zr
+	} else if err := d.zr.(zlib.Resetter).Reset(&d.br, nil); err != nil {
+		return 0, false
+	}
+	if _, err := io.ReadFull(d.zr, raw); err != nil {
+		return 0, false
+	}
+	// image/png reads once more to verify the zlib checksum, and gives up
+	// after 100 empty reads.
+	var one [1]byte
+	n, err := 0, error(nil)
+	for i := 0; n == 0 && err == nil; i++ {
+		if i == 100 {
+			return 0, false
+		}
+		n, err = d.zr.Read(one[:])
+	}
+	if n != 0 || err != io.EOF {
+		return 0, false
+	}
+	return len(stream) - d.br.Len(), true
 }
 
 // zeroRow returns n zero bytes, the row above the first (PNG specification 9.2).
