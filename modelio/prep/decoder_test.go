@@ -216,7 +216,9 @@ type diffCase struct {
 func diffPNGs(t testing.TB) []diffCase {
 	rng := rand.New(rand.NewPCG(1, 2))
 	var cases []diffCase
-	add := func(name string, data []byte, fast bool) { cases = append(cases, diffCase{name: name, data: data, fast: fast}) }
+	add := func(name string, data []byte, fast bool) {
+		cases = append(cases, diffCase{name: name, data: data, fast: fast})
+	}
 	enc := func(img image.Image) []byte { return encPNG(t, img) }
 	randomize := func(pix []byte) {
 		for i := range pix {
