@@ -332,12 +332,7 @@ func unfilter(raw []byte, rowSize, bpp int, zero []byte) bool {
 				cur[i] += uint8((int(cur[i-bpp]) + int(prev[i])) / 2)
 			}
 		case 4: // Paeth: Raw(x) = Paeth(x) + PaethPredictor(Raw(x-bpp), Prior(x), Prior(x-bpp))
-			for i := range min(bpp, len(cur)) {
-				cur[i] += prev[i] // a = c = 0: the predictor is b
-			}
-			for i := bpp; i < len(cur); i++ {
-				cur[i] += paethPredictor(cur[i-bpp], prev[i], prev[i-bpp])
-			}
+			unpaeth(cur, prev, bpp)
 		default:
 			return false
 		}
@@ -346,25 +341,42 @@ func unfilter(raw []byte, rowSize, bpp int, zero []byte) bool {
 	return true
 }
 
-// paethPredictor is the PNG specification's (9.4): of a (left), b (above) and
-// c (upper left), the one nearest to a + b - c, ties in the order a, b, c.
-func paethPredictor(a, b, c uint8) uint8 {
-	p := int(a) + int(b) - int(c)
-	pa, pb, pc := abs(p-int(a)), abs(p-int(b)), abs(p-int(c))
-	switch {
-	case pa <= pb && pa <= pc:
-		return a
-	case pb <= pc:
-		return b
+// unpaeth reverses the Paeth filter of one row (PNG specification 9.4): each
+// byte gets back the one of a (left), b (above) and c (upper left) nearest to
+// p = a + b - c, ties in the order a, b, c. It walks each byte position of the
+// pixel along the row, so that a and c stay in registers, and uses
+// |p - a| = |b - c|, |p - b| = |a - c|, |p - c| = |(b - c) + (a - c)|.
+// Left of the first pixel a = c = 0.
+func unpaeth(cur, prev []byte, bpp int) {
+	prev = prev[:len(cur)]
+	for k := range min(bpp, len(cur)) {
+		a, c := 0, 0
+		for j := k; j < len(cur); j += bpp {
+			b := int(prev[j])
+			pa, pb := b-c, a-c
+			pc := abs(pa + pb)
+			pa, pb = abs(pa), abs(pb)
+			// The nearer of b and c (ties to b), then a if it is as near:
+			// the specification's order, written so that the compiler can
+			// choose without branches.
+			t, tp := b, pb
+			if pc < pb {
+				t, tp = c, pc
+			}
+			if pa <= tp {
+				t = a
+			}
+			a = (t + int(cur[j])) & 0xff
+			cur[j] = byte(a)
+			c = b
+		}
 	}
-	return c
 }
 
+// abs is |x| without a branch (x >> 63 is 0 or -1).
 func abs(x int) int {
-	if x < 0 {
-		return -x
-	}
-	return x
+	m := x >> 63
+	return (x ^ m) - m
 }
 
 // writePNG writes the window of the unfiltered rows in d.raw into dst for c:
