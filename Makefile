@@ -16,11 +16,12 @@ export LANGUAGE := en
 export CGO_ENABLED := 1
 
 # Debian packages: a C compiler and the OpenGL/X11 headers Fyne's cgo needs,
+# zlib's headers (modelio/prep inflates PNG rows through the C zlib library),
 # npm to fetch the ONNX Runtime library, and for the tests the ONNX
 # conformance data. An entry `command:package` is satisfied by the command
 # being on the PATH however it got there (Node.js from elsewhere ships its own
 # npm and conflicts with Debian's); a plain `package` must be installed.
-RUN_DEBS  := gcc:gcc libc6-dev pkg-config:pkg-config libgl1-mesa-dev xorg-dev npm:npm ca-certificates
+RUN_DEBS  := gcc:gcc libc6-dev pkg-config:pkg-config libgl1-mesa-dev xorg-dev zlib1g-dev npm:npm ca-certificates
 TEST_DEBS := $(RUN_DEBS) libonnx-testdata desktop-file-validate:desktop-file-utils xz:xz-utils
 # check-export: Debian's PyTorch and onnx for /usr/bin/python3 (about 1 GB).
 EXPORT_DEBS := python3-torch python3-onnx python3-numpy python3-pil

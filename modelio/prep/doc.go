@@ -7,7 +7,11 @@
 //	planes := prep.Planes(fit)       // [3][H][W] RGB in 0..1
 //	cfg.Tensor(planes, dst)          // channel order, value range, mean/std, layout
 //
-// [Config.Batch] does the last three for several images at once. [Guess] proposes a
+// [Config.Batch] does the last three for several images at once. A [Decoder] does
+// all four for one file after another, with the same values bit for bit, keeping
+// its buffers between files and writing common PNGs (8 bits a sample or fewer, not
+// interlaced, at the input size) straight into the tensor; folder scans use one
+// per goroutine. [Guess] proposes a
 // Config from the model's image input and its metadata, [Config.String] states the
 // settings in force in one line, and [Settings] remembers per-model choices in the
 // user's config folder.

@@ -43,15 +43,14 @@ func Fit(img image.Image, c Config) *image.NRGBA {
 	if b.Empty() {
 		panic(fmt.Sprintf("prep: Fit of an empty image (bounds %v)", b))
 	}
+	if win, ok := plainCut(b.Dx(), b.Dy(), c); ok {
+		// Nothing to resize (the filter's taps would copy each pixel): only
+		// the cut, or the whole picture.
+		return flatten(img, win.Add(b.Min), c.Background)
+	}
 	if s := CropSide(c.Resize); s > 0 || c.Resize == ResizeCrop {
 		rw, rh := scaledSize(b.Dx(), b.Dy(), c.Width, c.Height, s)
-		win := centreWindow(rw, rh, c.Width, c.Height)
-		if rw == b.Dx() && rh == b.Dy() {
-			// Nothing to resize (the filter's taps would copy each pixel):
-			// only the cut.
-			return flatten(img, win.Add(b.Min), c.Background)
-		}
-		return resizeWindow(img, b, c.Background, rw, rh, win)
+		return resizeWindow(img, b, c.Background, rw, rh, centreWindow(rw, rh, c.Width, c.Height))
 	}
 	r := b
 	if r.Dx() > c.Width && r.Dy() > bandRows {
@@ -59,11 +58,25 @@ func Fit(img image.Image, c Config) *image.NRGBA {
 		// 24-megapixel photo never exists as a whole opaque copy.
 		return imaging.Resize(narrow(img, r, c.Background, c.Width), c.Width, c.Height, resample)
 	}
-	flat := flatten(img, r, c.Background)
-	if r.Dx() == c.Width && r.Dy() == c.Height {
-		return flat
+	return imaging.Resize(flatten(img, r, c.Background), c.Width, c.Height, resample)
+}
+
+// plainCut says whether [Fit] of a w×h picture resamples nothing, and then which
+// window of it (origin (0, 0)) Fit keeps: the whole picture when it already has
+// c's size, or the centre cut of a crop whose scaled size is the picture's own.
+// Fit and [Decoder] both ask it, so the fast path of one is the other's.
+func plainCut(w, h int, c Config) (image.Rectangle, bool) {
+	if s := CropSide(c.Resize); s > 0 || c.Resize == ResizeCrop {
+		rw, rh := scaledSize(w, h, c.Width, c.Height, s)
+		if rw != w || rh != h {
+			return image.Rectangle{}, false
+		}
+		return centreWindow(rw, rh, c.Width, c.Height), true
 	}
-	return imaging.Resize(flat, c.Width, c.Height, resample)
+	if w != c.Width || h != c.Height {
+		return image.Rectangle{}, false
+	}
+	return image.Rect(0, 0, w, h), true
 }
 
 // bandRows is the height of the bands narrow works in.

@@ -119,60 +119,87 @@ func (c Config) TensorFromImage(img *image.NRGBA, dst []float32) {
 	if len(dst) != c.Len() {
 		panic(fmt.Sprintf("prep: TensorFromImage: dst has %d values, want %d×%d×%d = %d", len(dst), c.Channels, c.Height, c.Width, c.Len()))
 	}
-	hw := w * h
+	tw := newTensorWriter(c)
+	for y := range h {
+		tw.row(y, img.Pix[y*img.Stride:y*img.Stride+4*w], 4, dst)
+	}
+}
+
+// tensorWriter writes an image row by row into a tensor, as
+// [Config.TensorFromImage] does; [Decoder] keeps one per Config, so the table is
+// made once for many files. c must be valid.
+type tensorWriter struct {
+	c Config
+	// table[ch*256+v]: channel ch of a pixel whose three samples are all v
+	// (three channels only). Channel ch reads sample src[ch].
+	table  [3 * 256]float32
+	src    [3]int
+	rows   Config    // c with one row's size, for the luminance path
+	planes []float32 // one row of planes, for the luminance path
+}
+
+func newTensorWriter(c Config) *tensorWriter {
+	t := &tensorWriter{c: c}
 	if c.Channels == 1 {
 		// Tensor's arithmetic on the values Planes makes (layouts agree for one channel).
-		rows := c
-		rows.Width, rows.Height = w, 1
-		planes := make([]float32, 3*w)
-		for y := range h {
-			row := img.Pix[y*img.Stride:]
-			for x := range w {
-				planes[x] = float32(row[4*x]) / 255
-				planes[w+x] = float32(row[4*x+1]) / 255
-				planes[2*w+x] = float32(row[4*x+2]) / 255
-			}
-			rows.Tensor(planes, dst[y*w:(y+1)*w])
-		}
-		return
+		t.rows = c
+		t.rows.Width, t.rows.Height = c.Width, 1
+		t.planes = make([]float32, 3*c.Width)
+		return t
 	}
-	// table[ch*256+v]: channel ch of a pixel whose three samples are all v. Channel ch
-	// reads sample ch, or 2−ch when BGR.
 	tc := c
 	tc.Width, tc.Height, tc.Layout = 256, 1, modelio.LayoutNCHW
+	// The resize does not enter the values; "crop:S" with S below 256 would
+	// not validate at the table's width.
+	tc.Resize = ResizeStretch
 	planes := make([]float32, 3*256)
 	for v := range 256 {
 		p := float32(v) / 255
 		planes[v], planes[256+v], planes[512+v] = p, p, p
 	}
-	var table [3 * 256]float32
-	tc.Tensor(planes, table[:])
-	src := [3]int{0, 1, 2}
+	tc.Tensor(planes, t.table[:])
+	t.src = [3]int{0, 1, 2}
 	if c.BGR {
-		src = [3]int{2, 1, 0}
+		t.src = [3]int{2, 1, 0}
 	}
-	t0, t1, t2 := table[0:256], table[256:512], table[512:768]
-	s0, s1, s2 := src[0], src[1], src[2]
-	for y := range h {
-		row := img.Pix[y*img.Stride : y*img.Stride+4*w]
-		if c.Layout == modelio.LayoutNHWC {
-			out := dst[y*w*3 : (y+1)*w*3]
-			for x := range w {
-				px := row[4*x : 4*x+4 : 4*x+4]
-				out[3*x] = t0[px[s0]]
-				out[3*x+1] = t1[px[s1]]
-				out[3*x+2] = t2[px[s2]]
-			}
-			continue
-		}
-		o0 := dst[y*w : (y+1)*w]
-		o1 := dst[hw+y*w : hw+(y+1)*w]
-		o2 := dst[2*hw+y*w : 2*hw+(y+1)*w]
+	return t
+}
+
+// row writes row y of an opaque picture, given as px with step bytes a pixel (3 or
+// 4, red first, 8-bit samples; a fourth byte is ignored), into dst (len c.Len()).
+func (t *tensorWriter) row(y int, px []byte, step int, dst []float32) {
+	w := t.c.Width
+	px = px[:step*w]
+	if t.c.Channels == 1 {
+		planes := t.planes
 		for x := range w {
-			px := row[4*x : 4*x+4 : 4*x+4]
-			o0[x] = t0[px[s0]]
-			o1[x] = t1[px[s1]]
-			o2[x] = t2[px[s2]]
+			planes[x] = float32(px[step*x]) / 255
+			planes[w+x] = float32(px[step*x+1]) / 255
+			planes[2*w+x] = float32(px[step*x+2]) / 255
 		}
+		t.rows.Tensor(planes, dst[y*w:(y+1)*w])
+		return
+	}
+	t0, t1, t2 := t.table[0:256], t.table[256:512], t.table[512:768]
+	s0, s1, s2 := t.src[0], t.src[1], t.src[2]
+	if t.c.Layout == modelio.LayoutNHWC {
+		out := dst[y*w*3 : (y+1)*w*3]
+		for x := range w {
+			p := px[step*x : step*x+3 : step*x+3]
+			out[3*x] = t0[p[s0]]
+			out[3*x+1] = t1[p[s1]]
+			out[3*x+2] = t2[p[s2]]
+		}
+		return
+	}
+	hw := w * t.c.Height
+	o0 := dst[y*w : (y+1)*w]
+	o1 := dst[hw+y*w : hw+(y+1)*w]
+	o2 := dst[2*hw+y*w : 2*hw+(y+1)*w]
+	for x := range w {
+		p := px[step*x : step*x+3 : step*x+3]
+		o0[x] = t0[p[s0]]
+		o1[x] = t1[p[s1]]
+		o2[x] = t2[p[s2]]
 	}
 }

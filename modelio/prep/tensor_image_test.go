@@ -154,3 +154,21 @@ func BenchmarkTensorFromImage(b *testing.B) {
 		}
 	})
 }
+
+// TestTensorFromImageCropS: the settings "crop:S" with S below 256 (valid for a
+// small input) once made TensorFromImage panic, because its table of 256 values
+// was checked as an input 256 pixels wide.
+func TestTensorFromImageCropS(t *testing.T) {
+	c := Default()
+	c.Width, c.Height, c.Resize = 64, 64, "crop:72"
+	img := randomNRGBA(rand.New(rand.NewPCG(9, 9)), 64, 64)
+	got := make([]float32, c.Len())
+	c.TensorFromImage(img, got)
+	want := make([]float32, c.Len())
+	c.Tensor(Planes(img), want)
+	for i := range got {
+		if math.Float32bits(got[i]) != math.Float32bits(want[i]) {
+			t.Fatalf("value %d: %v, Tensor gives %v", i, got[i], want[i])
+		}
+	}
+}

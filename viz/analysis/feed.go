@@ -2,7 +2,6 @@ package analysis
 
 import (
 	"context"
-	"image"
 	"io"
 	"io/fs"
 	"runtime"
@@ -180,8 +179,11 @@ func (f *Feed) dispatch(inFlight int, jobs chan<- feedJob) {
 	}
 }
 
-// work decodes and prepares files until jobs closes or the Feed stops.
+// work decodes and prepares files until jobs closes or the Feed stops, with
+// one prep.Decoder of its own: the same values as prep.Load, prep.Fit and
+// TensorFromImage, with buffers and inflate state kept from file to file.
 func (f *Feed) work(jobs <-chan feedJob) {
+	var dec prep.Decoder
 	for {
 		var j feedJob
 		var ok bool
@@ -194,14 +196,11 @@ func (f *Feed) work(jobs <-chan feedJob) {
 			return
 		}
 		f.opt.gate.work(func() {
-			t0 := time.Now()
-			img, err := f.load(f.names[j.p.first+j.slot])
-			t1 := time.Now()
-			f.decode.Add(int64(t1.Sub(t0)))
-			if err == nil {
-				f.cfg.TensorFromImage(prep.Fit(img, f.cfg), j.p.b.Data[j.slot*f.size:(j.slot+1)*f.size])
-				f.prepare.Add(int64(time.Since(t1)))
-			}
+			d0, p0 := dec.Stages()
+			err := f.load(&dec, f.names[j.p.first+j.slot], j.p.b.Data[j.slot*f.size:(j.slot+1)*f.size])
+			d1, p1 := dec.Stages()
+			f.decode.Add(int64(d1 - d0))
+			f.prepare.Add(int64(p1 - p0))
 			j.p.errs[j.slot] = err
 		})
 		if j.p.left.Add(-1) == 0 {
@@ -210,12 +209,13 @@ func (f *Feed) work(jobs <-chan feedJob) {
 	}
 }
 
-// load decodes one file, from the FS when there is one (prep.LoadFS).
-func (f *Feed) load(name string) (image.Image, error) {
+// load decodes and prepares one file into dst, from the FS when there is one
+// (prep.LoadFS's reading).
+func (f *Feed) load(dec *prep.Decoder, name string, dst []float32) error {
 	if f.opt.FS == nil {
-		return prep.Load(name)
+		return dec.LoadInto(name, f.cfg, dst)
 	}
-	return prep.LoadFS(f.opt.FS, name)
+	return dec.LoadIntoFS(f.opt.FS, name, f.cfg, dst)
 }
 
 // Next returns the next batch in file order, io.EOF after the last, or the
@@ -287,8 +287,9 @@ func (f *Feed) Close() {
 func (f *Feed) Workers() int { return f.workers }
 
 // Stages returns the time spent so far decoding (reading and decompressing
-// files) and preparing (fitting to the input size and converting to
-// values), each summed over the workers.
+// files; for PNG files at the input size also unfiltering their rows) and
+// preparing (compositing, fitting to the input size and converting to
+// values), each summed over the workers (prep.Decoder.Stages).
 func (f *Feed) Stages() (decode, prepare time.Duration) {
 	return time.Duration(f.decode.Load()), time.Duration(f.prepare.Load())
 }
