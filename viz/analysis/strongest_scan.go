@@ -228,13 +228,18 @@ func (xt *scanExtras) batch(n int, files []string) batchInfo {
 // input's maximum travel in the scan part: see why.)
 func (xt *scanExtras) finish(a *layerAcc, ch int, cs *ChannelScan, inH, inW int) {
 	if a.k > 0 {
-		for _, e := range a.tops[ch].sorted() {
+		top := a.tops[ch].sorted()
+		if len(top) > 0 {
+			cs.Top = make([]Patch, 0, len(top))
+		}
+		for _, e := range top {
 			y, x := e.pos/a.mapW, e.pos%a.mapW
 			r := PatchBox(a.layer, inH, inW, a.mapH, a.mapW, y, x)
 			cs.Top = append(cs.Top, Patch{File: e.file, Value: float64(e.value), Y: y, X: x, Box: [4]int{r.Min.X, r.Min.Y, r.Max.X, r.Max.Y}})
 		}
 	}
 	if a.classes > 0 {
+		cs.PerClass = make([]ClassRate, 0, len(xt.classes))
 		for k, name := range xt.classes {
 			r := ClassRate{Class: name, Images: xt.images[k]}
 			if r.Images > 0 {
