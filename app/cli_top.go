@@ -18,8 +18,11 @@ var topCommand = &command{
 channel of the layer, the k probe images on which it reached its highest value,
 where in its map (y, x), and the input region that position sees (its receptive
 field, in pixels of the model's input after resizing, clipped to the image).
-Equal values are ordered by file name. The layer is one of the ReLU-like
-activations the scan covers (node or output name).
+Equal values are ordered by file name. The layer is any layer of the model
+(node or output name, as fovea layers lists them) whose output has channels:
+a ReLU-like activation, which every scan covers and which also gets the bias
+and largest input of a dead channel, or another (a pooling, a Conv, a
+Sigmoid...), scanned as well; there a channel "fires" where a value is above 0.
 
 With --out the patches are drawn as a PNG, one row per channel: each enlarged
 with its value and a thumbnail of the whole picture with the region framed.
@@ -56,10 +59,15 @@ description of what a channel means.`,
 					want = append(want, n)
 				}
 			}
-			if _, err := core.ScanLayer(&analysis.ScanReport{Layers: scanLayerNames(j)}, *layer); err != nil {
-				return j.fail(err) // before the pass over the probes
-			}
 			opt := analysis.ScanOptions{TopK: *k, SkipUnreadable: *skip}
+			if _, err := core.ScanLayer(&analysis.ScanReport{Layers: scanLayerNames(j)}, *layer); err != nil {
+				// Not one of the activations every scan covers: scanned
+				// too when the model has it (before the pass over the probes).
+				if _, err := analysis.LayerOutputs(j.ws.Model, []string{*layer}); err != nil {
+					return j.fail(core.NoLayer(j.ws.Model, *layer))
+				}
+				opt.Layers = []string{*layer}
+			}
 			var files []string
 			var err error
 			if *probe != "" {

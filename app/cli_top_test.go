@@ -174,9 +174,42 @@ func TestCLITop(t *testing.T) {
 		t.Error("the unhealthy checkpoint shows no dead channel on these probes: the check above could not fail")
 	}
 
-	// Bad input: a layer the scan does not cover, a channel out of range.
-	if _, errs, code := runCLI(t, "top", "--model", d.model, "--probe", dir, "--layer", "/pool1/MaxPool"); code != exitUsage || !strings.Contains(errs, "/relu1/Relu") {
-		t.Errorf("a pooling layer: exit %d, %s", code, errs)
+	// Layers besides the activations the scan always covers: a pooling and
+	// a Conv output, against the same per-image references.
+	for _, other := range []string{"/pool2/MaxPool", "/conv2/Conv"} {
+		t.Run(other, func(t *testing.T) {
+			var doc topDocTest
+			decodeJSON(t, mustRun(t, "top", "--model", d.model, "--probe", dir, "--layer", other, "--channels", "1,4", "--k", "3", "--json"), &doc)
+			if doc.Layer != other || len(doc.Channels) != 2 {
+				t.Fatalf("layer %q, %d channels", doc.Layer, len(doc.Channels))
+			}
+			maxima := map[int][]one{}
+			for _, f := range files {
+				var m mapsDoc
+				decodeJSON(t, mustRun(t, "maps", "--model", d.model, "--image", f, "--layer", other, "--out", filepath.Join(t.TempDir(), "m.png"), "--json"), &m)
+				for _, ch := range []int{1, 4} {
+					maxima[ch] = append(maxima[ch], one{f, m.Channels[ch].Max, m.Channels[ch].ActiveFraction > 0})
+				}
+			}
+			for i, ch := range []int{1, 4} {
+				want := maxima[ch]
+				slices.SortFunc(want, func(a, b one) int { return cmp.Or(cmp.Compare(b.max, a.max), strings.Compare(a.file, b.file)) })
+				got := doc.Channels[i]
+				if got.Index != ch || len(got.Images) != 3 {
+					t.Fatalf("channel %d: index %d, %d images", ch, got.Index, len(got.Images))
+				}
+				for r, img := range got.Images {
+					if img.File != want[r].file || !near(img.Value, want[r].max) {
+						t.Errorf("channel %d #%d: %s %g, want %s %g", ch, r+1, img.File, img.Value, want[r].file, want[r].max)
+					}
+				}
+			}
+		})
+	}
+
+	// Bad input: a layer the model does not have, a channel out of range.
+	if _, errs, code := runCLI(t, "top", "--model", d.model, "--probe", dir, "--layer", "/no/such/layer"); code != exitUsage || !strings.Contains(errs, `"/no/such/layer"`) {
+		t.Errorf("a layer the model lacks: exit %d, %s", code, errs)
 	}
 	if _, errs, code := runCLI(t, "top", "--model", d.model, "--probe", dir, "--layer", layer, "--channels", "99"); code == exitOK || !strings.Contains(errs, "99") {
 		t.Errorf("channel 99: exit %d, %s", code, errs)

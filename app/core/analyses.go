@@ -230,9 +230,26 @@ func (w *Workspace) Scan(ctx context.Context, files []string, o analysis.ScanOpt
 	if err != nil {
 		return nil, err
 	}
-	if len(w.Model.ReluLayers()) == 0 {
+	if len(w.Model.ReluLayers()) == 0 && len(o.Layers) == 0 {
 		// A property of the model the user chose, not a failure while running.
 		return nil, inputf(w.Model.Name, "no ReLU-like activation layer to scan (a scan counts how often the channels after Relu, Clip, LeakyRelu and the like fire)")
+	}
+	if len(o.Layers) > 0 {
+		// Layers besides the activations: a session of their own that
+		// also captures them (the kept scan session does not).
+		extra, err := analysis.LayerOutputs(w.Model, o.Layers)
+		if err != nil {
+			return nil, inputErr(w.Model.Name, err)
+		}
+		opt := analysis.ScanSession(w.Model, dims(w.Model, c))
+		opt.Capture = append(opt.Capture, extra...)
+		opt.Output = w.output
+		one, err := infer.NewSession(w.Model, opt)
+		if err != nil {
+			return nil, inputErr(w.Model.Name, err)
+		}
+		defer one.Close()
+		s = one
 	}
 	r, err := analysis.Scan(ctx, s, w.Model, c, files, o, progress)
 	if err != nil {

@@ -7,6 +7,7 @@ import (
 	"path/filepath"
 	"strings"
 
+	"fovea/modelio"
 	"fovea/modelio/prep"
 	"fovea/viz"
 	"fovea/viz/analysis"
@@ -24,6 +25,11 @@ func ScanLayer(r *analysis.ScanReport, name string) (*analysis.ScanLayer, error)
 		names = append(names, l.Name)
 	}
 	return nil, inputf("", "layer %q is not one the scan covers (the ReLU-like activations): choose one of %s", name, strings.Join(names, ", "))
+}
+
+// NoLayer is the error for a layer name the model does not have.
+func NoLayer(m *modelio.Model, name string) error {
+	return inputf(m.Name, "no layer %q: give a node or output name that fovea layers lists", name)
 }
 
 // PatchCells loads the pictures of a channel's strongest patches as the

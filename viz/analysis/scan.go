@@ -48,6 +48,14 @@ type ScanOptions struct {
 	// TopK is the number of strongest probe images kept per channel
 	// (ChannelScan.Top); 0 means DefaultTopK, below 0 none.
 	TopK int
+	// Layers names further layers to scan besides the ReLU-like
+	// activations (node or output tensor names): any layer whose output
+	// carries channels on axis 1, e.g. a pooling, a Conv or a Sigmoid, for
+	// the strongest patches of a layer the default scan does not cover. Their
+	// firing counts values above 0 as for the activations, and they get no
+	// kernel flags, bias or pre-activation. The session must capture their
+	// outputs too.
+	Layers []string
 	// Labels, when not nil, gives the class of each probe file (by the
 	// name in the file list); the report then has each channel's firing
 	// per class (ChannelScan.PerClass). Files without an entry count in
@@ -136,6 +144,21 @@ func ScanCapture(m *modelio.Model) []string {
 	return modelio.OutputsOf(m.ReluLayers())
 }
 
+// LayerOutputs returns the output tensors of the named layers (node or
+// output names, as ScanOptions.Layers), or an error naming the first that
+// the model does not have.
+func LayerOutputs(m *modelio.Model, names []string) ([]string, error) {
+	var outs []string
+	for _, name := range names {
+		i := slices.IndexFunc(m.Layers, func(l modelio.Layer) bool { return l.Name == name || l.Output == name })
+		if i < 0 {
+			return nil, fmt.Errorf("viz: scan: %s has no layer %q", m.Name, name)
+		}
+		outs = append(outs, m.Layers[i].Output)
+	}
+	return outs, nil
+}
+
 // channelAcc accumulates one channel's statistics over images.
 type channelAcc struct {
 	fires  int      // images on which some value was > 0
@@ -149,7 +172,8 @@ type channelAcc struct {
 // convention for every op after a Conv), the rest after it are positions.
 type layerAcc struct {
 	layer    modelio.Layer
-	conv     int // index into m.Layers, -1 when none
+	conv     int  // index into m.Layers, -1 when none
+	relu     bool // a ReLU-like activation (not one of ScanOptions.Layers only)
 	channels []channelAcc
 	spatial  int // positions per channel map, fixed by the first batch
 	values   int // values seen per channel
@@ -406,9 +430,16 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 	}
 	var accs []*layerAcc
 	scanned := ScanCapture(m)
+	extra, err := LayerOutputs(m, o.Layers)
+	if err != nil {
+		return nil, err
+	}
 	for i, l := range m.Layers {
-		if slices.Contains(scanned, l.Output) {
-			accs = append(accs, &layerAcc{layer: l, conv: m.FeedingConv(i)})
+		switch {
+		case slices.Contains(scanned, l.Output):
+			accs = append(accs, &layerAcc{layer: l, conv: m.FeedingConv(i), relu: true})
+		case slices.Contains(extra, l.Output):
+			accs = append(accs, &layerAcc{layer: l, conv: -1})
 		}
 	}
 	if len(accs) == 0 {

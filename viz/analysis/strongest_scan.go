@@ -196,7 +196,7 @@ func setupExtras(m *modelio.Model, accs []*layerAcc, o ScanOptions) (*scanExtras
 		if len(a.layer.Inputs) > 0 && a.conv >= 0 {
 			a.direct = a.layer.Inputs[0] == m.Layers[a.conv].Output
 		}
-		if in, ok := preActivation(m, a.layer); ok {
+		if in, ok := preActivation(m, a.layer); ok && a.relu {
 			a.pre = in
 			a.identity = identityAbove0[a.layer.Op]
 		}
