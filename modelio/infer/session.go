@@ -106,6 +106,9 @@ type Session struct {
 	work     int64     // estimated working bytes per image inside the runtime
 	pad      []float32 // zero-padded input chunk for a batch fixed above 1
 
+	keptMu sync.Mutex
+	kept   map[string]any // Keep's values, closed with the session
+
 	// execHook, when set (by tests only), is called with the run's context
 	// just before each runtime run, after the terminate flag is armed: a
 	// test can cancel there and know the run is in flight.
@@ -432,8 +435,46 @@ func (s *Session) Model() *modelio.Model { return s.model }
 // float32), with their type.
 func (s *Session) Dropped() []string { return slices.Clone(s.dropped) }
 
-// Close releases the runtime's session. Runs after Close return ErrClosed.
+// Keep returns the value kept under key, made by make on the first call
+// (a failed make is not kept, and the next call tries again). Analyses keep
+// there what belongs to this session and would cost much to make again on
+// every call, such as the sessions of sub-models cut from its model. Values
+// that have a Close method are closed when s is closed; until then they stay,
+// memory included. After Close, Keep returns ErrClosed.
+func (s *Session) Keep(key string, make func() (any, error)) (any, error) {
+	s.keptMu.Lock()
+	defer s.keptMu.Unlock()
+	if s.kept == nil {
+		s.mu.Lock()
+		closed := s.ort == nil
+		s.mu.Unlock()
+		if closed {
+			return nil, ErrClosed
+		}
+		s.kept = map[string]any{}
+	}
+	if v, ok := s.kept[key]; ok {
+		return v, nil
+	}
+	v, err := make()
+	if err != nil {
+		return nil, err
+	}
+	s.kept[key] = v
+	return v, nil
+}
+
+// Close releases the runtime's session and closes what Keep holds. Runs
+// after Close return ErrClosed.
 func (s *Session) Close() error {
+	s.keptMu.Lock()
+	defer s.keptMu.Unlock()
+	for _, v := range s.kept {
+		if c, ok := v.(interface{ Close() error }); ok {
+			c.Close()
+		}
+	}
+	s.kept = nil
 	s.mu.Lock()
 	defer s.mu.Unlock()
 	if s.ort == nil {
