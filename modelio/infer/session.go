@@ -51,6 +51,14 @@ type Options struct {
 	// by shape, by which output is computed from which, by name). A name
 	// that is not a float32 output of the model is an error of NewSession.
 	Output string
+	// Release makes the session let go of the model once it is open:
+	// Model returns nil, and the model's bytes and parsed graph can be
+	// collected. For sessions kept for a long time on a model made for
+	// them (a sub-model cut by modelio.Model.SubModel): the runtime holds
+	// its own copy of the weights, and the model would hold two more (its
+	// bytes and its parsed graph), 1 GB for the fully connected part of a
+	// VGG-16.
+	Release bool
 }
 
 // Limits that keep a run away from sizes that only a broken or hostile
@@ -255,6 +263,9 @@ func NewSession(m *modelio.Model, opt Options) (*Session, error) {
 	s.imgShape = make([][]int64, len(s.names))
 	s.estimate()
 	s.batch = s.chooseBatch(opt.Batch)
+	if opt.Release {
+		s.model = nil
+	}
 	return s, nil
 }
 
@@ -429,6 +440,7 @@ func (s *Session) ImageDims() ([]int64, error) {
 
 // Model returns the model the session runs (read-only: a session's
 // analyses look up the graph, e.g. Model.ClassSoftmax).
+// It is nil for a session opened with Options.Release.
 func (s *Session) Model() *modelio.Model { return s.model }
 
 // Dropped lists the model outputs the session does not return (not

@@ -784,3 +784,35 @@ func TestKeep(t *testing.T) {
 		t.Errorf("Keep after Close: %v, want ErrClosed", err)
 	}
 }
+
+// TestRelease: a session opened with Release no longer holds its model and
+// still runs, giving the same outputs bit for bit as one that holds it
+// (the same model in the same runtime: common practice).
+func TestRelease(t *testing.T) {
+	m := openTiny(t, 0, false)
+	held := newSession(t, m, Options{})
+	rel := newSession(t, m, Options{Release: true})
+	if rel.Model() != nil {
+		t.Errorf("Model() = %v after Release, want nil", rel.Model())
+	}
+	in := images(3)
+	want, err := held.Run(context.Background(), in, 3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	got, err := rel.Run(context.Background(), in, 3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i := range 3 {
+		w, g := want.Scores(i), got.Scores(i)
+		if len(w) == 0 || len(w) != len(g) {
+			t.Fatalf("image %d: %d scores, want %d", i, len(g), len(w))
+		}
+		for j := range w {
+			if math.Float32bits(w[j]) != math.Float32bits(g[j]) {
+				t.Errorf("image %d score %d: %v, want %v", i, j, g[j], w[j])
+			}
+		}
+	}
+}

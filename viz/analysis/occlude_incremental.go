@@ -160,7 +160,7 @@ func newIncremental(ctx context.Context, s *infer.Session, set viz.OcclusionSett
 		var err error
 		if is.sess, err = keptSession(s, "occlusion stage "+in.Name+" -> "+out.Name, func() (*modelio.Model, infer.Options, error) {
 			sub, err := m.SubModel([]modelio.SubInput{{Name: in.Name, Symbolic: []int{in.HAxis, in.WAxis}}}, []string{out.Name})
-			return sub, infer.Options{NoSpin: true}, err
+			return sub, infer.Options{NoSpin: true, Release: true}, err
 		}); err != nil {
 			return fail(err)
 		}
@@ -177,7 +177,7 @@ func newIncremental(ctx context.Context, s *infer.Session, set viz.OcclusionSett
 		sub, err := m.SubModel([]modelio.SubInput{{Name: inc.restIn}}, outs)
 		// The rest returns what the model's own session returns: its
 		// outputs and the logits behind a final softmax (OcclusionCapture).
-		return sub, infer.Options{NoSpin: true, Capture: OcclusionCapture(m)}, err
+		return sub, infer.Options{NoSpin: true, Release: true, Capture: OcclusionCapture(m)}, err
 	}); err != nil {
 		return fail(err)
 	}
