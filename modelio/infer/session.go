@@ -51,6 +51,14 @@ type Options struct {
 	// by shape, by which output is computed from which, by name). A name
 	// that is not a float32 output of the model is an error of NewSession.
 	Output string
+	// Release makes the session let go of the model once it is open:
+	// Model returns nil, and the model's bytes and parsed graph can be
+	// collected. For sessions kept for a long time on a model made for
+	// them (a sub-model cut by modelio.Model.SubModel): the runtime holds
+	// its own copy of the weights, and the model would hold two more (its
+	// bytes and its parsed graph), 1 GB for the fully connected part of a
+	// VGG-16.
+	Release bool
 }
 
 // Limits that keep a run away from sizes that only a broken or hostile
@@ -105,6 +113,9 @@ type Session struct {
 	estBytes int64     // estimated result bytes per image before the first run
 	work     int64     // estimated working bytes per image inside the runtime
 	pad      []float32 // zero-padded input chunk for a batch fixed above 1
+
+	keptMu sync.Mutex
+	kept   map[string]any // Keep's values, closed with the session
 
 	// execHook, when set (by tests only), is called with the run's context
 	// just before each runtime run, after the terminate flag is armed: a
@@ -252,6 +263,9 @@ func NewSession(m *modelio.Model, opt Options) (*Session, error) {
 	s.imgShape = make([][]int64, len(s.names))
 	s.estimate()
 	s.batch = s.chooseBatch(opt.Batch)
+	if opt.Release {
+		s.model = nil
+	}
 	return s, nil
 }
 
@@ -426,14 +440,53 @@ func (s *Session) ImageDims() ([]int64, error) {
 
 // Model returns the model the session runs (read-only: a session's
 // analyses look up the graph, e.g. Model.ClassSoftmax).
+// It is nil for a session opened with Options.Release.
 func (s *Session) Model() *modelio.Model { return s.model }
 
 // Dropped lists the model outputs the session does not return (not
 // float32), with their type.
 func (s *Session) Dropped() []string { return slices.Clone(s.dropped) }
 
-// Close releases the runtime's session. Runs after Close return ErrClosed.
+// Keep returns the value kept under key, made by make on the first call
+// (a failed make is not kept, and the next call tries again). Analyses keep
+// there what belongs to this session and would cost much to make again on
+// every call, such as the sessions of sub-models cut from its model. Values
+// that have a Close method are closed when s is closed; until then they stay,
+// memory included. After Close, Keep returns ErrClosed.
+func (s *Session) Keep(key string, make func() (any, error)) (any, error) {
+	s.keptMu.Lock()
+	defer s.keptMu.Unlock()
+	if s.kept == nil {
+		s.mu.Lock()
+		closed := s.ort == nil
+		s.mu.Unlock()
+		if closed {
+			return nil, ErrClosed
+		}
+		s.kept = map[string]any{}
+	}
+	if v, ok := s.kept[key]; ok {
+		return v, nil
+	}
+	v, err := make()
+	if err != nil {
+		return nil, err
+	}
+	s.kept[key] = v
+	return v, nil
+}
+
+// Close releases the runtime's session and closes what Keep holds. Runs
+// after Close return ErrClosed.
 func (s *Session) Close() error {
+	s.keptMu.Lock()
+	defer s.keptMu.Unlock()
+	for _, v := range s.kept {
+		if c, ok := v.(interface{ Close() error }); ok {
+			c.Close()
+		}
+	}
+	s.kept = nil
 	s.mu.Lock()
 	defer s.mu.Unlock()
 	if s.ort == nil {

@@ -740,3 +740,79 @@ func TestMemoryCheckAfterFirstChunk(t *testing.T) {
 		t.Errorf("two images: %v", err)
 	}
 }
+
+// TestKeep: Keep makes a value once per key, does not keep a failed one,
+// closes what it holds when the session closes, and refuses after Close
+// (common practice for a cache owned by a resource).
+func TestKeep(t *testing.T) {
+	needORT(t)
+	s, err := NewSession(openTiny(t, 0, false), Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	sub, err := NewSession(openTiny(t, 0, false), Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	made := 0
+	for range 2 {
+		v, err := s.Keep("sub", func() (any, error) { made++; return sub, nil })
+		if err != nil || v != any(sub) {
+			t.Fatalf("Keep: %v, %v", v, err)
+		}
+	}
+	if made != 1 {
+		t.Errorf("made %d times, want once", made)
+	}
+	boom := errors.New("boom")
+	if _, err := s.Keep("bad", func() (any, error) { return nil, boom }); !errors.Is(err, boom) {
+		t.Errorf("failed make: %v", err)
+	}
+	if v, err := s.Keep("bad", func() (any, error) { return 7, nil }); err != nil || v != any(7) {
+		t.Errorf("after a failed make: %v, %v (want the second make's 7)", v, err)
+	}
+	if _, err := sub.Run(context.Background(), images(1), 1); err != nil {
+		t.Fatalf("the kept session before its owner's Close: %v", err)
+	}
+	if err := s.Close(); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := sub.Run(context.Background(), images(1), 1); !errors.Is(err, ErrClosed) {
+		t.Errorf("the kept session after its owner's Close: %v, want ErrClosed", err)
+	}
+	if _, err := s.Keep("sub", func() (any, error) { return sub, nil }); !errors.Is(err, ErrClosed) {
+		t.Errorf("Keep after Close: %v, want ErrClosed", err)
+	}
+}
+
+// TestRelease: a session opened with Release no longer holds its model and
+// still runs, giving the same outputs bit for bit as one that holds it
+// (the same model in the same runtime: common practice).
+func TestRelease(t *testing.T) {
+	m := openTiny(t, 0, false)
+	held := newSession(t, m, Options{})
+	rel := newSession(t, m, Options{Release: true})
+	if rel.Model() != nil {
+		t.Errorf("Model() = %v after Release, want nil", rel.Model())
+	}
+	in := images(3)
+	want, err := held.Run(context.Background(), in, 3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	got, err := rel.Run(context.Background(), in, 3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i := range 3 {
+		w, g := want.Scores(i), got.Scores(i)
+		if len(w) == 0 || len(w) != len(g) {
+			t.Fatalf("image %d: %d scores, want %d", i, len(g), len(w))
+		}
+		for j := range w {
+			if math.Float32bits(w[j]) != math.Float32bits(g[j]) {
+				t.Errorf("image %d score %d: %v, want %v", i, j, g[j], w[j])
+			}
+		}
+	}
+}

@@ -4,7 +4,9 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"runtime"
 	"slices"
+	"sync"
 	"time"
 
 	"fovea/modelio"
@@ -39,21 +41,26 @@ type incStage struct {
 	sess  *infer.Session
 	clean []float32
 	ax    [2]axisPlan
+	buf   []float32 // the crops of a chunk, reused from chunk to chunk
 }
 
 // incremental runs the occluded images of one Occlude call.
 type incremental struct {
-	main   *infer.Session
-	stages []*incStage // the stages that can run on crops
-	rest   *infer.Session
-	restIn string
-	ys, xs []int
-	patch  int
-	in     modelio.StageTensor // the image input
-	base   []float32
-	fill   []float32
-	batch  int // full tensors per call
-	chunk  int // positions per chunk
+	main    *infer.Session
+	stages  []*incStage // the stages that can run on crops
+	rest    *infer.Session
+	restIn  string
+	ys, xs  []int
+	patch   int
+	in      modelio.StageTensor // the image input
+	base    []float32
+	fill    []float32
+	batch   int       // full tensors per call
+	fullBuf []float32 // the full tensors of a batch, reused
+	// fixedBatch is true when the model's input has a fixed batch size,
+	// which its graph may rely on (a reshape to [1, -1]).
+	fixedBatch bool
+	chunk      int // positions per chunk
 
 	k    int    // stages run on crops, once chosen (-1 before)
 	why  string // why that k
@@ -145,30 +152,33 @@ func newIncremental(ctx context.Context, s *infer.Session, set viz.OcclusionSett
 		}
 		return nil, "the graph could not be cut: " + err.Error(), nil
 	}
+	// The sub-models' sessions are kept with s (infer.Session.Keep): cutting
+	// them and opening them costs seconds on a large network, and the next
+	// heatmap on the same session needs the same ones.
 	for _, is := range inc.stages {
-		in := is.st.In()
-		sub, err := m.SubModel([]modelio.SubInput{{Name: in.Name, Symbolic: []int{in.HAxis, in.WAxis}}}, []string{is.st.Out().Name})
-		if err != nil {
+		in, out := is.st.In(), is.st.Out()
+		var err error
+		if is.sess, err = keptSession(s, "occlusion stage "+in.Name+" -> "+out.Name, func() (*modelio.Model, infer.Options, error) {
+			sub, err := m.SubModel([]modelio.SubInput{{Name: in.Name, Symbolic: []int{in.HAxis, in.WAxis}}}, []string{out.Name})
+			return sub, infer.Options{NoSpin: true, Release: true}, err
+		}); err != nil {
 			return fail(err)
-		}
-		if is.sess, err = infer.NewSession(sub, infer.Options{NoSpin: true}); err != nil {
-			return fail(err)
-		}
-	}
-	var outs []string
-	for _, v := range m.Outputs {
-		if v.ElemType == "" || v.ElemType == "float32" {
-			outs = append(outs, v.Name)
 		}
 	}
 	inc.restIn = inc.stages[len(inc.stages)-1].st.Out().Name
-	sub, err := m.SubModel([]modelio.SubInput{{Name: inc.restIn}}, outs)
-	if err != nil {
-		return fail(err)
-	}
-	// The rest returns what the model's own session returns: its outputs
-	// and the logits behind a final softmax (OcclusionCapture).
-	if inc.rest, err = infer.NewSession(sub, infer.Options{NoSpin: true, Capture: OcclusionCapture(m)}); err != nil {
+	var err error
+	if inc.rest, err = keptSession(s, "occlusion rest "+inc.restIn, func() (*modelio.Model, infer.Options, error) {
+		var outs []string
+		for _, v := range m.Outputs {
+			if v.ElemType == "" || v.ElemType == "float32" {
+				outs = append(outs, v.Name)
+			}
+		}
+		sub, err := m.SubModel([]modelio.SubInput{{Name: inc.restIn}}, outs)
+		// The rest returns what the model's own session returns: its
+		// outputs and the logits behind a final softmax (OcclusionCapture).
+		return sub, infer.Options{NoSpin: true, Release: true, Capture: OcclusionCapture(m)}, err
+	}); err != nil {
 		return fail(err)
 	}
 	// The clean pass.
@@ -182,6 +192,7 @@ func newIncremental(ctx context.Context, s *infer.Session, set viz.OcclusionSett
 		prev = res
 	}
 	inc.batch = max(1, s.BatchSize())
+	inc.fixedBatch = m.Image.BatchFixed > 0
 	// A chunk of positions: enough crops per call to hide the runtime's
 	// per-call overhead, few enough that their crops stay small.
 	var perPos int
@@ -195,6 +206,33 @@ func newIncremental(ctx context.Context, s *infer.Session, set viz.OcclusionSett
 	return inc, "", nil
 }
 
+// fullBatch is how many positions run through the full maps from stage k
+// on (and the rest of the network) in one call. More than the model's own
+// batch when memory allows: a VGG-16-sized network opens with a batch of
+// 1 (its first maps are large), but from its last cropped stage on the maps
+// are small, and its fully connected layers, 0.5 GB of weights, cost
+// mostly reading those weights, once per call whatever the batch: 21 ms
+// per position in calls of 1 position. A model whose batch is fixed keeps
+// it.
+func (inc *incremental) fullBatch(k int) int {
+	if inc.fixedBatch {
+		return inc.batch
+	}
+	K := len(inc.stages)
+	t := inc.stages[K-1].st.Out()
+	if k < K {
+		t = inc.stages[k].st.In()
+	}
+	vol := volume(t, t.Height(), t.Width())
+	for i := k; i < K; i++ {
+		o := inc.stages[i].st.Out()
+		vol = max(vol, volume(o, o.Height(), o.Width()))
+	}
+	// The input, the largest map and one more, in float32, within the
+	// memory one chunk of a session may use (infer's chunk budget).
+	return max(inc.batch, min(inc.chunk, (64<<20)/max(1, 12*vol)))
+}
+
 func layoutOK(t modelio.StageTensor) bool {
 	return (t.HAxis == 1 && t.WAxis == 2) || (t.HAxis == 0 && t.WAxis == 1)
 }
@@ -206,15 +244,24 @@ func volume(t modelio.StageTensor, h, w int) int {
 	return int(s[0] * s[1] * s[2])
 }
 
-func (inc *incremental) close() {
-	for _, is := range inc.stages {
-		if is.sess != nil {
-			is.sess.Close()
+// close releases what one Occlude call holds; the sessions stay with the
+// model's session (keptSession).
+func (inc *incremental) close() {}
+
+// keptSession returns the session kept with s under key, opening it (the
+// model and options from open) on first use.
+func keptSession(s *infer.Session, key string, open func() (*modelio.Model, infer.Options, error)) (*infer.Session, error) {
+	v, err := s.Keep(key, func() (any, error) {
+		m, opt, err := open()
+		if err != nil {
+			return nil, err
 		}
+		return infer.NewSession(m, opt)
+	})
+	if err != nil {
+		return nil, err
 	}
-	if inc.rest != nil {
-		inc.rest.Close()
-	}
+	return v.(*infer.Session), nil
 }
 
 // runOne runs sess on n tensors shaped like t (its image axes as data's
@@ -441,15 +488,16 @@ func (inc *incremental) chunkRun(ctx context.Context, pos []int, k int, measure 
 		in, out := is.st.In(), is.st.Out()
 		ch, cw := is.ax[0].n, is.ax[1].n
 		per := volume(in, ch, cw)
-		buf := make([]float32, n*per)
+		buf := grow(&is.buf, n*per)
 		full := newView(cleanT, clean, cleanT.Height(), cleanT.Width(), 0, 0)
-		for j, p := range pos {
+		parallel(n, per, func(j int) {
+			p := pos[j]
 			yi, xi := p/nx, p%nx
 			crop := newView(in, buf[j*per:(j+1)*per], ch, cw, is.ax[0].start[yi], is.ax[1].start[xi])
 			ry, rx := span{crop.oy, crop.oy + ch - 1}, span{crop.ox, crop.ox + cw - 1}
 			copyRect(crop, full, ry, rx)
 			copyRect(crop, prev[j], pwin[j][0].meet(ry), pwin[j][1].meet(rx))
-		}
+		})
 		res, err := runShaped(ctx, is.sess, in, n, ch, cw, buf)
 		if err != nil {
 			return err
@@ -469,21 +517,22 @@ func (inc *incremental) chunkRun(ctx context.Context, pos []int, k int, measure 
 			inc.cost.crop[i] = time.Since(t0) / time.Duration(n)
 		}
 	}
-	// Full tensors, in batches of the model's own size.
+	// Full tensors, in batches as large as memory allows (fullBatch).
 	var durs []time.Duration
 	if measure && k == 0 {
 		durs = make([]time.Duration, len(inc.stages))
 	}
 	fh, fw := cleanT.Height(), cleanT.Width()
 	per := len(clean)
-	for b := 0; b < n; b += inc.batch {
-		m := min(inc.batch, n-b)
-		buf := make([]float32, m*per)
-		for j := range m {
+	fb := inc.fullBatch(k)
+	for b := 0; b < n; b += fb {
+		m := min(fb, n-b)
+		buf := grow(&inc.fullBuf, m*per)
+		parallel(m, per, func(j int) {
 			dst := newView(cleanT, buf[j*per:(j+1)*per], fh, fw, 0, 0)
 			copy(dst.data, clean)
 			copyRect(dst, prev[b+j], pwin[b+j][0], pwin[b+j][1])
-		}
+		})
 		data, t := buf, cleanT
 		for i := k; i < len(inc.stages); i++ {
 			t0 := time.Now()
@@ -515,4 +564,38 @@ func (inc *incremental) chunkRun(ctx context.Context, pos []int, k int, measure 
 		}
 	}
 	return nil
+}
+
+// grow returns (*buf)[:n], allocating only when the buffer is too small:
+// fresh memory for every chunk costs page faults and collections that
+// showed as a third of the crops' time on a VGG-16-sized network.
+func grow(buf *[]float32, n int) []float32 {
+	if cap(*buf) < n {
+		*buf = make([]float32, n)
+	}
+	return (*buf)[:n]
+}
+
+// parallel calls f(0) … f(n-1), spread over the cores when the n items of
+// per values each are worth it. The runtime waits meanwhile, so the copies
+// have the cores to themselves.
+func parallel(n, per int, f func(j int)) {
+	w := min(runtime.GOMAXPROCS(0), n)
+	if w < 2 || n*per < 1<<16 {
+		for j := range n {
+			f(j)
+		}
+		return
+	}
+	var wg sync.WaitGroup
+	for g := range w {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for j := g; j < n; j += w {
+				f(j)
+			}
+		}()
+	}
+	wg.Wait()
 }

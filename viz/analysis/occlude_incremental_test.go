@@ -12,6 +12,7 @@ package analysis
 import (
 	"context"
 	"encoding/binary"
+	"image"
 	"math"
 	"strings"
 	"testing"
@@ -42,6 +43,21 @@ func occlusionPair(t *testing.T, m *modelio.Model, set viz.OcclusionSettings, ta
 	}
 	defer func(old int) { incrementalForce = old }(incrementalForce)
 	incrementalForce = force
+	// Twice: the second call runs the sub-models' sessions the first kept
+	// with s (infer.Session.Keep), and must give the same heatmap.
+	for call := range 2 {
+		if call == 1 {
+			t.Logf("%s: second call, on the kept sub-model sessions", m.Name)
+		}
+		compareIncremental(t, m, s, cfg, img, set, targets, force, ref)
+	}
+}
+
+// compareIncremental runs Occlude incrementally and compares it with ref.
+func compareIncremental(t *testing.T, m *modelio.Model, s *infer.Session, cfg prep.Config, img *image.NRGBA,
+	set viz.OcclusionSettings, targets []int, force int, ref []*viz.Occlusion) {
+	t.Helper()
+	ctx := context.Background()
 	var calls, last int
 	got, err := Occlude(ctx, s, cfg, img, set, targets, func(done, total int) {
 		calls++
