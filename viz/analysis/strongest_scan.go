@@ -85,6 +85,9 @@ type extras struct {
 func (a *layerAcc) sizeExtras(c int) {
 	if a.k > 0 {
 		a.tops = make([]topHeap, c)
+		for i := range a.tops {
+			a.tops[i] = make(topHeap, 0, min(a.k, 64)) // no growing while the first images fill it
+		}
 	}
 	if a.classes > 0 {
 		a.cls = make([][]classAcc, c)
