@@ -17,6 +17,14 @@ import (
 // Names that are already outputs are skipped. Weights are not copied apart
 // from the one serialisation the result needs.
 func (m *Model) WithOutputs(names []string) ([]byte, error) {
+	return m.WithSummaries(names, nil)
+}
+
+// WithSummaries is WithOutputs that also adds, for each of sums, the nodes
+// computing its per-channel summary and an output named
+// SummaryName(tensor) (see Summary). Every summarised tensor must pass
+// SummaryDims.
+func (m *Model) WithSummaries(names []string, sums []Summary) ([]byte, error) {
 	g := m.g
 	gp := m.pb.GetGraph()
 	have := map[string]bool{}
@@ -34,12 +42,24 @@ func (m *Model) WithOutputs(names []string) ([]byte, error) {
 		have[name] = true
 		outs = append(outs, m.valueInfo(name))
 	}
-	// A new GraphProto sharing every field of the original except Output:
-	// the nodes and initializers are not copied.
+	nodes, inits := gp.GetNode(), gp.GetInitializer()
+	if len(sums) > 0 {
+		sn, si, so, err := m.summaryNodes(sums)
+		if err != nil {
+			return nil, err
+		}
+		// New slices: the model's own graph is shared and must not change.
+		nodes = append(append([]*onnxpb.NodeProto(nil), nodes...), sn...)
+		inits = append(append([]*onnxpb.TensorProto(nil), inits...), si...)
+		outs = append(outs, so...)
+	}
+	// A new GraphProto sharing every field of the original except Output
+	// (and, with summaries, Node and Initializer): the nodes and
+	// initializers themselves are not copied.
 	ng := &onnxpb.GraphProto{
-		Node:                   gp.GetNode(),
+		Node:                   nodes,
 		Name:                   gp.GetName(),
-		Initializer:            gp.GetInitializer(),
+		Initializer:            inits,
 		SparseInitializer:      gp.GetSparseInitializer(),
 		DocString:              gp.GetDocString(),
 		Input:                  gp.GetInput(),

@@ -241,8 +241,7 @@ func (w *Workspace) Scan(ctx context.Context, files []string, o analysis.ScanOpt
 		if err != nil {
 			return nil, inputErr(w.Model.Name, err)
 		}
-		opt := analysis.ScanSession(w.Model, dims(w.Model, c))
-		opt.Capture = append(opt.Capture, extra...)
+		opt := analysis.ScanSession(w.Model, dims(w.Model, c), extra...)
 		opt.Output = w.output
 		one, err := infer.NewSession(w.Model, opt)
 		if err != nil {

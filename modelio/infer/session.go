@@ -31,6 +31,14 @@ type Options struct {
 	// BatchNormalization), the session also runs the unchanged model on
 	// each chunk for the outputs, which costs one plain run more.
 	Capture []string
+	// Summarise names tensors whose per-channel summary (largest value,
+	// its first position, smallest value, sum: modelio.Summary) the graph
+	// computes itself; each comes back in Result.Maps under
+	// modelio.SummaryName(tensor), shaped [N][C][modelio.SummaryWidth]
+	// ([N][C][1] with MaxOnly). Each tensor must pass
+	// modelio.Model.SummaryDims. The model's outputs stay those of a plain
+	// run, as with Capture.
+	Summarise []modelio.Summary
 	// Dims are the per-image dimensions (without the batch) of an image
 	// input whose dimensions the model leaves symbolic, in the model's
 	// layout: [3 224 224] for NCHW. Ignored when the model fixes them all.
@@ -188,6 +196,19 @@ func NewSession(m *modelio.Model, opt Options) (*Session, error) {
 		s.names = append(s.names, c)
 		extra = append(extra, c)
 	}
+	var sums []modelio.Summary
+	for _, sm := range opt.Summarise {
+		name := modelio.SummaryName(sm.Tensor)
+		if _, dup := s.capIndex[name]; dup {
+			continue
+		}
+		if _, ok := m.SummaryDims(sm.Tensor); !ok {
+			return nil, fmt.Errorf("infer: %s: tensor %q cannot be summarised in the graph (unknown name, not float32, or dimensions not fixed)", file, sm.Tensor)
+		}
+		s.capIndex[name] = len(s.names)
+		s.names = append(s.names, name)
+		sums = append(sums, sm)
+	}
 	for _, v := range m.Outputs {
 		if _, ok := s.capIndex[v.Name]; ok && !slices.Contains(s.names[:s.nOut], v.Name) {
 			return nil, fmt.Errorf("infer: %s: cannot capture %q: it is a %s output; only float32 tensors are returned", file, v.Name, v.ElemType)
@@ -195,9 +216,9 @@ func NewSession(m *modelio.Model, opt Options) (*Session, error) {
 	}
 
 	data := m.Bytes()
-	if len(extra) > 0 {
+	if len(extra) > 0 || len(sums) > 0 {
 		var err error
-		if data, err = m.WithOutputs(extra); err != nil {
+		if data, err = m.WithSummaries(extra, sums); err != nil {
 			return nil, err
 		}
 	}
@@ -246,7 +267,10 @@ func NewSession(m *modelio.Model, opt Options) (*Session, error) {
 	if err != nil {
 		return nil, runtimeError(file, err)
 	}
-	if slices.ContainsFunc(extra, func(n string) bool { return m.CaptureEffect(n) == modelio.CaptureShifts }) {
+	// A summarised tensor gains readers as a captured one does: the same
+	// merges stop.
+	shifts := func(n string) bool { return m.CaptureEffect(n) == modelio.CaptureShifts }
+	if slices.ContainsFunc(extra, shifts) || slices.ContainsFunc(sums, func(sm modelio.Summary) bool { return shifts(sm.Tensor) }) {
 		if s.twin, err = ort.NewDynamicAdvancedSessionWithONNXData(m.Bytes(), in, s.names[:s.nOut], so); err != nil {
 			s.ort.Destroy()
 			return nil, runtimeError(file, err)

@@ -38,7 +38,7 @@ func topRatio(b *testing.B, bc benchCase) {
 		b.Fatal(err)
 	}
 	defer s.Close()
-	bound, err := infer.NewSession(m, infer.Options{Capture: opt.Capture})
+	bound, err := infer.NewSession(m, infer.Options{Capture: opt.Capture, Summarise: opt.Summarise}) // the same reads as the scan (scanRatioWith)
 	if err != nil {
 		b.Fatal(err)
 	}

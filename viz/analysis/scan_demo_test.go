@@ -10,8 +10,8 @@ import (
 	"testing"
 
 	"fovea/modelio"
-	"fovea/modelio/infer"
 	"fovea/modelio/prep"
+	"fovea/modelio/testkit"
 )
 
 // demoDir is the demo's folder (assets/make_demo.py writes it);
@@ -80,64 +80,69 @@ func TestScanDemoTruth(t *testing.T) {
 				t.Fatal(err)
 			}
 			cfg := prep.Guess(m)
-			s := newSession(t, m, infer.Options{Capture: ScanCapture(m)})
-			r, err := Scan(context.Background(), s, m, cfg, files, ScanOptions{}, nil)
-			if err != nil {
-				t.Fatal(err)
-			}
-			if r.Images != truth.Probe.Images {
-				t.Errorf("%d images scanned, the truth has %d", r.Images, truth.Probe.Images)
-			}
-			if len(r.Layers) != len(truth.Relus) {
-				t.Errorf("%d layers scanned, the truth lists %d ReLUs", len(r.Layers), len(truth.Relus))
-			}
-			dead, rare := 0, 0
-			for _, tr := range truth.Relus {
-				i := slices.IndexFunc(r.Layers, func(l ScanLayer) bool { return l.Name == tr.Node })
-				if i < 0 {
-					t.Errorf("ReLU %s not scanned", tr.Node)
-					continue
+			// Both ways of reading the maps: whole (Go statistics) and
+			// summarised in the graph (ScanSession), each against the truth.
+			for _, how := range scanReads(t, m) {
+				s := newSession(t, m, how.opt)
+				r, err := Scan(context.Background(), s, m, cfg, files, ScanOptions{}, nil)
+				if err != nil {
+					t.Fatal(err)
 				}
-				l := r.Layers[i]
-				if l.Output != tr.Output || len(l.Channels) != tr.Channels {
-					t.Errorf("%s: output %q with %d channels, truth %q with %d", tr.Node, l.Output, len(l.Channels), tr.Output, tr.Channels)
-					continue
+				t.Logf("maps read %s", how.name)
+				if r.Images != truth.Probe.Images {
+					t.Errorf("%d images scanned, the truth has %d", r.Images, truth.Probe.Images)
 				}
-				if tr.FollowsOp == "Conv" && l.Conv != tr.Follows {
-					t.Errorf("%s: fed by %q, truth %q", tr.Node, l.Conv, tr.Follows)
+				if len(r.Layers) != len(truth.Relus) {
+					t.Errorf("%d layers scanned, the truth lists %d ReLUs", len(r.Layers), len(truth.Relus))
 				}
-				var gotDead, gotRare []int
-				for _, ch := range l.Channels {
-					if slices.Contains(ch.Flags, modelio.FlagDead) {
-						gotDead = append(gotDead, ch.Index)
+				dead, rare := 0, 0
+				for _, tr := range truth.Relus {
+					i := slices.IndexFunc(r.Layers, func(l ScanLayer) bool { return l.Name == tr.Node })
+					if i < 0 {
+						t.Errorf("ReLU %s not scanned", tr.Node)
+						continue
 					}
-					if slices.Contains(ch.Flags, modelio.FlagRare) {
-						gotRare = append(gotRare, ch.Index)
+					l := r.Layers[i]
+					if l.Output != tr.Output || len(l.Channels) != tr.Channels {
+						t.Errorf("%s: output %q with %d channels, truth %q with %d", tr.Node, l.Output, len(l.Channels), tr.Output, tr.Channels)
+						continue
 					}
-					// Firing counts agree up to the images whose largest
-					// pre-activation lies within the truth's margin of 0.
-					got := int(math.Round(ch.Fires * float64(r.Images)))
-					if d := got - tr.FireCount[ch.Index]; d < -tr.WithinMargin[ch.Index] || d > tr.WithinMargin[ch.Index] {
-						t.Errorf("%s channel %d fires on %d images, truth %d (± %d)", tr.Node, ch.Index, got, tr.FireCount[ch.Index], tr.WithinMargin[ch.Index])
+					if tr.FollowsOp == "Conv" && l.Conv != tr.Follows {
+						t.Errorf("%s: fed by %q, truth %q", tr.Node, l.Conv, tr.Follows)
 					}
-					// The ReLU's largest output is max(0, largest input);
-					// float32 in two runtimes, 6 digits in the file.
-					want := math.Max(0, tr.MaxPre[ch.Index])
-					if math.Abs(ch.Max-want) > 1e-3*math.Max(1, want) {
-						t.Errorf("%s channel %d: max %g, truth %g", tr.Node, ch.Index, ch.Max, want)
+					var gotDead, gotRare []int
+					for _, ch := range l.Channels {
+						if slices.Contains(ch.Flags, modelio.FlagDead) {
+							gotDead = append(gotDead, ch.Index)
+						}
+						if slices.Contains(ch.Flags, modelio.FlagRare) {
+							gotRare = append(gotRare, ch.Index)
+						}
+						// Firing counts agree up to the images whose largest
+						// pre-activation lies within the truth's margin of 0.
+						got := int(math.Round(ch.Fires * float64(r.Images)))
+						if d := got - tr.FireCount[ch.Index]; d < -tr.WithinMargin[ch.Index] || d > tr.WithinMargin[ch.Index] {
+							t.Errorf("%s channel %d fires on %d images, truth %d (± %d)", tr.Node, ch.Index, got, tr.FireCount[ch.Index], tr.WithinMargin[ch.Index])
+						}
+						// The ReLU's largest output is max(0, largest input);
+						// float32 in two runtimes, 6 digits in the file.
+						want := math.Max(0, tr.MaxPre[ch.Index])
+						if math.Abs(ch.Max-want) > 1e-3*math.Max(1, want) {
+							t.Errorf("%s channel %d: max %g, truth %g", tr.Node, ch.Index, ch.Max, want)
+						}
 					}
+					if !slices.Equal(gotDead, orNil(tr.Dead)) || !slices.Equal(gotRare, orNil(tr.Rare)) {
+						t.Errorf("%s: dead %v rare %v, truth dead %v rare %v", tr.Node, gotDead, gotRare, tr.Dead, tr.Rare)
+					}
+					dead += len(gotDead)
+					rare += len(gotRare)
 				}
-				if !slices.Equal(gotDead, orNil(tr.Dead)) || !slices.Equal(gotRare, orNil(tr.Rare)) {
-					t.Errorf("%s: dead %v rare %v, truth dead %v rare %v", tr.Node, gotDead, gotRare, tr.Dead, tr.Rare)
+				if r.Count(modelio.FlagDead) != dead || r.Count(modelio.FlagRare) != rare {
+					t.Errorf("flags outside the truth's layers: %d dead, %d rare in all", r.Count(modelio.FlagDead), r.Count(modelio.FlagRare))
 				}
-				dead += len(gotDead)
-				rare += len(gotRare)
+				t.Logf("%s: %d images, %d dead, %d rare, %d constant, %d zero_kernel, %d duplicate", kind, r.Images, dead, rare,
+					r.Count(modelio.FlagConstant), r.Count(modelio.FlagZeroKernel), r.Count(modelio.FlagDuplicate))
 			}
-			if r.Count(modelio.FlagDead) != dead || r.Count(modelio.FlagRare) != rare {
-				t.Errorf("flags outside the truth's layers: %d dead, %d rare in all", r.Count(modelio.FlagDead), r.Count(modelio.FlagRare))
-			}
-			t.Logf("%s: %d images, %d dead, %d rare, %d constant, %d zero_kernel, %d duplicate", kind, r.Images, dead, rare,
-				r.Count(modelio.FlagConstant), r.Count(modelio.FlagZeroKernel), r.Count(modelio.FlagDuplicate))
 		})
 	}
 }
@@ -149,4 +154,46 @@ func orNil(s []int) []int {
 		return nil
 	}
 	return s
+}
+
+// TestScanReadsAgree: on both demo checkpoints over every third demo probe,
+// with the strongest images and per-class rates asked for, a scan whose
+// maps are summarised in the graph (ScanSession) reports what one reading
+// the maps whole reports (sameUpToSums), with batches of 1 and 7 images.
+// TestScanDemoTruth checks both against the PyTorch truth; this covers the
+// figures that truth does not list (strongest images and their positions,
+// class rates, pre-activation maxima).
+func TestScanReadsAgree(t *testing.T) {
+	testkit.NeedRuntime(t)
+	dir := demoDir()
+	all, err := ProbeFiles(filepath.Join(dir, "probe"))
+	if err != nil {
+		t.Fatalf("the demo assets are needed (assets/make_demo.py): %v", err)
+	}
+	var files []string
+	labels := map[string]string{}
+	for i := 0; i < len(all); i += 3 {
+		files = append(files, all[i])
+		labels[all[i]] = []string{"first", "second", "third"}[i%9/3] // any grouping will do
+	}
+	for _, name := range []string{"parts.onnx", "parts_unhealthy.onnx"} {
+		m, err := modelio.Open(filepath.Join(dir, name))
+		if err != nil {
+			t.Fatal(err)
+		}
+		cfg := prep.Guess(m)
+		o := ScanOptions{TopK: 9, Labels: labels}
+		var reports []*ScanReport
+		for i, how := range scanReads(t, m) {
+			how.opt.Batch = []int{1, 7}[i]
+			r, err := Scan(context.Background(), newSession(t, m, how.opt), m, cfg, files, o, nil)
+			if err != nil {
+				t.Fatalf("%s, maps read %s: %v", name, how.name, err)
+			}
+			reports = append(reports, r)
+		}
+		if d := sameUpToSums(reports[0], reports[1]); d != "" {
+			t.Errorf("%s: maps read whole against summarised in the graph: %s", name, d)
+		}
+	}
 }

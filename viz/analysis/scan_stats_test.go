@@ -138,7 +138,7 @@ func TestAddParallel(t *testing.T) {
 	run := func(parts int) []*layerAcc {
 		accs := newAccs()
 		for k := range 3 {
-			if err := addParallel(accs, batch(k), 3, parts); err != nil {
+			if err := addParallel(nil, accs, batch(k), 3, parts); err != nil {
 				t.Fatal(err)
 			}
 		}

@@ -221,8 +221,11 @@ func TestScanHandModel(t *testing.T) {
 	m := scanModel(t)
 	const n = 20
 	files := writeProbes(t, n)
-	for _, batch := range []int{0, 1, 3} {
-		s := newSession(t, m, infer.Options{Capture: ScanCapture(m), Batch: batch})
+	for i, batch := range []int{0, 1, 3} {
+		// The maps whole, then summarised in the graph (scanReads).
+		opt := scanReads(t, m)[i%2].opt
+		opt.Batch = batch
+		s := newSession(t, m, opt)
 		var last [2]int
 		r, err := Scan(context.Background(), s, m, scanConfig(), files, ScanOptions{Rare: 0.1}, func(done, total int) {
 			if done < last[0] {
@@ -231,7 +234,7 @@ func TestScanHandModel(t *testing.T) {
 			last = [2]int{done, total}
 		})
 		if err != nil {
-			t.Fatalf("batch %d: %v", batch, err)
+			t.Fatalf("batch %d, %+v: %v", batch, opt, err)
 		}
 		if last != [2]int{n, n} {
 			t.Errorf("batch %d: progress ended at %v", batch, last)
@@ -434,12 +437,35 @@ func TestScanNotFinite(t *testing.T) {
 
 // ScanSession lets the runtime's workers sleep for a model light per pixel
 // and spin for a heavy one (the thresholds are this project's measurements,
-// see spinMACsPerPixel), and always captures the maps the scan reads and
-// the activations' inputs that may be captured (PreActivationCapture).
+// see spinMACsPerPixel), and always reads the maps the scan reads and the
+// activations' inputs (PreActivationCapture): summarised in the graph when
+// the model fixes their size, whole when it does not.
 func TestScanSessionOptions(t *testing.T) {
 	light := scanModel(t)
-	if o := ScanSession(light, nil); !o.NoSpin || !slices.Equal(o.Capture, append(ScanCapture(light), PreActivationCapture(light)...)) {
+	var want []modelio.Summary
+	for _, n := range ScanCapture(light) {
+		want = append(want, modelio.Summary{Tensor: n})
+	}
+	for _, n := range PreActivationCapture(light) {
+		want = append(want, modelio.Summary{Tensor: n, MaxOnly: true})
+	}
+	if o := ScanSession(light, nil); !o.NoSpin || len(o.Capture) != 0 || !slices.Equal(o.Summarise, want) {
 		t.Errorf("light model (%d MACs for %d×%d pixels): %+v", light.Total.MACs, light.Image.Width, light.Image.Height, o)
+	}
+	sb := onnxbuild.New(13, onnxbuild.Zeros)
+	sx := sb.Input("image", onnxbuild.Float, "N", 3, "H", "W")
+	sr := sb.Relu(sb.Conv(sx, 3, 4, 3, 1, 1))
+	sb.Output(sb.Flatten(sb.GlobalAveragePool(sr)))
+	sp := filepath.Join(t.TempDir(), "symbolic.onnx")
+	if err := sb.Write(sp); err != nil {
+		t.Fatal(err)
+	}
+	symbolic, err := modelio.Open(sp)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if o := ScanSession(symbolic, []int64{3, 16, 16}); !slices.Contains(o.Capture, sr) || len(o.Summarise) != 0 {
+		t.Errorf("model of symbolic size: captures %v, summarises %v; want %s captured whole", o.Capture, o.Summarise, sr)
 	}
 	b := onnxbuild.New(13, onnxbuild.Zeros)
 	x := b.Input("image", onnxbuild.Float, "N", 3, 32, 32)
@@ -457,4 +483,62 @@ func TestScanSessionOptions(t *testing.T) {
 	if o := ScanSession(heavy, nil); o.NoSpin {
 		t.Errorf("heavy model (%d MACs for 32×32 pixels): workers told to sleep", heavy.Total.MACs)
 	}
+}
+
+// scanRead is one way a scan session reads the maps.
+type scanRead struct {
+	name string
+	opt  infer.Options
+}
+
+// scanReads returns the two ways: every map captured whole, with the
+// statistics in Go, and ScanSession's, which summarises in the graph the
+// maps whose size the model fixes (all of them in the models these tests
+// build, which the second entry checks).
+func scanReads(t testing.TB, m *modelio.Model) []scanRead {
+	t.Helper()
+	graph := ScanSession(m, nil)
+	if len(graph.Capture) > 0 || len(graph.Summarise) == 0 {
+		t.Fatalf("%s: ScanSession captures %v whole and summarises %v", m.Name, graph.Capture, graph.Summarise)
+	}
+	return []scanRead{
+		{"whole", infer.Options{Capture: append(ScanCapture(m), PreActivationCapture(m)...)}},
+		{"summarised in the graph", graph},
+	}
+}
+
+// sameUpToSums says where two scans of the same files differ, or "": every
+// figure bit for bit except the means, which come from sums rounded
+// differently when the maps are read whole (float32 over blocks of 256
+// values, then float64) and summarised in the graph (the runtime's float32
+// sum per map): within 1e-6 of the larger magnitude; the selectivity, a
+// ratio of differences of means on a scale of -1 to 1, within 1e-6.
+func sameUpToSums(a, b *ScanReport) string {
+	near := func(x, y float64) bool {
+		return x == y || math.Abs(x-y) <= 1e-6*max(math.Abs(x), math.Abs(y), 1e-30) || (math.IsNaN(x) && math.IsNaN(y))
+	}
+	if a.Images != b.Images || len(a.Layers) != len(b.Layers) || !slices.Equal(a.Classes, b.Classes) {
+		return fmt.Sprintf("images %d/%d, %d/%d layers, classes %v/%v", a.Images, b.Images, len(a.Layers), len(b.Layers), a.Classes, b.Classes)
+	}
+	for i, la := range a.Layers {
+		lb := b.Layers[i]
+		if la.Name != lb.Name || la.MapH != lb.MapH || la.MapW != lb.MapW || len(la.Channels) != len(lb.Channels) {
+			return fmt.Sprintf("layer %d: %s %d×%d / %s %d×%d", i, la.Name, la.MapH, la.MapW, lb.Name, lb.MapH, lb.MapW)
+		}
+		for j, ca := range la.Channels {
+			cb := lb.Channels[j]
+			same := ca.Fires == cb.Fires && math.Float64bits(ca.Max) == math.Float64bits(cb.Max) && near(ca.Mean, cb.Mean) &&
+				slices.Equal(ca.Flags, cb.Flags) && slices.Equal(ca.Top, cb.Top) &&
+				fmt.Sprint(ptr(ca.MaxPreActivation)) == fmt.Sprint(ptr(cb.MaxPreActivation)) && fmt.Sprint(ptr(ca.Bias)) == fmt.Sprint(ptr(cb.Bias)) &&
+				len(ca.PerClass) == len(cb.PerClass) && ca.SelectiveFor == cb.SelectiveFor && math.Abs(ca.Selectivity-cb.Selectivity) <= 1e-6
+			for k := 0; same && k < len(ca.PerClass); k++ {
+				pa, pb := ca.PerClass[k], cb.PerClass[k]
+				same = pa.Class == pb.Class && pa.Images == pb.Images && pa.Fires == pb.Fires && near(pa.Mean, pb.Mean)
+			}
+			if !same {
+				return fmt.Sprintf("%s channel %d: %+v against %+v", la.Name, j, ca, cb)
+			}
+		}
+	}
+	return ""
 }

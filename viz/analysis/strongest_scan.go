@@ -65,20 +65,22 @@ type classAcc struct {
 
 // extras are a layer's accumulators beyond the firing statistics.
 type extras struct {
-	k        int    // strongest images kept per channel (0: none)
-	classes  int    // number of probe classes (0: unlabelled)
-	pre      string // the captured input of the activation, "" when none
-	identity bool   // the activation passes positive values unchanged: where it fired, its input's maximum is its own
-	direct   bool   // the feeding Conv's output is the activation's input (no normalisation between)
-	tops     []topHeap
-	cls      [][]classAcc // [channel][class]
-	preMax   []float64
-	preSeen  bool
-	mapH     int
-	mapW     int
-	bi       batchInfo      // the batch being added
-	preT     modelio.Tensor // its pre-activation maps
-	havePre  bool
+	k          int    // strongest images kept per channel (0: none)
+	classes    int    // number of probe classes (0: unlabelled)
+	pre        string // the captured input of the activation, "" when none
+	identity   bool   // the activation passes positive values unchanged: where it fired, its input's maximum is its own
+	direct     bool   // the feeding Conv's output is the activation's input (no normalisation between)
+	tops       []topHeap
+	cls        [][]classAcc // [channel][class]
+	preMax     []float64
+	preSeen    bool
+	mapH       int
+	mapW       int
+	bi         batchInfo      // the batch being added
+	preT       modelio.Tensor // its pre-activation maps, or their summaries
+	havePre    bool
+	preSummary bool // preT holds the summaries (modelio.Summary) per image and channel
+	preWidth   int  // their width: 1 (the largest value only) or modelio.SummaryWidth
 }
 
 // sizeExtras makes the accumulators for c channels (first batch).
@@ -102,42 +104,51 @@ func (a *layerAcc) sizeExtras(c int) {
 }
 
 // startBatch records the batch's files and classes and checks its
-// pre-activation maps, before the channels are added (on any number of
-// goroutines).
+// pre-activation maps (whole, or their largest values summarised in the
+// graph), before the channels are added (on any number of goroutines).
 func (a *layerAcc) startBatch(maps map[string]modelio.Tensor, bi batchInfo) error {
 	a.bi = bi
 	a.havePre = false
-	t := maps[a.layer.Output]
-	if a.mapH == 0 {
-		a.mapH, a.mapW = 1, 1
-		if len(t.Shape) == 4 {
-			a.mapH, a.mapW = int(t.Shape[2]), int(t.Shape[3])
-		} else if len(t.Shape) == 3 {
-			a.mapW = int(t.Shape[2])
-		}
-	}
 	if a.pre == "" {
 		return nil
 	}
+	want := bi.n * len(a.channels) * a.spatial // whole maps, as the output's
 	p, ok := maps[a.pre]
+	a.preSummary = false
 	if !ok {
-		return nil // the session does not capture it: no MaxPreActivation
+		if p, ok = maps[modelio.SummaryName(a.pre)]; !ok {
+			return nil // the session does not capture it: no MaxPreActivation
+		}
+		a.preSummary = true
+		// The largest value per image and channel, or the whole summary
+		// when the tensor is also scanned as a layer of its own
+		// (ScanOptions.Layers): its first column.
+		a.preWidth = 1
+		if len(p.Data) == bi.n*len(a.channels)*modelio.SummaryWidth {
+			a.preWidth = modelio.SummaryWidth
+		}
+		want = bi.n * len(a.channels) * a.preWidth
 	}
-	if !slices.Equal(p.Shape, t.Shape) || len(p.Data) != len(t.Data) {
-		return fmt.Errorf("viz: scan: the input of activation %q has shape %v, its output %v", a.layer.Name, p.Shape, t.Shape)
+	if len(p.Data) != want || (!a.preSummary && !a.summary && !slices.Equal(p.Shape, a.cur.Shape)) {
+		return fmt.Errorf("viz: scan: the input of activation %q has shape %v; its output has %d channels of %d values", a.layer.Name, p.Shape, len(a.channels), a.spatial)
 	}
 	a.preT, a.havePre, a.preSeen = p, true, true
 	return nil
 }
 
-// addExtras adds image img's map m of channel ch (its largest value mx and
+// addExtras adds image img's map of channel ch (its largest value mx and
 // sum) to the strongest images, the class rates and the pre-activations.
-// Like addChannels, it touches channel ch's accumulators only.
-func (a *layerAcc) addExtras(img, ch int, m []float32, mx float32, sum float64) {
+// m is the map, or nil when it was summarised in the graph and pos is the
+// first position of mx. Like addChannels, it touches channel ch's
+// accumulators only.
+func (a *layerAcc) addExtras(img, ch int, m []float32, mx float32, sum float64, pos int) {
 	if a.k > 0 && len(a.bi.files) > img && mx == mx {
 		f := a.bi.files[img]
 		if a.tops[ch].wants(a.k, mx, f) {
-			a.tops[ch].push(a.k, topEntry{value: mx, file: f, pos: firstAt(m, mx)})
+			if m != nil {
+				pos = firstAt(m, mx)
+			}
+			a.tops[ch].push(a.k, topEntry{value: mx, file: f, pos: pos})
 		}
 	}
 	if a.classes > 0 && len(a.bi.class) > img {
@@ -146,16 +157,21 @@ func (a *layerAcc) addExtras(img, ch int, m []float32, mx float32, sum float64) 
 			if mx > 0 {
 				c.fires++
 			}
-			c.mean += sum / float64(len(m))
+			c.mean += sum / float64(a.spatial)
 		}
 	}
 	// The input's maximum is read only while the channel has not fired:
 	// once it has, the maximum is above zero and the channel is not dead,
 	// and a healthy network costs no second pass over its maps.
 	if a.havePre && a.channels[ch].fires == 0 {
-		sp := len(m)
+		sp := a.spatial
 		c := len(a.channels)
-		pm, _ := mapStats(a.preT.Data[(img*c+ch)*sp : (img*c+ch+1)*sp])
+		var pm float32
+		if a.preSummary {
+			pm = a.preT.Data[(img*c+ch)*a.preWidth+modelio.SummaryMax]
+		} else {
+			pm, _ = mapStats(a.preT.Data[(img*c+ch)*sp : (img*c+ch+1)*sp])
+		}
 		if float64(pm) > a.preMax[ch] || pm != pm {
 			a.preMax[ch] = float64(pm)
 		}

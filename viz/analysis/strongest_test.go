@@ -241,6 +241,16 @@ func TestStrongestPlanted(t *testing.T) {
 		}
 	}
 
+	// The same scan with the maps read whole (the session above summarises
+	// them in the graph): the same report up to the rounding of the sums.
+	whole, err := Scan(context.Background(), newSession(t, m, scanReads(t, m)[0].opt), m, cfg, files, ScanOptions{TopK: 5, Labels: labels}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if d := sameUpToSums(whole, ref); d != "" {
+		t.Fatalf("maps read whole against summarised in the graph: %s", d)
+	}
+
 	// Strongest images of relu1 channel 0 and relu2 channel 0.
 	for li, lay := range []struct {
 		name    string
