@@ -20,7 +20,7 @@ import (
 	"fovea/viz/analysis"
 )
 
-// pairView is the "Checkpoint pair" tab: the open model (a, the reference)
+// pairView is the "Compare" tab: the open model (a, the reference)
 // against a second model chosen here (b, the candidate). It shows the
 // comparison's one-page picture, lists the images whose answer flipped, and
 // from a flipped image draws the occlusion maps of both models for the true

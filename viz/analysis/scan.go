@@ -53,8 +53,8 @@ type ScanOptions struct {
 	// carries channels on axis 1, e.g. a pooling, a Conv or a Sigmoid, for
 	// the strongest patches of a layer the default scan does not cover. Their
 	// firing counts values above 0 as for the activations, and they get no
-	// kernel flags, bias or pre-activation. The session must capture their
-	// outputs too.
+	// kernel flags, bias or pre-activation. The session must read their
+	// outputs too (ScanSession's extra argument).
 	Layers []string
 	// Labels, when not nil, gives the class of each probe file (by the
 	// name in the file list); the report then has each channel's firing
@@ -137,9 +137,11 @@ type ChannelScan struct {
 	Top []Patch `json:"-"`
 }
 
-// ScanCapture returns the tensor names a session must capture
-// (infer.Options.Capture) for Scan to read them: the outputs of the
-// ReLU-like layers (modelio.Model.ReluLayers).
+// ScanCapture returns the tensors Scan reads: the outputs of the ReLU-like
+// layers (modelio.Model.ReluLayers). A session returns them whole when
+// they are captured (infer.Options.Capture) or as per-channel figures when
+// they are summarised in the graph (infer.Options.Summarise); ScanSession
+// chooses.
 func ScanCapture(m *modelio.Model) []string {
 	return modelio.OutputsOf(m.ReluLayers())
 }
@@ -464,8 +466,10 @@ func accumulate(ctx context.Context, m *modelio.Model, accs []*layerAcc, parts i
 // largest and mean value, and flags: dead, rare, constant, and from the Conv
 // kernels feeding it (KernelFlags) zero_kernel and duplicate.
 //
-// s must capture the activations: create it with
-// infer.Options{Capture: ScanCapture(m)}. Files are decoded and prepared by
+// s must read the activations: create it with ScanSession(m, dims), which
+// has them summarised in the graph where it can (or with
+// infer.Options{Capture: ScanCapture(m)}, which returns them whole for the
+// statistics to be gathered in Go). Files are decoded and prepared by
 // a Feed (o.Workers goroutines) in batches of s.BatchSize() while the model
 // runs on an earlier batch and the statistics of the batch before are
 // gathered meanwhile (on o.Workers/4 goroutines, at least one, each
