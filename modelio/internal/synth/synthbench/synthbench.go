@@ -186,6 +186,7 @@ func rows(demo string) []row {
 		{"incremental occlusion / every occluded image, same positions", "ResNet-18 224×224 (patch 32, stride 16)", "BenchmarkIncrementalRatio/resnet18/stride16", "incremental/every", 0.70, true, pairsOf},
 		{"incremental occlusion / every occluded image, same positions", "ResNet-18 224×224 (patch 32, stride 8)", "BenchmarkIncrementalRatio/resnet18/stride8", "incremental/every", 0.70, true, pairsOf},
 		{"incremental occlusion / every occluded image, same positions", "VGG-16 224×224 (patch 32, stride 16)", "BenchmarkIncrementalRatio/vgg16/stride16", "incremental/every", 0.40, true, pairsOf},
+		{"incremental occlusion / every occluded image, same positions", "VGG-16 224×224 (patch 32, stride 8)", "BenchmarkIncrementalRatio/vgg16/stride8", "incremental/every", 0.40, true, pairsOf},
 		{"run returning every activation map / plain run", demo, "BenchmarkCaptureRatio", "capture/plain", 1.3, true, func(m map[string]float64) string {
 			return fmt.Sprintf("plain %.2f ms/run", m["plain-µs/op"]/1000)
 		}},
