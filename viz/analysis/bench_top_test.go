@@ -84,4 +84,5 @@ func topRatio(b *testing.B, bc benchCase) {
 	}
 	interleave(b, plain, scan).report(b, "top/plain", true, bc.probes)
 	b.ReportMetric(float64(len(opt.Capture)), "captures")
+	b.ReportMetric(float64(len(opt.Summarise)), "summaries")
 }

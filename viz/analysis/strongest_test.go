@@ -442,31 +442,36 @@ func TestPreActivationKeepsOutputs(t *testing.T) {
 			t.Errorf("%s: %d of %d activation inputs captured: %v", m.Name, len(pre), len(m.ReluLayers()), pre)
 		}
 		plain := newSession(t, m, infer.Options{Batch: 2})
-		scan := newSession(t, m, infer.Options{Capture: ScanSession(m, nil).Capture, Batch: 2})
-		dims, err := plain.ImageDims()
-		if err != nil {
-			t.Fatal(err)
-		}
-		per := 1
-		for _, d := range dims {
-			per *= int(d)
-		}
-		rng := rand.New(rand.NewPCG(3, 5))
-		in := make([]float32, 2*per)
-		for i := range in {
-			in[i] = rng.Float32()
-		}
-		want, err := plain.Run(context.Background(), in, 2)
-		if err != nil {
-			t.Fatal(err)
-		}
-		got, err := scan.Run(context.Background(), in, 2)
-		if err != nil {
-			t.Fatal(err)
-		}
-		for i, v := range want.Outputs[0].Data {
-			if math.Float32bits(v) != math.Float32bits(got.Outputs[0].Data[i]) {
-				t.Fatalf("%s: output %d is %g with the pre-activations captured, %g in a plain run", m.Name, i, got.Outputs[0].Data[i], v)
+		// Both ways a scan session reads them: whole, and summarised in
+		// the graph (ScanSession).
+		for _, how := range scanReads(t, m) {
+			how.opt.Batch = 2
+			scan := newSession(t, m, how.opt)
+			dims, err := plain.ImageDims()
+			if err != nil {
+				t.Fatal(err)
+			}
+			per := 1
+			for _, d := range dims {
+				per *= int(d)
+			}
+			rng := rand.New(rand.NewPCG(3, 5))
+			in := make([]float32, 2*per)
+			for i := range in {
+				in[i] = rng.Float32()
+			}
+			want, err := plain.Run(context.Background(), in, 2)
+			if err != nil {
+				t.Fatal(err)
+			}
+			got, err := scan.Run(context.Background(), in, 2)
+			if err != nil {
+				t.Fatal(err)
+			}
+			for i, v := range want.Outputs[0].Data {
+				if math.Float32bits(v) != math.Float32bits(got.Outputs[0].Data[i]) {
+					t.Fatalf("%s: output %d is %g with the pre-activations read %s, %g in a plain run", m.Name, i, got.Outputs[0].Data[i], how.name, v)
+				}
 			}
 		}
 	}
