@@ -243,7 +243,7 @@ func (w *Workspace) Scan(ctx context.Context, files []string, o analysis.ScanOpt
 		}
 		opt := analysis.ScanSession(w.Model, dims(w.Model, c), extra...)
 		opt.Output = w.output
-		one, err := infer.NewSession(w.Model, opt)
+		one, err := analysis.OpenScanSession(w.Model, opt)
 		if err != nil {
 			return nil, inputErr(w.Model.Name, err)
 		}

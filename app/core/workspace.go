@@ -398,7 +398,11 @@ func (w *Workspace) sessionLocked(k kind) (*infer.Session, error) {
 			// e.g. an image input of 4 channels: no picture can fill it.
 			return nil, inputf(w.Model.Name, "the image input cannot be fed from a picture: %s", strings.TrimPrefix(err.Error(), "prep: bad settings: "))
 		}
-		s, err := infer.NewSession(w.Model, opt)
+		open := infer.NewSession
+		if k == scanRun {
+			open = analysis.OpenScanSession
+		}
+		s, err := open(w.Model, opt)
 		if err != nil {
 			return nil, inputErr(w.Model.Name, err)
 		}

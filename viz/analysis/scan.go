@@ -673,6 +673,27 @@ func Scan(ctx context.Context, s *infer.Session, m *modelio.Model, c prep.Config
 	return out, nil
 }
 
+// OpenScanSession opens a session with opt, the options of ScanSession.
+// When the runtime refuses the graph with the summaries added (a model it
+// can run but not extend that way), it opens one that captures those maps
+// whole instead: slower, the same report (up to the rounding of the means).
+func OpenScanSession(m *modelio.Model, opt infer.Options) (*infer.Session, error) {
+	s, err := infer.NewSession(m, opt)
+	if err == nil || len(opt.Summarise) == 0 {
+		return s, err
+	}
+	whole := opt
+	whole.Summarise = nil
+	whole.Capture = slices.Clone(opt.Capture)
+	for _, sm := range opt.Summarise {
+		whole.Capture = append(whole.Capture, sm.Tensor)
+	}
+	if s, err2 := infer.NewSession(m, whole); err2 == nil {
+		return s, nil
+	}
+	return nil, err
+}
+
 // spinMACsPerPixel is where scan sessions switch to spinning worker threads:
 // the model's multiply-accumulates per input pixel above which inference
 // outweighs decoding the probe image enough that the runtime's spinning

@@ -542,3 +542,50 @@ func sameUpToSums(a, b *ScanReport) string {
 	}
 	return ""
 }
+
+// OpenScanSession falls back to reading the maps whole when the runtime
+// refuses the graph with the summaries added. Refused here because a
+// tensor of the model already has the name the first summary's Reshape
+// would get (ONNX requires each name to be defined once: ONNX IR
+// specification, "Names Within a Graph"); the scan still runs and finds the
+// same flags as with the maps read whole.
+func TestOpenScanSessionFallsBack(t *testing.T) {
+	b := onnxbuild.New(13, onnxbuild.Random)
+	x := b.Input("image", onnxbuild.Float, "N", 3, scanSide, scanSide)
+	c := b.Conv(x, 3, 4, 3, 1, 1)
+	b.Node("Relu", []string{c}, []string{"fovea.summary.0.Reshape"})
+	b.Output(b.Flatten(b.GlobalAveragePool("fovea.summary.0.Reshape")))
+	p := filepath.Join(t.TempDir(), "clash.onnx")
+	if err := b.Write(p); err != nil {
+		t.Fatal(err)
+	}
+	m, err := modelio.Open(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	whole := newSession(t, m, infer.Options{Capture: ScanCapture(m)}) // loads the runtime
+	opt := ScanSession(m, nil)
+	if len(opt.Summarise) == 0 {
+		t.Fatalf("ScanSession summarises nothing: %+v", opt)
+	}
+	if _, err := infer.NewSession(m, opt); err == nil || !strings.Contains(err.Error(), "fovea.summary.0.Reshape") {
+		t.Fatalf("the graph defining a name twice: %v; want the runtime to refuse it, naming it", err)
+	}
+	s, err := OpenScanSession(m, opt)
+	if err != nil {
+		t.Fatalf("OpenScanSession: %v", err)
+	}
+	defer s.Close()
+	files := writeProbes(t, 4)
+	r, err := Scan(context.Background(), s, m, scanConfig(), files, ScanOptions{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	w, err := Scan(context.Background(), whole, m, scanConfig(), files, ScanOptions{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if d := sameReport(w, r); d != "" {
+		t.Errorf("fallback session against maps captured whole: %s", d)
+	}
+}
