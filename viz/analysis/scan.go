@@ -694,23 +694,19 @@ func OpenScanSession(m *modelio.Model, opt infer.Options) (*infer.Session, error
 	return nil, err
 }
 
-// spinMACsPerPixel is where scan sessions switch to spinning worker threads:
-// the model's multiply-accumulates per input pixel above which inference
-// outweighs decoding the probe image enough that the runtime's spinning
-// (quicker hand-over between operators) pays for the cores it takes from
-// the decoder. Measured on 2 cores with BenchmarkScanRatio's pictures
-// (decoding a PNG costs about 40-50 ns per pixel): the demo network
-// (about 2,800 MACs per pixel) scanned 12 % faster with sleeping workers, the
-// ResNet-18-sized one (about 36,000) 7 % faster with spinning ones.
-const spinMACsPerPixel = 10000
-
 // ScanSession returns the session options a scan of m wants: the maps it
 // reads (ScanCapture, the extra layer outputs of ScanOptions.Layers, and
-// PreActivationCapture), and the runtime's worker threads sleeping
-// between operators (infer.Options.NoSpin) when the model is light enough
-// per pixel that decoding the next images competes with it for the cores.
-// dims are the per-image input dimensions for a model whose input size is
-// symbolic (infer.Options.Dims), else nil.
+// PreActivationCapture). dims are the per-image input dimensions for a
+// model whose input size is symbolic (infer.Options.Dims), else nil.
+//
+// The runtime's worker threads keep spinning between operators (no
+// infer.Options.NoSpin): with one thread per core the scan takes turns with
+// the model (coreGate), so no decoder competes with the spinning threads,
+// and their quicker hand-over between operators matters most on a light
+// model. Measured on 2 cores with BenchmarkScanRatio/demo, two interleaved
+// runs each: scan/plain 0.71 and 0.73 spinning, 0.56 and 0.58 sleeping.
+// Sleeping workers paid only while decoders ran beside the model, before
+// the scan took turns.
 //
 // A map whose dimensions the model fixes is summarised in the graph
 // (infer.Options.Summarise: largest value, its position, smallest value
@@ -739,17 +735,5 @@ func ScanSession(m *modelio.Model, dims []int64, extra ...string) infer.Options 
 			opt.Capture = append(opt.Capture, t)
 		}
 	}
-	var pixels int64
-	switch im := m.Image; {
-	case im == nil:
-	case im.Width > 0 && im.Height > 0:
-		pixels = int64(im.Width) * int64(im.Height)
-	case len(dims) == 3 && im.Layout == modelio.LayoutNHWC:
-		pixels = dims[0] * dims[1]
-	case len(dims) == 3:
-		pixels = dims[1] * dims[2]
-	}
-	// Unknown sizes or costs keep the runtime's default (spinning).
-	opt.NoSpin = pixels > 0 && m.Total.MACs > 0 && m.Total.MACs < spinMACsPerPixel*pixels
 	return opt
 }

@@ -435,11 +435,11 @@ func TestScanNotFinite(t *testing.T) {
 	}
 }
 
-// ScanSession lets the runtime's workers sleep for a model light per pixel
-// and spin for a heavy one (the thresholds are this project's measurements,
-// see spinMACsPerPixel), and always reads the maps the scan reads and the
-// activations' inputs (PreActivationCapture): summarised in the graph when
-// the model fixes their size, whole when it does not.
+// ScanSession reads the maps the scan reads and the activations' inputs
+// (PreActivationCapture): summarised in the graph when the model fixes
+// their size, whole when it does not; and it leaves the runtime's workers
+// spinning even for a light model (the scan takes turns with the model;
+// this project's measurement, see ScanSession).
 func TestScanSessionOptions(t *testing.T) {
 	light := scanModel(t)
 	var want []modelio.Summary
@@ -449,7 +449,7 @@ func TestScanSessionOptions(t *testing.T) {
 	for _, n := range PreActivationCapture(light) {
 		want = append(want, modelio.Summary{Tensor: n, MaxOnly: true})
 	}
-	if o := ScanSession(light, nil); !o.NoSpin || len(o.Capture) != 0 || !slices.Equal(o.Summarise, want) {
+	if o := ScanSession(light, nil); o.NoSpin || len(o.Capture) != 0 || !slices.Equal(o.Summarise, want) {
 		t.Errorf("light model (%d MACs for %d×%d pixels): %+v", light.Total.MACs, light.Image.Width, light.Image.Height, o)
 	}
 	sb := onnxbuild.New(13, onnxbuild.Zeros)
@@ -466,22 +466,6 @@ func TestScanSessionOptions(t *testing.T) {
 	}
 	if o := ScanSession(symbolic, []int64{3, 16, 16}); !slices.Contains(o.Capture, sr) || len(o.Summarise) != 0 {
 		t.Errorf("model of symbolic size: captures %v, summarises %v; want %s captured whole", o.Capture, o.Summarise, sr)
-	}
-	b := onnxbuild.New(13, onnxbuild.Zeros)
-	x := b.Input("image", onnxbuild.Float, "N", 3, 32, 32)
-	x = b.Relu(b.Conv(x, 3, 256, 3, 1, 1))
-	x = b.Relu(b.Conv(x, 256, 256, 3, 1, 1)) // 256·256·9 ≈ 590,000 MACs per pixel
-	b.Output(b.Gemm(b.Flatten(b.GlobalAveragePool(x)), 256, 4))
-	p := filepath.Join(t.TempDir(), "heavy.onnx")
-	if err := b.Write(p); err != nil {
-		t.Fatal(err)
-	}
-	heavy, err := modelio.Open(p)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if o := ScanSession(heavy, nil); o.NoSpin {
-		t.Errorf("heavy model (%d MACs for 32×32 pixels): workers told to sleep", heavy.Total.MACs)
 	}
 }
 
