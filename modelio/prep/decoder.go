@@ -46,7 +46,7 @@ type Decoder struct {
 	run []int   // its IDAT chunks: offset, length, ...
 	tw  *tensorWriter
 
-	goInflate bool // inflate with compress/zlib even where C zlib is linked (tests)
+	goInflate bool // inflate with compress/zlib even where libdeflate is linked (tests)
 
 	decode, prepare time.Duration
 }
@@ -137,6 +137,11 @@ func (d *Decoder) loadFile(fsys fs.FS, name string) (image.Image, error) {
 // io.ReaderAt (os.File, embedded and fstest files do), or a read fails: the
 // caller then lets Load or LoadFS handle it, so that the error is theirs.
 func (d *Decoder) read(fsys fs.FS, name string) (data []byte, ok bool) {
+	if fsys == nil {
+		if data, ok, tried := d.readRaw(name); tried {
+			return data, ok
+		}
+	}
 	var f fs.File
 	var err error
 	if fsys == nil {
@@ -156,14 +161,19 @@ func (d *Decoder) read(fsys fs.FS, name string) (data []byte, ok bool) {
 	if err != nil || st.IsDir() || st.Size() <= 0 || st.Size() > decoderMaxFile {
 		return nil, false
 	}
-	size := int(st.Size())
-	if cap(d.file) < size {
-		d.file = make([]byte, size, max(size, min(2*cap(d.file), decoderMaxFile)))
-	}
-	buf := d.file[:size]
+	buf := d.fileBuf(int(st.Size()))
+	size := len(buf)
 	n, err := ra.ReadAt(buf, 0)
 	if n != size || (err != nil && err != io.EOF) {
 		return nil, false
 	}
 	return buf, true
+}
+
+// fileBuf returns d.file resized to size bytes, growing it when needed.
+func (d *Decoder) fileBuf(size int) []byte {
+	if cap(d.file) < size {
+		d.file = make([]byte, size, max(size, min(2*cap(d.file), decoderMaxFile)))
+	}
+	return d.file[:size]
 }

@@ -2,8 +2,8 @@
 
 package prep
 
-// haveCZlib says whether this build inflates through the C zlib library: not
+// haveCInflate says whether this build inflates through a C library: not
 // without cgo, where compress/zlib does all the inflating.
-const haveCZlib = false
+const haveCInflate = false
 
 func inflateC(src, dst []byte) (used int, ok bool) { panic("prep: inflateC without cgo") }

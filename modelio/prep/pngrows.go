@@ -225,7 +225,7 @@ func (p *pngRows) header(b []byte, c Config, maxPixels int) bool {
 	return int64(p.rowSize)*int64(p.h) <= decoderMaxRaw
 }
 
-// inflate inflates the IDAT run of data into d.raw (through the C zlib library
+// inflate inflates the IDAT run of data into d.raw (through libdeflate
 // where the build has cgo, else compress/zlib) and unfilters it, with the
 // checks image/png makes: enough pixel data, the zlib checksum, no data left
 // over (image/png's "too much pixel data"; it passes when the stream ends at
@@ -248,7 +248,7 @@ func (d *Decoder) inflate(data []byte, p *pngRows) bool {
 	}
 	raw := d.raw[:size]
 	inflate := d.inflateGo
-	if haveCZlib && !d.goInflate {
+	if haveCInflate && !d.goInflate {
 		inflate = inflateC
 	}
 	used, ok := inflate(stream, raw)
@@ -325,6 +325,10 @@ func unfilter(raw []byte, rowSize, bpp int, zero []byte) bool {
 				cur[i] += b
 			}
 		case 3: // Average: Raw(x) = Average(x) + floor((Raw(x-bpp) + Prior(x)) / 2)
+			if bpp == 3 && len(cur)%3 == 0 {
+				unaverage3(cur, prev)
+				break
+			}
 			for i := range min(bpp, len(cur)) {
 				cur[i] += prev[i] / 2
 			}
@@ -332,7 +336,14 @@ func unfilter(raw []byte, rowSize, bpp int, zero []byte) bool {
 				cur[i] += uint8((int(cur[i-bpp]) + int(prev[i])) / 2)
 			}
 		case 4: // Paeth: Raw(x) = Paeth(x) + PaethPredictor(Raw(x-bpp), Prior(x), Prior(x-bpp))
-			unpaeth(cur, prev, bpp)
+			switch {
+			case bpp == 3 && len(cur)%3 == 0:
+				unpaeth3(cur, prev)
+			case bpp == 4 && len(cur)%4 == 0:
+				unpaeth4(cur, prev)
+			default:
+				unpaeth(cur, prev, bpp)
+			}
 		default:
 			return false
 		}
@@ -370,6 +381,66 @@ func unpaeth(cur, prev []byte, bpp int) {
 			cur[j] = byte(a)
 			c = b
 		}
+	}
+}
+
+// paeth is one step of unpaeth: the byte whose filtered value is v, given a
+// (left, unfiltered), b (above) and c (upper left).
+func paeth(v byte, a, b, c int) int {
+	pa, pb := b-c, a-c
+	pc := abs(pa + pb)
+	pa, pb = abs(pa), abs(pb)
+	t, tp := b, pb
+	if pc < pb {
+		t, tp = c, pc
+	}
+	if pa <= tp {
+		t = a
+	}
+	return (t + int(v)) & 0xff
+}
+
+// unpaeth3 is unpaeth for three bytes a pixel (8-bit RGB), len(cur) a
+// multiple of 3: it steps a pixel at a time, so that the three dependency
+// chains (one per sample, each byte waits for its left neighbour) run side
+// by side instead of one after the other. Measured on the rows of 64×64
+// RGB probe images: Paeth rows about twice as fast as unpaeth.
+func unpaeth3(cur, prev []byte) {
+	prev = prev[:len(cur)]
+	var a0, a1, a2, c0, c1, c2 int
+	for j := 0; j+2 < len(cur); j += 3 {
+		p, q := prev[j:j+3:j+3], cur[j:j+3:j+3]
+		b0, b1, b2 := int(p[0]), int(p[1]), int(p[2])
+		a0, a1, a2 = paeth(q[0], a0, b0, c0), paeth(q[1], a1, b1, c1), paeth(q[2], a2, b2, c2)
+		q[0], q[1], q[2] = byte(a0), byte(a1), byte(a2)
+		c0, c1, c2 = b0, b1, b2
+	}
+}
+
+// unpaeth4 is unpaeth3 for four bytes a pixel (8-bit RGBA).
+func unpaeth4(cur, prev []byte) {
+	prev = prev[:len(cur)]
+	var a0, a1, a2, a3, c0, c1, c2, c3 int
+	for j := 0; j+3 < len(cur); j += 4 {
+		p, q := prev[j:j+4:j+4], cur[j:j+4:j+4]
+		b0, b1, b2, b3 := int(p[0]), int(p[1]), int(p[2]), int(p[3])
+		a0, a1, a2, a3 = paeth(q[0], a0, b0, c0), paeth(q[1], a1, b1, c1), paeth(q[2], a2, b2, c2), paeth(q[3], a3, b3, c3)
+		q[0], q[1], q[2], q[3] = byte(a0), byte(a1), byte(a2), byte(a3)
+		c0, c1, c2, c3 = b0, b1, b2, b3
+	}
+}
+
+// unaverage3 reverses the Average filter of one row of three bytes a pixel,
+// len(cur) a multiple of 3, a pixel at a time as unpaeth3 does.
+func unaverage3(cur, prev []byte) {
+	prev = prev[:len(cur)]
+	var a0, a1, a2 int
+	for j := 0; j+2 < len(cur); j += 3 {
+		p, q := prev[j:j+3:j+3], cur[j:j+3:j+3]
+		a0 = (int(q[0]) + (a0+int(p[0]))>>1) & 0xff
+		a1 = (int(q[1]) + (a1+int(p[1]))>>1) & 0xff
+		a2 = (int(q[2]) + (a2+int(p[2]))>>1) & 0xff
+		q[0], q[1], q[2] = byte(a0), byte(a1), byte(a2)
 	}
 }
 
