@@ -353,51 +353,36 @@ func unfilter(raw []byte, rowSize, bpp int, zero []byte) bool {
 }
 
 // unpaeth reverses the Paeth filter of one row (PNG specification 9.4): each
-// byte gets back the one of a (left), b (above) and c (upper left) nearest to
-// p = a + b - c, ties in the order a, b, c. It walks each byte position of the
-// pixel along the row, so that a and c stay in registers, and uses
-// |p - a| = |b - c|, |p - b| = |a - c|, |p - c| = |(b - c) + (a - c)|.
-// Left of the first pixel a = c = 0.
+// byte gets back paeth of a (left), b (above) and c (upper left). It walks
+// each byte position of the pixel along the row, so that a and c stay in
+// registers. Left of the first pixel a = c = 0.
 func unpaeth(cur, prev []byte, bpp int) {
 	prev = prev[:len(cur)]
 	for k := range min(bpp, len(cur)) {
 		a, c := 0, 0
 		for j := k; j < len(cur); j += bpp {
 			b := int(prev[j])
-			pa, pb := b-c, a-c
-			pc := abs(pa + pb)
-			pa, pb = abs(pa), abs(pb)
-			// The nearer of b and c (ties to b), then a if it is as near:
-			// the specification's order, written so that the compiler can
-			// choose without branches.
-			t, tp := b, pb
-			if pc < pb {
-				t, tp = c, pc
-			}
-			if pa <= tp {
-				t = a
-			}
-			a = (t + int(cur[j])) & 0xff
+			a = (paeth(a, b, c) + int(cur[j])) & 0xff
 			cur[j] = byte(a)
 			c = b
 		}
 	}
 }
 
-// paeth is one step of unpaeth: the byte whose filtered value is v, given a
-// (left, unfiltered), b (above) and c (upper left).
-func paeth(v byte, a, b, c int) int {
-	pa, pb := b-c, a-c
-	pc := abs(pa + pb)
-	pa, pb = abs(pa), abs(pb)
-	t, tp := b, pb
-	if pc < pb {
-		t, tp = c, pc
+// paeth is the PNG specification's PaethPredictor (9.4): of a (left), b
+// (above) and c (upper left), the one nearest to p = a + b - c, ties in the
+// order a, b, c, using |p - a| = |b - c|, |p - b| = |a - c|,
+// |p - c| = |(b - c) + (a - c)|. Small enough to be inlined, and written so
+// that the compiler can choose without branches.
+func paeth(a, b, c int) int {
+	pa, pb, pc := abs(b-c), abs(a-c), abs(a+b-2*c)
+	if pa <= min(pb, pc) {
+		return a
 	}
-	if pa <= tp {
-		t = a
+	if pb <= pc {
+		return b
 	}
-	return (t + int(v)) & 0xff
+	return c
 }
 
 // unpaeth3 is unpaeth for three bytes a pixel (8-bit RGB), len(cur) a
@@ -411,7 +396,9 @@ func unpaeth3(cur, prev []byte) {
 	for j := 0; j+2 < len(cur); j += 3 {
 		p, q := prev[j:j+3:j+3], cur[j:j+3:j+3]
 		b0, b1, b2 := int(p[0]), int(p[1]), int(p[2])
-		a0, a1, a2 = paeth(q[0], a0, b0, c0), paeth(q[1], a1, b1, c1), paeth(q[2], a2, b2, c2)
+		a0 = (paeth(a0, b0, c0) + int(q[0])) & 0xff
+		a1 = (paeth(a1, b1, c1) + int(q[1])) & 0xff
+		a2 = (paeth(a2, b2, c2) + int(q[2])) & 0xff
 		q[0], q[1], q[2] = byte(a0), byte(a1), byte(a2)
 		c0, c1, c2 = b0, b1, b2
 	}
@@ -424,7 +411,10 @@ func unpaeth4(cur, prev []byte) {
 	for j := 0; j+3 < len(cur); j += 4 {
 		p, q := prev[j:j+4:j+4], cur[j:j+4:j+4]
 		b0, b1, b2, b3 := int(p[0]), int(p[1]), int(p[2]), int(p[3])
-		a0, a1, a2, a3 = paeth(q[0], a0, b0, c0), paeth(q[1], a1, b1, c1), paeth(q[2], a2, b2, c2), paeth(q[3], a3, b3, c3)
+		a0 = (paeth(a0, b0, c0) + int(q[0])) & 0xff
+		a1 = (paeth(a1, b1, c1) + int(q[1])) & 0xff
+		a2 = (paeth(a2, b2, c2) + int(q[2])) & 0xff
+		a3 = (paeth(a3, b3, c3) + int(q[3])) & 0xff
 		q[0], q[1], q[2], q[3] = byte(a0), byte(a1), byte(a2), byte(a3)
 		c0, c1, c2, c3 = b0, b1, b2, b3
 	}
@@ -446,8 +436,7 @@ func unaverage3(cur, prev []byte) {
 
 // abs is |x| without a branch (x >> 63 is 0 or -1).
 func abs(x int) int {
-	m := x >> 63
-	return (x ^ m) - m
+	return (x ^ x>>63) - x>>63
 }
 
 // writePNG writes the window of the unfiltered rows in d.raw into dst for c:
