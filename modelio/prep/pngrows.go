@@ -372,8 +372,8 @@ func unpaeth(cur, prev []byte, bpp int) {
 // paeth is the PNG specification's PaethPredictor (9.4): of a (left), b
 // (above) and c (upper left), the one nearest to p = a + b - c, ties in the
 // order a, b, c, using |p - a| = |b - c|, |p - b| = |a - c|,
-// |p - c| = |(b - c) + (a - c)|. Small enough to be inlined, and written so
-// that the compiler can choose without branches.
+// |p - c| = |a + b - 2c|. Kept small enough for the compiler to inline it
+// into the unfilter loops (a call per byte would cost as much as the work).
 func paeth(a, b, c int) int {
 	pa, pb, pc := abs(b-c), abs(a-c), abs(a+b-2*c)
 	if pa <= min(pb, pc) {
