@@ -16,12 +16,12 @@ export LANGUAGE := en
 export CGO_ENABLED := 1
 
 # Debian packages: a C compiler and the OpenGL/X11 headers Fyne's cgo needs,
-# libdeflate (modelio/prep inflates PNG rows with it, linked statically),
+# zlib's headers (modelio/prep inflates PNG rows through the C zlib library),
 # npm to fetch the ONNX Runtime library, and for the tests the ONNX
 # conformance data. An entry `command:package` is satisfied by the command
 # being on the PATH however it got there (Node.js from elsewhere ships its own
 # npm and conflicts with Debian's); a plain `package` must be installed.
-RUN_DEBS  := gcc:gcc libc6-dev pkg-config:pkg-config libgl1-mesa-dev xorg-dev libdeflate-dev npm:npm ca-certificates
+RUN_DEBS  := gcc:gcc libc6-dev pkg-config:pkg-config libgl1-mesa-dev xorg-dev zlib1g-dev npm:npm ca-certificates
 TEST_DEBS := $(RUN_DEBS) libonnx-testdata desktop-file-validate:desktop-file-utils xz:xz-utils
 # check-export: Debian's PyTorch and onnx for /usr/bin/python3 (about 1 GB).
 EXPORT_DEBS := python3-torch python3-onnx python3-numpy python3-pil
@@ -140,13 +140,11 @@ fuzz:
 
 # stage_tree lays out in $(1) the files packaging/install.sh installs, as
 # they sit under a prefix: the binary, ONNX Runtime with its licence (fetched
-# into the user cache first if missing), libdeflate's licence (the binary
-# carries its code), the desktop entry, the icon and the
+# into the user cache first if missing), the desktop entry, the icon and the
 # MIME type of .onnx files.
 define stage_tree
 install -D -m 0755 $(BIN) $(1)/bin/fovea; \
 $(BIN) fetch-runtime --into $(1)/lib/fovea >/dev/null; \
-install -D -m 0644 modelio/prep/libdeflate-LICENSE.txt $(1)/lib/fovea/libdeflate-LICENSE; \
 install -D -m 0644 packaging/org.fovea.app.desktop $(1)/share/applications/org.fovea.app.desktop; \
 install -D -m 0644 assets/icon.png $(1)/share/icons/hicolor/256x256/apps/org.fovea.app.png; \
 install -D -m 0644 packaging/org.fovea.app.xml $(1)/share/mime/packages/org.fovea.app.xml
@@ -234,7 +232,6 @@ check-package: package
 	    { echo "$$out" >&2; echo "check-package: $$exe did not run the demo with the bundled library" >&2; exit 1; }; \
 	done; \
 	[ -f "$$dir/fovea/usr/local/lib/fovea/LICENSE" ] && grep -q "MIT License" "$$dir/fovea/usr/local/lib/fovea/LICENSE" || { echo "check-package: no ONNX Runtime licence in the tarball" >&2; exit 1; }; \
-	grep -q "Eric Biggers" "$$dir/fovea/usr/local/lib/fovea/libdeflate-LICENSE" || { echo "check-package: no libdeflate licence in the tarball" >&2; exit 1; }; \
 	(cd "$$dir/fovea" && ./install.sh install usr/local "$$dir/prefix" >/dev/null && ./install.sh uninstall usr/local "$$dir/prefix" >/dev/null); \
 	left=$$(cd "$$dir/prefix" && find . -mindepth 1); [ -z "$$left" ] || { echo "check-package: the tarball's uninstall left: $$left" >&2; exit 1; }; \
 	echo "check-package: $(PACKAGE) unpacked; layers ran with the bundled library from an empty home, directly and through a link; its install.sh installs and uninstalls cleanly"

@@ -15,7 +15,6 @@ FILES=(
   bin/fovea
   lib/fovea/libonnxruntime.so.1
   lib/fovea/LICENSE
-  lib/fovea/libdeflate-LICENSE
   share/applications/org.fovea.app.desktop
   share/icons/hicolor/256x256/apps/org.fovea.app.png
   share/mime/packages/org.fovea.app.xml

@@ -46,7 +46,7 @@ type Decoder struct {
 	run []int   // its IDAT chunks: offset, length, ...
 	tw  *tensorWriter
 
-	goInflate bool // inflate with compress/zlib even where libdeflate is linked (tests)
+	goInflate bool // inflate with compress/zlib even where C zlib is linked (tests)
 
 	decode, prepare time.Duration
 }

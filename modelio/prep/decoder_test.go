@@ -394,7 +394,7 @@ func checkSame(t testing.TB, d *Decoder, data []byte, name string, c Config, max
 	return fast
 }
 
-// inflaters are the Decoder's two ways to inflate: libdeflate (where
+// inflaters are the Decoder's two ways to inflate: the C zlib library (where
 // the build has cgo) and compress/zlib. Each Decoder of the tests is checked
 // with both.
 func inflaters() []*Decoder {

@@ -225,7 +225,7 @@ func (p *pngRows) header(b []byte, c Config, maxPixels int) bool {
 	return int64(p.rowSize)*int64(p.h) <= decoderMaxRaw
 }
 
-// inflate inflates the IDAT run of data into d.raw (through libdeflate
+// inflate inflates the IDAT run of data into d.raw (through C zlib
 // where the build has cgo, else compress/zlib) and unfilters it, with the
 // checks image/png makes: enough pixel data, the zlib checksum, no data left
 // over (image/png's "too much pixel data"; it passes when the stream ends at
