@@ -57,7 +57,7 @@ func fixedLitLen(w *bitWriter, sym int) {
 // 0, then copies at distance 1 (distance symbol 0) of length 258 written with
 // lengthSym (285, or one of the reserved 286 and 287 that a lenient decoder
 // reads as 258), then the end of block.
-func reservedFixed(lengthSym int, copies int) (stream []byte, n int) {
+func reservedFixed(lengthSym, copies int) (stream []byte, n int) {
 	n = 1 + 258*copies
 	return deflateStream(func(w *bitWriter) {
 		w.write(1, 1) // BFINAL
@@ -117,7 +117,12 @@ func dynamicZeros(hlit, hdist, n int) []byte {
 			w.write(l, 3)
 		}
 		// Canonical codes (RFC 1951 3.2.2): symbol 1 is 0, symbol 18 is 1.
+		// zeros writes k zero lengths; k is 0 or at least 11, the shortest
+		// run symbol 18 can say.
 		zeros := func(k int) {
+			if k > 0 && k < 11 {
+				panic(fmt.Sprintf("dynamicZeros: a run of %d zeros needs symbol 17", k))
+			}
 			for k > 0 {
 				run := min(k, 138)
 				if k-run > 0 && k-run < 11 {
