@@ -197,13 +197,9 @@ func TestInflateReservedCodes(t *testing.T) {
 			}
 			for _, d := range inflaters() {
 				dst := make([]byte, tc.n, tc.n+1)
-				inflate, which := d.inflateGo, "Go"
-				if !d.goInflate {
-					inflate, which = inflateC, "C"
-				}
-				used, ok := inflate(s.data, dst)
+				used, ok := d.inflater()(s.data, dst)
 				if ok != s.ok || (ok && used != len(s.data)) {
-					t.Errorf("%s: the %s inflater says ok=%v (used %d of %d), want ok=%v", tc.name, which, ok, used, len(s.data), s.ok)
+					t.Errorf("%s (goInflate %v): the inflater says ok=%v (used %d of %d), want ok=%v", tc.name, d.goInflate, ok, used, len(s.data), s.ok)
 				}
 			}
 		}

@@ -247,11 +247,7 @@ func (d *Decoder) inflate(data []byte, p *pngRows) bool {
 		d.raw = make([]byte, size+1)
 	}
 	raw := d.raw[:size]
-	inflate := d.inflateGo
-	if haveCInflate && !d.goInflate {
-		inflate = inflateC
-	}
-	used, ok := inflate(stream, raw)
+	used, ok := d.inflater()(stream, raw)
 	if !ok {
 		return false
 	}
@@ -264,6 +260,15 @@ func (d *Decoder) inflate(data []byte, p *pngRows) bool {
 		return false
 	}
 	return unfilter(raw, p.rowSize, p.bpp, d.zeroRow(p.rowSize-1))
+}
+
+// inflater is the Decoder's way to inflate: inflateC where the build has
+// cgo, unless the tests ask for compress/zlib (goInflate).
+func (d *Decoder) inflater() func(src, dst []byte) (used int, ok bool) {
+	if haveCInflate && !d.goInflate {
+		return inflateC
+	}
+	return d.inflateGo
 }
 
 // inflateGo is inflateC in Go: compress/zlib, with image/png's check that the
